@@ -1,0 +1,99 @@
+"""Command line: ``wheelreach`` (GUI), ``check``, ``schema``, and the batch commands.
+
+A bad vehicle file prints its located message and exits with status 1, never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from core.vehicle import VehicleFileError, json_schema, load_vehicle
+
+REPO_ROOT = Path(__file__).resolve().parents[1]
+SAMPLES_DIR = REPO_ROOT / "sample_vehicles"
+DEFAULT_SAMPLE = SAMPLES_DIR / "sedan.json"
+
+
+def _cmd_check(args) -> int:
+    bad = 0
+    for f in args.files:
+        try:
+            v = load_vehicle(f)
+        except VehicleFileError as e:
+            print(f"FAIL {e}")
+            bad += 1
+            continue
+        print(
+            f"ok   {f}: {v.name} ({v.body_style}), {len(v.wheels)} wheels, {len(v.spots)} spots, "
+            f"{len(v.zones)} zones, {v.radio.frequency_hz / 1e6:.2f} MHz"
+        )
+    return 1 if bad else 0
+
+
+def _cmd_schema(args) -> int:
+    print(json.dumps(json_schema(), indent=2))
+    return 0
+
+
+def _cmd_gui(args) -> int:
+    from app.gui_main import run_gui
+
+    return run_gui(args.file, screenshot=getattr(args, "screenshot", None))
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="wheelreach",
+        description="Placement aid for tire-pressure sensor receivers. With no command, opens the desktop program.",
+    )
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+    g = sub.add_parser("gui", help="open the desktop program (the default when no command is given)")
+    g.add_argument("file", nargs="?", default=None, help="vehicle file to open (default: the sample sedan)")
+    g.add_argument("--screenshot", metavar="OUT.png", help="render the main window offscreen to a PNG and exit")
+    g.set_defaults(func=_cmd_gui)
+    c = sub.add_parser("check", help="validate vehicle files; one line per file; exit 1 if any is bad")
+    c.add_argument("files", nargs="+")
+    c.set_defaults(func=_cmd_check)
+    s = sub.add_parser("schema", help="print the JSON Schema of the vehicle file format")
+    s.set_defaults(func=_cmd_schema)
+    _register_more(sub)
+    return p
+
+
+def _register_more(sub) -> None:
+    """Commands of the engine, benchmark and report modules (registered when present)."""
+    import importlib
+
+    for mod in ("app.cli_engine", "app.cli_bench", "app.cli_report"):
+        try:
+            m = importlib.import_module(mod)
+        except ModuleNotFoundError as e:
+            if e.name == mod:
+                continue
+            raise
+        m.register(sub)
+
+
+def main(argv: list[str] | None = None) -> int:
+    argv = sys.argv[1:] if argv is None else argv
+    parser = build_parser()
+    # "wheelreach [FILE] [--screenshot OUT]" opens the GUI; a first word that is a command runs it.
+    commands = set(parser._subparsers._group_actions[0].choices)  # noqa: SLF001
+    if not argv or (argv[0] not in commands and argv[0] not in ("-h", "--help")):
+        argv = ["gui", *argv]
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except VehicleFileError as e:
+        print(f"error: {e}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

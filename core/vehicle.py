@@ -1,0 +1,531 @@
+"""The vehicle file: data model, validation with located messages, load and atomic save.
+
+One JSON file describes one body style. Coordinates follow ISO 8855 vehicle axes
+(x forward, y left, z up; origin on the ground below the midpoint of the front axle);
+every length is in metres, frequencies in Hz, levels in dBm, gains and losses in dB,
+times in s, speeds in m/s. The format reference is ``docs/vehicle-format.md``; the JSON
+Schema generated from this module is ``docs/vehicle-format.json``.
+
+The model objects are frozen (immutable); an edit makes a new object with
+``model_copy(update=...)`` followed by :func:`check_vehicle`.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+from pathlib import Path
+from typing import Annotated, Literal
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
+from shapely.geometry import Polygon
+from shapely.validation import explain_validity
+
+from core.materials import BUILTIN_MATERIALS
+from core.tires import TireSize, parse_tire_code
+
+FORMAT_NAME = "wheelreach-vehicle"
+FORMAT_VERSION = 1
+FORMAT_TAG = f"{FORMAT_NAME}/{FORMAT_VERSION}"
+
+MAX_BODY_LENGTH_M = 30.0
+MAX_BODY_WIDTH_M = 5.0
+MAX_BODY_HEIGHT_M = 6.0
+MAX_TIRE_DIAMETER_M = 2.0
+MIN_FREQUENCY_HZ = 1e6
+MAX_FREQUENCY_HZ = 10e9
+
+Length = Annotated[float, Field(ge=-100.0, le=100.0)]
+Point2 = tuple[Length, Length]
+Outline = Annotated[tuple[Point2, ...], Field(min_length=3, max_length=500)]
+Axis3 = tuple[float, float, float]
+Name = Annotated[str, Field(min_length=1, max_length=80)]
+
+
+class VehicleFileError(ValueError):
+    """A vehicle file or document is invalid. The message names the file, field path and problem.
+
+    Attributes
+    ----------
+    path : file path or "" for in-memory documents
+    field : field path such as ``wheels[2].tire`` ("" for the whole document)
+    problem : what is wrong with it
+    """
+
+    def __init__(self, problem: str, field: str = "", path: str | os.PathLike | None = None):
+        self.path = str(path) if path else ""
+        self.field = field
+        self.problem = problem
+        where = ": ".join(p for p in (self.path, field) if p)
+        super().__init__(f"{where}: {problem}" if where else problem)
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="forbid", allow_inf_nan=False, strict=True)
+
+
+class Body(_Strict):
+    """The body without wheel arches, in top view (x, y) and side view (x, z), m."""
+
+    top_outline: Outline
+    side_outline: Outline
+    wheelhouse_clearance_m: float = Field(0.04, ge=0.0, le=0.5)
+    wheelhouse_material: Name = "metal"
+    floor_height_m: float | None = Field(None, ge=0.0, le=3.0)
+
+
+class Zone(_Strict):
+    """A panel zone drawn on one view with the material of the panels it covers.
+
+    A top-view zone sets the material of roof and floor crossings at its (x, y); it may be
+    limited to heights ``z_min_m``..``z_max_m``. A side-view zone sets the material of side
+    and end face crossings at its (x, z).
+    """
+
+    name: Name
+    view: Literal["top", "side"]
+    material: Name
+    outline: Outline
+    z_min_m: float | None = Field(None, ge=-1.0, le=MAX_BODY_HEIGHT_M)
+    z_max_m: float | None = Field(None, ge=-1.0, le=MAX_BODY_HEIGHT_M)
+
+
+class UserMaterial(_Strict):
+    """A material defined in the file, or an override of a built-in one: fixed crossing loss, dB."""
+
+    loss_db: float = Field(ge=0.0, le=100.0)
+    description: str = ""
+
+
+class ExplicitTire(_Strict):
+    outer_diameter_m: float = Field(gt=0.0, le=MAX_TIRE_DIAMETER_M)
+    rim_diameter_m: float = Field(gt=0.0, le=MAX_TIRE_DIAMETER_M)
+    section_width_m: float = Field(gt=0.0, le=1.0)
+
+
+class Wheel(_Strict):
+    """A wheel: centre in top view, tire size, rim width and the sensor's place on the rim."""
+
+    id: Annotated[str, Field(min_length=1, max_length=8, pattern=r"^[A-Za-z0-9_]+$")]
+    x_m: Length
+    y_m: Length
+    tire: str | ExplicitTire
+    rim_width_m: float = Field(gt=0.0, le=1.0)
+    sensor_radius_m: float | None = Field(None, gt=0.0, le=1.0)
+    sensor_offset_m: float | None = Field(None, ge=-0.5, le=0.5)
+    valve_side: Literal["outboard", "inboard"] = "outboard"
+
+    @field_validator("tire")
+    @classmethod
+    def _tire_code(cls, v):
+        if isinstance(v, str):
+            parse_tire_code(v)
+        return v
+
+    @property
+    def tire_size(self) -> TireSize:
+        if isinstance(self.tire, str):
+            return parse_tire_code(self.tire)
+        t = self.tire
+        return TireSize(t.outer_diameter_m, t.rim_diameter_m, t.section_width_m)
+
+    @property
+    def centre_z_m(self) -> float:
+        """Wheel centre height = unloaded tire radius (tire standing on the ground), m."""
+        return self.tire_size.outer_radius_m
+
+    @property
+    def outboard_sign(self) -> float:
+        """+1 for a wheel on the left (outboard = +y), -1 on the right."""
+        return 1.0 if self.y_m >= 0 else -1.0
+
+    @property
+    def sensor_radius(self) -> float:
+        """Sensor mounting radius, m; default: the rim's bead-seat radius (valve-stem sensor on the well)."""
+        return self.sensor_radius_m if self.sensor_radius_m is not None else self.tire_size.rim_radius_m
+
+    @property
+    def sensor_offset(self) -> float:
+        """Sensor axial offset from the wheel centre plane, m, positive outboard.
+
+        Default: a quarter rim width toward the valve side (engineering default)."""
+        if self.sensor_offset_m is not None:
+            return self.sensor_offset_m
+        q = 0.25 * self.rim_width_m
+        return q if self.valve_side == "outboard" else -q
+
+
+class Spot(_Strict):
+    """A candidate receiver location, m, with its antenna axis (None: the radio default).
+
+    ``x_from`` and ``z_from`` name a landmark the coordinate is measured from, so that the same
+    spot can be placed on several bodies of a platform (see ``resolve_spot``).
+    """
+
+    name: Name
+    x_m: Length
+    y_m: Length
+    z_m: Length
+    axis: Axis3 | None = None
+    x_from: Literal["origin", "front_axle", "rear_axle", "front_end", "rear_end"] = "origin"
+    z_from: Literal["ground", "floor"] = "ground"
+
+
+class Region(_Strict):
+    """A mounting region for heatmaps: a top-view area at a height, or a side-view area at a lateral position."""
+
+    name: Name
+    view: Literal["top", "side"]
+    outline: Outline
+    height_m: float | None = Field(None, ge=0.0, le=MAX_BODY_HEIGHT_M)
+    lateral_m: float | None = Field(None, ge=-MAX_BODY_WIDTH_M, le=MAX_BODY_WIDTH_M)
+
+
+class Sensor(_Strict):
+    """The wheel sensor's transmitter: peak EIRP given directly, or conducted power + antenna gain."""
+
+    eirp_dbm: float | None = Field(None, ge=-80.0, le=40.0)
+    conducted_power_dbm: float | None = Field(None, ge=-80.0, le=40.0)
+    antenna_gain_dbi: float | None = Field(None, ge=-40.0, le=10.0)
+    return_loss_db: float = Field(10.0, gt=0.0, le=60.0)
+    pattern: Literal["dipole", "isotropic"] = "dipole"
+    axis: Literal["radial", "tangential", "axial"] = "radial"
+
+
+class Receiver(_Strict):
+    """The receiver: peak antenna gain, pattern, default antenna axis and sensitivity."""
+
+    gain_dbi: float = Field(0.0, ge=-40.0, le=20.0)
+    pattern: Literal["dipole", "isotropic"] = "dipole"
+    axis: Axis3 = (0.0, 0.0, 1.0)
+    sensitivity_dbm: float = Field(-105.0, ge=-160.0, le=0.0)
+
+
+class Radio(_Strict):
+    """The radio setup and the scoring options."""
+
+    frequency_hz: float = 433.92e6
+    sensor: Sensor = Sensor(eirp_dbm=-10.0)
+    receiver: Receiver = Receiver()
+    required_margin_db: float = Field(6.0, ge=-50.0, le=50.0)
+    null_floor_db: float = Field(-30.0, ge=-80.0, le=0.0)
+    angles_per_turn: int = Field(72, ge=4, le=3600)
+    worst_case_percentile: float = Field(0.0, ge=0.0, le=50.0)
+    frames_per_burst: int = Field(4, ge=1, le=100)
+    frame_interval_s: float = Field(0.1, gt=0.0, le=10.0)
+    speed_min_mps: float = Field(0.0, ge=0.0, le=100.0)
+    speed_max_mps: float = Field(44.5, ge=0.0, le=100.0)
+    ground_reflection: bool = True
+    road_surface: str = "dry asphalt/concrete"
+    wheel_model: Literal["knife_edge", "installed_pattern"] = "knife_edge"
+
+    @property
+    def sensor_eirp_dbm(self) -> float:
+        """Peak sensor EIRP, dBm: given directly, or conducted power + gain - mismatch loss."""
+        from core.propagation import mismatch_loss_db
+
+        s = self.sensor
+        if s.eirp_dbm is not None:
+            return s.eirp_dbm
+        return s.conducted_power_dbm + s.antenna_gain_dbi - float(mismatch_loss_db(s.return_loss_db))
+
+
+class Vehicle(_Strict):
+    """One body style: body, zones, wheels, candidate spots, regions and radio setup."""
+
+    format: str = FORMAT_TAG
+    name: Name
+    body_style: Name
+    description: str = ""
+    body: Body
+    zones: tuple[Zone, ...] = ()
+    materials: dict[Name, UserMaterial] = {}
+    wheels: Annotated[tuple[Wheel, ...], Field(min_length=1, max_length=16)]
+    spots: Annotated[tuple[Spot, ...], Field(max_length=500)] = ()
+    regions: tuple[Region, ...] = ()
+    radio: Radio = Radio()
+
+    # ----- derived landmarks -------------------------------------------------
+    def material_names(self) -> set[str]:
+        return set(BUILTIN_MATERIALS) | set(self.materials)
+
+    def axle_xs(self) -> list[float]:
+        """Distinct axle positions x, m, front to rear (wheels within 5 cm share an axle)."""
+        xs = sorted(w.x_m for w in self.wheels)
+        axles: list[list[float]] = []
+        for x in xs:
+            if axles and abs(x - axles[-1][-1]) < 0.05:
+                axles[-1].append(x)
+            else:
+                axles.append([x])
+        return [float(np.mean(a)) for a in reversed(axles)]
+
+    def floor_height(self) -> float:
+        """Floor height, m: given, or the side outline's underside midway between the outer axles."""
+        if self.body.floor_height_m is not None:
+            return self.body.floor_height_m
+        axles = self.axle_xs()
+        x_mid = 0.5 * (axles[0] + axles[-1])
+        side = np.asarray(self.body.side_outline)
+        return float(_lower_envelope(side, x_mid))
+
+    def landmark_x(self, name: str) -> float:
+        top = np.asarray(self.body.top_outline)
+        axles = self.axle_xs()
+        return {
+            "origin": 0.0,
+            "front_axle": axles[0],
+            "rear_axle": axles[-1],
+            "front_end": float(top[:, 0].max()),
+            "rear_end": float(top[:, 0].min()),
+        }[name]
+
+    def resolve_spot(self, spot: Spot) -> tuple[float, float, float]:
+        """The spot's position in this body's vehicle axes, m."""
+        x = spot.x_m + self.landmark_x(spot.x_from)
+        z = spot.z_m + (self.floor_height() if spot.z_from == "floor" else 0.0)
+        return (x, spot.y_m, z)
+
+    def spot_axis(self, spot: Spot) -> np.ndarray:
+        a = np.asarray(spot.axis if spot.axis is not None else self.radio.receiver.axis, float)
+        return a / np.linalg.norm(a)
+
+
+def _lower_envelope(poly: np.ndarray, x: float) -> float:
+    """Lowest z of the polygon boundary over the vertical line at x, m."""
+    p0, p1 = poly, np.roll(poly, -1, axis=0)
+    lo, hi = np.minimum(p0[:, 0], p1[:, 0]), np.maximum(p0[:, 0], p1[:, 0])
+    ok = (lo <= x) & (x <= hi) & (hi > lo)
+    t = (x - p0[ok, 0]) / (p1[ok, 0] - p0[ok, 0])
+    z = p0[ok, 1] + t * (p1[ok, 1] - p0[ok, 1])
+    return float(z.min()) if z.size else float(poly[:, 1].min())
+
+
+# ----- validation ---------------------------------------------------------------
+def _loc(loc: tuple) -> str:
+    out = ""
+    for part in loc:
+        if isinstance(part, int):
+            out += f"[{part}]"
+        elif part in ("str", "ExplicitTire", "tuple[float, float, float]", "function-after[_tire_code(), str]"):
+            continue
+        else:
+            out += f".{part}" if out else str(part)
+    return out
+
+
+def _polygon_problem(outline) -> str | None:
+    pts = np.asarray(outline, float)
+    if len(pts) < 3:
+        return "needs at least 3 points"
+    poly = Polygon(pts)
+    if poly.area < 1e-6:
+        return "encloses no area"
+    if not poly.is_valid:
+        why = explain_validity(poly)
+        if "Self-intersection" in why or "Ring Self-intersection" in why:
+            return f"crosses itself ({why})"
+        return f"is not a simple polygon ({why})"
+    return None
+
+
+def check_vehicle(v: Vehicle) -> None:
+    """Checks across fields that the per-field validation cannot see; raise VehicleFileError."""
+    if v.format != FORMAT_TAG:
+        name, _, ver = v.format.partition("/")
+        if name != FORMAT_NAME:
+            raise VehicleFileError(f"{v.format!r} is not a Wheelreach vehicle file (expected {FORMAT_TAG!r})", "format")
+        raise VehicleFileError(f"version {ver!r} is not readable by this program (reads {FORMAT_VERSION})", "format")
+    for key in ("top_outline", "side_outline"):
+        problem = _polygon_problem(getattr(v.body, key))
+        if problem:
+            raise VehicleFileError(f"outline {problem}", f"body.{key}")
+    top = np.asarray(v.body.top_outline)
+    side = np.asarray(v.body.side_outline)
+    length = np.ptp(top[:, 0])
+    if length > MAX_BODY_LENGTH_M:
+        raise VehicleFileError(f"body is {length:.1f} m long; the limit is {MAX_BODY_LENGTH_M:.0f} m", "body.top_outline")
+    if np.ptp(top[:, 1]) > MAX_BODY_WIDTH_M:
+        raise VehicleFileError(f"body is {np.ptp(top[:, 1]):.1f} m wide; the limit is {MAX_BODY_WIDTH_M:.0f} m", "body.top_outline")
+    if np.ptp(side[:, 1]) > MAX_BODY_HEIGHT_M or side[:, 1].min() < 0.0:
+        raise VehicleFileError(f"body must lie between the ground and {MAX_BODY_HEIGHT_M:.0f} m", "body.side_outline")
+    if np.ptp(side[:, 0]) > MAX_BODY_LENGTH_M:
+        raise VehicleFileError(f"body is {np.ptp(side[:, 0]):.1f} m long; the limit is {MAX_BODY_LENGTH_M:.0f} m", "body.side_outline")
+    if v.body.wheelhouse_material not in v.material_names():
+        raise VehicleFileError(f"unknown material {v.body.wheelhouse_material!r}", "body.wheelhouse_material")
+    materials = v.material_names()
+    for i, z in enumerate(v.zones):
+        if z.material not in materials:
+            raise VehicleFileError(
+                f"unknown material {z.material!r} (known: {', '.join(sorted(materials))})", f"zones[{i}].material"
+            )
+        problem = _polygon_problem(z.outline)
+        if problem:
+            raise VehicleFileError(f"outline {problem}", f"zones[{i}].outline")
+        if z.z_min_m is not None and z.z_max_m is not None and z.z_min_m >= z.z_max_m:
+            raise VehicleFileError("z_min_m must be below z_max_m", f"zones[{i}].z_min_m")
+    _unique([w.id for w in v.wheels], "wheels", "id")
+    _unique([s.name for s in v.spots], "spots", "name")
+    _unique([r.name for r in v.regions], "regions", "name")
+    xmin, ymin = top.min(axis=0)
+    xmax, ymax = top.max(axis=0)
+    for i, w in enumerate(v.wheels):
+        t = w.tire_size
+        if t.rim_diameter_m >= t.outer_diameter_m:
+            raise VehicleFileError("rim diameter must be smaller than the overall diameter", f"wheels[{i}].tire")
+        tol = t.section_width_m
+        if not (xmin - tol <= w.x_m <= xmax + tol and ymin - tol <= w.y_m <= ymax + tol):
+            raise VehicleFileError(
+                f"wheel centre ({w.x_m:.3f}, {w.y_m:.3f}) m lies outside the body's top outline "
+                f"(x {xmin:.2f}..{xmax:.2f}, y {ymin:.2f}..{ymax:.2f} m) by more than a tire width",
+                f"wheels[{i}]",
+            )
+        if w.sensor_radius > t.outer_radius_m:
+            raise VehicleFileError("sensor radius is larger than the tire radius", f"wheels[{i}].sensor_radius_m")
+        if abs(w.sensor_offset) > 0.5 * w.rim_width_m:
+            raise VehicleFileError("sensor offset lies outside the rim width", f"wheels[{i}].sensor_offset_m")
+    for i, s in enumerate(v.spots):
+        if s.axis is not None and math.hypot(*s.axis) < 1e-9:
+            raise VehicleFileError("antenna axis must not be the zero vector", f"spots[{i}].axis")
+    if math.hypot(*v.radio.receiver.axis) < 1e-9:
+        raise VehicleFileError("antenna axis must not be the zero vector", "radio.receiver.axis")
+    for i, r in enumerate(v.regions):
+        problem = _polygon_problem(r.outline)
+        if problem:
+            raise VehicleFileError(f"outline {problem}", f"regions[{i}].outline")
+        if r.view == "top" and r.height_m is None:
+            raise VehicleFileError("a top-view region needs height_m", f"regions[{i}].height_m")
+        if r.view == "side" and r.lateral_m is None:
+            raise VehicleFileError("a side-view region needs lateral_m", f"regions[{i}].lateral_m")
+    radio = v.radio
+    if not MIN_FREQUENCY_HZ <= radio.frequency_hz <= MAX_FREQUENCY_HZ:
+        raise VehicleFileError(
+            f"{radio.frequency_hz:g} Hz is outside {MIN_FREQUENCY_HZ:g}-{MAX_FREQUENCY_HZ:g} Hz", "radio.frequency_hz"
+        )
+    s = radio.sensor
+    if s.eirp_dbm is None and (s.conducted_power_dbm is None or s.antenna_gain_dbi is None):
+        raise VehicleFileError("give eirp_dbm, or both conducted_power_dbm and antenna_gain_dbi", "radio.sensor")
+    if s.eirp_dbm is not None and (s.conducted_power_dbm is not None or s.antenna_gain_dbi is not None):
+        raise VehicleFileError("give eirp_dbm or conducted_power_dbm + antenna_gain_dbi, not both", "radio.sensor")
+    if radio.speed_max_mps < radio.speed_min_mps:
+        raise VehicleFileError("speed_max_mps is below speed_min_mps", "radio.speed_max_mps")
+    from core.materials import ROAD_SURFACES
+
+    if radio.road_surface not in ROAD_SURFACES:
+        raise VehicleFileError(
+            f"unknown road surface {radio.road_surface!r} (known: {', '.join(ROAD_SURFACES)})", "radio.road_surface"
+        )
+
+
+def _unique(names: list[str], group: str, key: str) -> None:
+    seen: dict[str, int] = {}
+    for i, n in enumerate(names):
+        if n in seen:
+            raise VehicleFileError(f"{n!r} is used twice (also at {group}[{seen[n]}])", f"{group}[{i}].{key}")
+        seen[n] = i
+
+
+# ----- load and save -------------------------------------------------------------
+def parse_vehicle(text: str | bytes, path: str | os.PathLike | None = None) -> Vehicle:
+    """Parse and validate a vehicle document; raise VehicleFileError (never another error)."""
+    try:
+        data = json.loads(text)
+    except json.JSONDecodeError as e:
+        raise VehicleFileError(f"not valid JSON: {e.msg} at line {e.lineno}, column {e.colno}", "", path) from None
+    except (UnicodeDecodeError, RecursionError) as e:
+        raise VehicleFileError(f"not readable as JSON text: {e}", "", path) from None
+    if not isinstance(data, dict):
+        raise VehicleFileError("the document must be a JSON object", "", path)
+    return vehicle_from_dict(data, path)
+
+
+def vehicle_from_dict(data: dict, path: str | os.PathLike | None = None) -> Vehicle:
+    """Build and validate a Vehicle from plain JSON data (dicts, lists, numbers, strings)."""
+    fmt = data.get("format")
+    if isinstance(fmt, str) and fmt != FORMAT_TAG and fmt.startswith(FORMAT_NAME + "/"):
+        raise VehicleFileError(
+            f"version {fmt.partition('/')[2]!r} is not readable by this program (reads {FORMAT_VERSION})", "format", path
+        )
+    try:
+        text = json.dumps(data, allow_nan=True)
+        v = Vehicle.model_validate_json(text, strict=True)
+    except ValidationError as e:
+        err = e.errors()[0]
+        field = _loc(err["loc"])
+        msg = err["msg"]
+        if err["type"] == "missing":
+            msg = "required field is missing"
+        elif err["type"] == "extra_forbidden":
+            msg = "unknown field"
+        elif err["type"] == "value_error" and "ctx" in err:
+            msg = str(err["ctx"].get("error", msg))
+        raise VehicleFileError(msg, field, path) from None
+    except (ValueError, TypeError, RecursionError, OverflowError) as e:
+        raise VehicleFileError(f"cannot read the document: {e}", "", path) from None
+    try:
+        check_vehicle(v)
+    except VehicleFileError as e:
+        raise VehicleFileError(e.problem, e.field, path) from None
+    return v
+
+
+def load_vehicle(path: str | os.PathLike) -> Vehicle:
+    """Load and validate a vehicle file; raise VehicleFileError naming the file and field."""
+    p = Path(path)
+    try:
+        raw = p.read_bytes()
+    except OSError as e:
+        raise VehicleFileError(f"cannot read the file: {e.strerror or e}", "", p) from None
+    if len(raw) > 20_000_000:
+        raise VehicleFileError("file is larger than 20 MB; not a vehicle file", "", p)
+    return parse_vehicle(raw, p)
+
+
+def vehicle_to_dict(v: Vehicle) -> dict:
+    return v.model_dump(mode="json", exclude_none=True)
+
+
+def vehicle_to_json(v: Vehicle) -> str:
+    return json.dumps(vehicle_to_dict(v), indent=2) + "\n"
+
+
+def save_vehicle(v: Vehicle, path: str | os.PathLike) -> None:
+    """Write the vehicle atomically: temporary file in the same folder, flush, fsync, replace.
+
+    An error at any point leaves an existing file at ``path`` untouched.
+    """
+    check_vehicle(v)
+    atomic_write_text(Path(path), vehicle_to_json(v))
+
+
+def atomic_write_text(path: Path, text: str) -> None:
+    """Write text to path atomically (same-folder temporary file, fsync, os.replace)."""
+    atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def atomic_write_bytes(path: Path, data: bytes) -> None:
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
+    try:
+        with os.fdopen(fd, "wb") as f:
+            f.write(data)
+            f.flush()
+            os.fsync(f.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+def json_schema() -> dict:
+    """JSON Schema of the vehicle format, generated from the model."""
+    schema = Vehicle.model_json_schema()
+    schema["$schema"] = "https://json-schema.org/draft/2020-12/schema"
+    schema["title"] = "Wheelreach vehicle file, format " + FORMAT_TAG
+    return schema
