@@ -310,11 +310,59 @@ def _loc(loc: tuple) -> str:
     for part in loc:
         if isinstance(part, int):
             out += f"[{part}]"
-        elif part in ("str", "ExplicitTire", "tuple[float, float, float]", "function-after[_tire_code(), str]"):
+        elif part in _UNION_TAGS or part == "[key]":
             continue
+        elif not str(part).isidentifier():
+            out += f"[{str(part)!r}]"
         else:
             out += f".{part}" if out else str(part)
     return out
+
+
+# Names pydantic puts into an error location for the branch of a union (not part of the file's path).
+_UNION_TAGS = ("str", "ExplicitTire", "tuple[float, float, float]", "function-after[_tire_code(), str]")
+MAX_NESTING = 32
+
+
+def _pick_error(errors: list[dict]) -> dict:
+    """The most telling of pydantic's errors: for a union such as ``tire`` (code or object), prefer the
+    branch that matches what the file gave (an object's missing key, not "should be a valid string")."""
+    first = errors[0]
+    if first["type"].endswith("_type") and any(t in first["loc"] for t in _UNION_TAGS):
+        i = next(k for k, t in enumerate(first["loc"]) if t in _UNION_TAGS)
+        stem = first["loc"][:i]
+        for e in errors[1:]:
+            if e["loc"][:i] == stem and len(e["loc"]) > i + 1:
+                return e
+    return first
+
+
+def _json_problem(data) -> tuple[str, str] | None:
+    """(field, problem) for JSON data pydantic's parser would reject without naming the field:
+    nesting deeper than MAX_NESTING, or text with an unpaired UTF-16 surrogate escape. Iterative."""
+    stack = [(data, (), 0)]
+    while stack:
+        node, loc, depth = stack.pop()
+        if depth > MAX_NESTING:
+            return _loc(loc[:3]), f"nested more than {MAX_NESTING} levels deep"
+        if isinstance(node, dict):
+            for k, val in node.items():
+                if isinstance(k, str) and not _encodable(k):
+                    return _loc(loc), f"key {k!r} contains an unpaired surrogate escape"
+                stack.append((val, (*loc, k), depth + 1))
+        elif isinstance(node, (list, tuple)):
+            stack.extend((val, (*loc, i), depth + 1) for i, val in enumerate(node))
+        elif isinstance(node, str) and not _encodable(node):
+            return _loc(loc), "text contains an unpaired surrogate escape (e.g. \\ud800)"
+    return None
+
+
+def _encodable(text: str) -> bool:
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        return False
+    return True
 
 
 def _polygon_problem(outline) -> str | None:
@@ -435,7 +483,9 @@ def parse_vehicle(text: str | bytes, path: str | os.PathLike | None = None) -> V
         data = json.loads(text)
     except json.JSONDecodeError as e:
         raise VehicleFileError(f"not valid JSON: {e.msg} at line {e.lineno}, column {e.colno}", "", path) from None
-    except (UnicodeDecodeError, RecursionError) as e:
+    except RecursionError:
+        raise VehicleFileError("not readable: the JSON is nested too deeply", "", path) from None
+    except (UnicodeDecodeError, ValueError) as e:  # ValueError: e.g. an integer literal of over 4300 digits
         raise VehicleFileError(f"not readable as JSON text: {e}", "", path) from None
     if not isinstance(data, dict):
         raise VehicleFileError("the document must be a JSON object", "", path)
@@ -449,11 +499,14 @@ def vehicle_from_dict(data: dict, path: str | os.PathLike | None = None) -> Vehi
         raise VehicleFileError(
             f"version {fmt.partition('/')[2]!r} is not readable by this program (reads {FORMAT_VERSION})", "format", path
         )
+    problem = _json_problem(data)
+    if problem:
+        raise VehicleFileError(problem[1], problem[0], path)
     try:
         text = json.dumps(data, allow_nan=True)
         v = Vehicle.model_validate_json(text, strict=True)
     except ValidationError as e:
-        err = e.errors()[0]
+        err = _pick_error(e.errors())
         field = _loc(err["loc"])
         msg = err["msg"]
         if err["type"] == "missing":
