@@ -370,13 +370,14 @@ def _polygon_problem(outline) -> str | None:
     if len(pts) < 3:
         return "needs at least 3 points"
     poly = Polygon(pts)
-    if poly.area < 1e-6:
-        return "encloses no area"
+    # validity first: a symmetric bow tie has zero signed area but is a crossing, not a sliver
     if not poly.is_valid:
         why = explain_validity(poly)
         if "Self-intersection" in why or "Ring Self-intersection" in why:
             return f"crosses itself ({why})"
         return f"is not a simple polygon ({why})"
+    if poly.area < 1e-6:
+        return "encloses no area"
     return None
 
 
