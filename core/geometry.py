@@ -1,0 +1,430 @@
+"""The 2.5-D body hull and the panels a straight 3-D path crosses, vectorised over paths.
+
+A point (x, y, z) is inside the hull when it is inside the top outline at (x, y), inside the
+side outline at (x, z), and not inside a wheelhouse. A wheelhouse is the side-view arch around a
+wheel -- the upper half disc of radius (tire radius + clearance) about the wheel centre and the
+strip below the centre of the same half width -- from the wheelhouse inner wall
+(|y| = |y_wheel| - tire width / 2 - clearance) outward.
+
+Each crossing of the hull surface costs the loss of the panel crossed:
+- through a wall of the top outline (side or end faces): the side-view zone at (x, z);
+- through an edge of the side outline (roof, floor, hood, screens): the top-view zone at (x, y)
+  (honouring the zone's z limits);
+- through a wheelhouse surface: the body's wheelhouse material.
+A point in no zone takes the body's default panel material (metal).
+
+Where the path passes through the hull (in and out again), the loss of that passage is the
+smaller of penetrating both walls and diffracting over the dominant edge of the passage
+(ITU-R P.526-15 single knife edge, section 4.1). The dominant edge is found among
+``DIFFRACTION_SAMPLES`` equally spaced points of the passage: at each point the escape
+clearance h is the smallest displacement that clears the hull (over the roof, under the floor,
+or around the plan outline at that x); the point with the largest v is the edge.
+
+References
+----------
+ITU-R P.526-15, section 4.1 (single knife edge, eq. 26 and 31); the dominant-obstacle idea is
+that of ITU-R P.526 section 4.5 (Deygout's principal edge).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from core.propagation import knife_edge_loss_db, wavelength_m
+
+DIFFRACTION_SAMPLES = 8
+_EPS = 1e-12
+
+# event kinds
+KIND_TOP = 0  # wall of the top outline -> side-view zones
+KIND_SIDE = 1  # edge of the side outline -> top-view zones
+KIND_WH_ARCH = 2  # wheelhouse arch surface
+KIND_WH_WALL = 3  # wheelhouse inner wall
+
+
+@dataclass(frozen=True)
+class ZoneTable:
+    """Polygons with their crossing loss, dB; optional z limits (top-view zones only), m."""
+
+    polygons: tuple[np.ndarray, ...]
+    loss_db: np.ndarray
+    z_min: np.ndarray
+    z_max: np.ndarray
+
+
+@dataclass(frozen=True)
+class Hull:
+    """The body prepared for fast path queries (all lengths in m, losses in dB)."""
+
+    top: np.ndarray  # (Nt, 2) x, y
+    side: np.ndarray  # (Ns, 2) x, z
+    wh_xc: np.ndarray  # (H,) wheelhouse centre x
+    wh_zc: np.ndarray  # (H,) centre z
+    wh_r: np.ndarray  # (H,) arch radius
+    wh_sign: np.ndarray  # (H,) +1 left, -1 right
+    wh_inner: np.ndarray  # (H,) inner wall at sign*y = wh_inner
+    top_zones: ZoneTable  # govern side-outline (roof/floor) crossings at (x, y)
+    side_zones: ZoneTable  # govern top-outline (wall) crossings at (x, z)
+    default_loss_db: float
+    wheelhouse_loss_db: float
+    env_x: np.ndarray  # breakpoints of the envelope tables
+    env_ztop: np.ndarray
+    env_zbot: np.ndarray
+    env_ymax: np.ndarray
+    env_ymin: np.ndarray
+
+
+def _envelope(poly: np.ndarray, xs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Upper and lower boundary of a polygon over vertical lines at xs (nan where none)."""
+    p0, p1 = poly, np.roll(poly, -1, axis=0)
+    x0, x1 = p0[:, 0][None, :], p1[:, 0][None, :]
+    lo, hi = np.minimum(x0, x1), np.maximum(x0, x1)
+    x = xs[:, None]
+    ok = (lo <= x) & (x <= hi) & (hi > lo)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = np.where(ok, (x - x0) / np.where(hi > lo, x1 - x0, 1.0), 0.0)
+    v = p0[:, 1][None, :] + t * (p1[:, 1] - p0[:, 1])[None, :]
+    top = np.where(ok, v, -np.inf).max(axis=1)
+    bot = np.where(ok, v, np.inf).min(axis=1)
+    return top, bot
+
+
+def build_hull(
+    top_outline,
+    side_outline,
+    wheelhouses: list[tuple[float, float, float, float, float]],
+    top_zones: list[tuple[np.ndarray, float, float, float]],
+    side_zones: list[tuple[np.ndarray, float]],
+    default_loss_db: float,
+    wheelhouse_loss_db: float,
+) -> Hull:
+    """Prepare a hull.
+
+    Parameters
+    ----------
+    top_outline, side_outline : (n, 2) arrays, m (x, y) and (x, z)
+    wheelhouses : (x_centre, z_centre, arch_radius, side_sign, inner_wall_abs_y) per wheelhouse, m
+    top_zones : (polygon (x, y), loss_db, z_min, z_max) each (use -inf/inf for no limit)
+    side_zones : (polygon (x, z), loss_db) each
+    default_loss_db : loss of a panel in no zone, dB
+    wheelhouse_loss_db : loss of a wheelhouse surface crossing, dB
+    """
+    top = np.asarray(top_outline, float)
+    side = np.asarray(side_outline, float)
+    wh = np.asarray(wheelhouses, float).reshape(-1, 5)
+    xs = np.unique(np.concatenate([top[:, 0], side[:, 0]]))
+    # sample just inside each breakpoint interval so vertical edges do not create ambiguity
+    mids = 0.5 * (xs[1:] + xs[:-1])
+    ex = np.sort(np.concatenate([xs + 1e-9, xs - 1e-9, mids]))
+    ztop, zbot = _envelope(side, ex)
+    ymax, ymin = _envelope(top, ex)
+
+    def table(zs, with_z):
+        polys = tuple(np.asarray(z[0], float) for z in zs)
+        loss = np.array([z[1] for z in zs], float)
+        zmin = np.array([z[2] if with_z else -np.inf for z in zs], float)
+        zmax = np.array([z[3] if with_z else np.inf for z in zs], float)
+        return ZoneTable(polys, loss, zmin, zmax)
+
+    return Hull(
+        top=top,
+        side=side,
+        wh_xc=wh[:, 0].copy(),
+        wh_zc=wh[:, 1].copy(),
+        wh_r=wh[:, 2].copy(),
+        wh_sign=wh[:, 3].copy(),
+        wh_inner=wh[:, 4].copy(),
+        top_zones=table(top_zones, True),
+        side_zones=table(side_zones, False),
+        default_loss_db=float(default_loss_db),
+        wheelhouse_loss_db=float(wheelhouse_loss_db),
+        env_x=ex,
+        env_ztop=np.where(np.isfinite(ztop), ztop, np.nan),
+        env_zbot=np.where(np.isfinite(zbot), zbot, np.nan),
+        env_ymax=np.where(np.isfinite(ymax), ymax, np.nan),
+        env_ymin=np.where(np.isfinite(ymin), ymin, np.nan),
+    )
+
+
+# ----- point tests -----------------------------------------------------------------------
+def points_in_polygon(px: np.ndarray, py: np.ndarray, poly: np.ndarray) -> np.ndarray:
+    """Crossing-number point-in-polygon test, vectorised over points (any shape)."""
+    inside = np.zeros(np.shape(px), bool)
+    n = len(poly)
+    for i in range(n):
+        x0, y0 = poly[i]
+        x1, y1 = poly[(i + 1) % n]
+        if y0 == y1:
+            continue
+        c = (y0 > py) != (y1 > py)
+        xc = x0 + (py - y0) * (x1 - x0) / (y1 - y0)
+        inside ^= c & (px < xc)
+    return inside
+
+
+def in_wheelhouse_parts(hull: Hull, x, y, z) -> tuple[np.ndarray, np.ndarray]:
+    """Per wheelhouse: (arch test in x-z, lateral test in y); arrays (..., H)."""
+    x = np.asarray(x)[..., None]
+    y = np.asarray(y)[..., None]
+    z = np.asarray(z)[..., None]
+    dx = x - hull.wh_xc
+    dz = z - hull.wh_zc
+    arch = np.where(dz >= 0, dx * dx + dz * dz < hull.wh_r**2, np.abs(dx) < hull.wh_r)
+    lateral = hull.wh_sign * y > hull.wh_inner
+    return arch, lateral
+
+
+def inside_hull(hull: Hull, x, y, z) -> np.ndarray:
+    """True where (x, y, z) lies inside the 2.5-D hull."""
+    x, y, z = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float), np.asarray(z, float))
+    t = points_in_polygon(x, y, hull.top)
+    s = points_in_polygon(x, z, hull.side)
+    arch, lat = in_wheelhouse_parts(hull, x, y, z)
+    return t & s & ~np.any(arch & lat, axis=-1)
+
+
+# ----- crossings ---------------------------------------------------------------------------
+def _edge_hits(a2: np.ndarray, d2: np.ndarray, poly: np.ndarray, box_lo, box_hi) -> np.ndarray:
+    """t of crossings of 2-D segments a2 + t d2 (N, 2) with the polygon's edges: (N, E'), nan = none.
+
+    Edges whose bounding box misses (box_lo, box_hi) -- the union box of all segments -- are skipped.
+    """
+    p0 = poly
+    p1 = np.roll(poly, -1, axis=0)
+    elo = np.minimum(p0, p1)
+    ehi = np.maximum(p0, p1)
+    keep = np.all((ehi >= box_lo) & (elo <= box_hi), axis=1)
+    p0, p1 = p0[keep], p1[keep]
+    if len(p0) == 0:
+        return np.empty((len(a2), 0))
+    e = p1 - p0
+    ax, ay = a2[:, 0:1], a2[:, 1:2]
+    dx, dy = d2[:, 0:1], d2[:, 1:2]
+    ex, ey = e[None, :, 0], e[None, :, 1]
+    wx = p0[None, :, 0] - ax
+    wy = p0[None, :, 1] - ay
+    den = dx * ey - dy * ex
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv = 1.0 / den
+        t = (wx * ey - wy * ex) * inv
+        s = (wx * dy - wy * dx) * inv
+    ok = (np.abs(den) > _EPS) & (t > 0.0) & (t < 1.0) & (s >= 0.0) & (s < 1.0)
+    return np.where(ok, t, np.nan)
+
+
+def _wheelhouse_hits(hull: Hull, a: np.ndarray, d: np.ndarray, box_lo, box_hi):
+    """Crossings of segments with wheelhouse arch surfaces and inner walls.
+
+    Returns (t_arch (N, 4H'), idx_arch (4H',), t_wall (N, H'), idx_wall (H',)).
+    """
+    H = len(hull.wh_xc)
+    # wheelhouses whose x-z box and lateral half-space the segments' box can reach
+    keep = (
+        (hull.wh_xc + hull.wh_r >= box_lo[0])
+        & (hull.wh_xc - hull.wh_r <= box_hi[0])
+        & (hull.wh_zc + hull.wh_r >= box_lo[2])
+        & np.where(hull.wh_sign > 0, box_hi[1] > hull.wh_inner, box_lo[1] < -hull.wh_inner)
+    ) if H else np.zeros(0, bool)
+    idx = np.nonzero(keep)[0]
+    n = len(a)
+    if len(idx) == 0:
+        return np.empty((n, 0)), idx, np.empty((n, 0)), idx
+    xc, zc, r = hull.wh_xc[idx], hull.wh_zc[idx], hull.wh_r[idx]
+    sg, inner = hull.wh_sign[idx], hull.wh_inner[idx]
+    ax, ay, az = a[:, 0:1], a[:, 1:2], a[:, 2:3]
+    dx, dy, dz = d[:, 0:1], d[:, 1:2], d[:, 2:3]
+    ox, oz = ax - xc, az - zc
+    # circle in x-z: |o + t dxz|^2 = r^2, only the upper half (z >= zc)
+    qa = dx * dx + dz * dz
+    qb = 2.0 * (ox * dx + oz * dz)
+    qc = ox * ox + oz * oz - r * r
+    disc = qb * qb - 4.0 * qa * qc
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sq = np.sqrt(np.where(disc > 0, disc, np.nan))
+        inv2a = 0.5 / np.where(qa > _EPS, qa, np.nan)
+        t1 = (-qb - sq) * inv2a
+        t2 = (-qb + sq) * inv2a
+
+        def arc_ok(t):
+            return (t > 0) & (t < 1) & (oz + t * dz >= 0)
+
+        t1 = np.where(arc_ok(t1), t1, np.nan)
+        t2 = np.where(arc_ok(t2), t2, np.nan)
+        # vertical lines x = xc +- r below the centre
+        inv_dx = 1.0 / np.where(np.abs(dx) > _EPS, dx, np.nan)
+        t3 = (r - ox) * inv_dx
+        t4 = (-r - ox) * inv_dx
+
+        def line_ok(t):
+            return (t > 0) & (t < 1) & (oz + t * dz < 0)
+
+        t3 = np.where(line_ok(t3), t3, np.nan)
+        t4 = np.where(line_ok(t4), t4, np.nan)
+        # inner wall: sg * y = inner
+        inv_dy = 1.0 / np.where(np.abs(dy) > _EPS, sg * dy, np.nan)
+        tw = (inner - sg * ay) * inv_dy
+        tw = np.where((tw > 0) & (tw < 1), tw, np.nan)
+    t_arch = np.concatenate([t1, t2, t3, t4], axis=1)
+    idx_arch = np.concatenate([idx, idx, idx, idx])
+    return t_arch, idx_arch, tw, idx
+
+
+def _zone_loss(table: ZoneTable, u: np.ndarray, v: np.ndarray, z: np.ndarray | None, default: float) -> np.ndarray:
+    """Loss of the zone containing each point (u, v) (later zones win); default elsewhere."""
+    loss = np.full(u.shape, default)
+    for poly, l_db, zmin, zmax in zip(table.polygons, table.loss_db, table.z_min, table.z_max):
+        hit = points_in_polygon(u, v, poly)
+        if z is not None:
+            hit &= (z >= zmin) & (z <= zmax)
+        loss = np.where(hit, l_db, loss)
+    return loss
+
+
+@dataclass(frozen=True)
+class Crossings:
+    """Hull crossings along N segments, in order: parameter t (0..1), loss dB, +1 entering / -1 leaving.
+
+    Arrays are (N, K); unused slots have t = nan, loss 0, direction 0.
+    """
+
+    t: np.ndarray
+    loss_db: np.ndarray
+    direction: np.ndarray
+    start_inside: np.ndarray  # (N,) bool
+
+
+def hull_crossings(hull: Hull, a: np.ndarray, b: np.ndarray, start_inside=None) -> Crossings:
+    """All crossings of the hull surface by the segments a -> b (N, 3) each, m.
+
+    ``start_inside`` may be given when known (e.g. shared start points), else it is computed.
+    """
+    a = np.asarray(a, float)
+    b = np.asarray(b, float)
+    n = len(a)
+    d = b - a
+    lo = np.minimum(a, b).min(axis=0) if n else np.zeros(3)
+    hi = np.maximum(a, b).max(axis=0) if n else np.zeros(3)
+    t_top = _edge_hits(a[:, :2], d[:, :2], hull.top, lo[[0, 1]], hi[[0, 1]])
+    t_side = _edge_hits(a[:, [0, 2]], d[:, [0, 2]], hull.side, lo[[0, 2]], hi[[0, 2]])
+    t_arch, idx_arch, t_wall, idx_wall = _wheelhouse_hits(hull, a, d, lo, hi)
+    ts = [t_top, t_side, t_arch, t_wall]
+    kinds = np.concatenate(
+        [
+            np.full(t_top.shape[1], KIND_TOP),
+            np.full(t_side.shape[1], KIND_SIDE),
+            np.full(t_arch.shape[1], KIND_WH_ARCH),
+            np.full(t_wall.shape[1], KIND_WH_WALL),
+        ]
+    )
+    whidx = np.concatenate([np.full(t_top.shape[1] + t_side.shape[1], -1), idx_arch, idx_wall])
+    t_all = np.concatenate(ts, axis=1)
+    # drop columns that no segment hits
+    used = ~np.all(np.isnan(t_all), axis=0) if n else np.zeros(t_all.shape[1], bool)
+    t_all, kinds, whidx = t_all[:, used], kinds[used], whidx[used]
+    if start_inside is None:
+        start_inside = inside_hull(hull, a[:, 0], a[:, 1], a[:, 2])
+    k = t_all.shape[1]
+    if k == 0:
+        z = np.zeros((n, 0))
+        return Crossings(z, z, z.astype(np.int8), np.asarray(start_inside, bool))
+
+    order = np.argsort(np.where(np.isnan(t_all), np.inf, t_all), axis=1, kind="stable")
+    t_sorted = np.take_along_axis(t_all, order, axis=1)
+    kind_sorted = kinds[order]
+    wh_sorted = whidx[order]
+    valid = ~np.isnan(t_sorted)
+    # state before the first event
+    in_t = points_in_polygon(a[:, 0], a[:, 1], hull.top)
+    in_s = points_in_polygon(a[:, 0], a[:, 2], hull.side)
+    arch0, lat0 = in_wheelhouse_parts(hull, a[:, 0], a[:, 1], a[:, 2])
+    # cumulative parity of each event type
+    st_t = in_t[:, None] ^ (np.cumsum(valid & (kind_sorted == KIND_TOP), axis=1) & 1).astype(bool)
+    st_s = in_s[:, None] ^ (np.cumsum(valid & (kind_sorted == KIND_SIDE), axis=1) & 1).astype(bool)
+    in_wh = np.zeros((n, k), bool)
+    for h in np.unique(whidx[whidx >= 0]):
+        fa = np.cumsum(valid & (kind_sorted == KIND_WH_ARCH) & (wh_sorted == h), axis=1) & 1
+        fl = np.cumsum(valid & (kind_sorted == KIND_WH_WALL) & (wh_sorted == h), axis=1) & 1
+        in_wh |= (arch0[:, h, None] ^ fa.astype(bool)) & (lat0[:, h, None] ^ fl.astype(bool))
+    for h in range(len(hull.wh_xc)):
+        if h not in whidx:
+            in_wh |= (arch0[:, h] & lat0[:, h])[:, None]
+    hull_state = st_t & st_s & ~in_wh
+    hull0 = in_t & in_s & ~np.any(arch0 & lat0, axis=1)
+    prev = np.concatenate([hull0[:, None], hull_state[:, :-1]], axis=1)
+    flip = valid & (hull_state != prev)
+
+    # keep only flips, compacted to the left
+    kmax = int(flip.sum(axis=1).max())
+    if kmax == 0:
+        z = np.zeros((n, 0))
+        return Crossings(z, z, z.astype(np.int8), hull0)
+    rank = np.cumsum(flip, axis=1) - 1
+    rows, cols = np.nonzero(flip)
+    slot = rank[rows, cols]
+    t_out = np.full((n, kmax), np.nan)
+    loss = np.zeros((n, kmax))
+    direction = np.zeros((n, kmax), np.int8)
+    tf = t_sorted[rows, cols]
+    kf = kind_sorted[rows, cols]
+    px = a[rows, 0] + tf * d[rows, 0]
+    py = a[rows, 1] + tf * d[rows, 1]
+    pz = a[rows, 2] + tf * d[rows, 2]
+    lf = np.full(len(rows), hull.wheelhouse_loss_db)
+    m_top = kf == KIND_TOP
+    if m_top.any():
+        lf[m_top] = _zone_loss(hull.side_zones, px[m_top], pz[m_top], None, hull.default_loss_db)
+    m_side = kf == KIND_SIDE
+    if m_side.any():
+        lf[m_side] = _zone_loss(hull.top_zones, px[m_side], py[m_side], pz[m_side], hull.default_loss_db)
+    t_out[rows, slot] = tf
+    loss[rows, slot] = lf
+    direction[rows, slot] = np.where(hull_state[rows, cols], 1, -1)
+    return Crossings(t_out, loss, direction, hull0)
+
+
+def escape_clearance_m(hull: Hull, x, y, z) -> np.ndarray:
+    """Smallest displacement that takes a point inside the hull outside it, m (over the roof,
+    under the floor, or sideways around the plan outline at that x); 0 outside the envelopes."""
+    ztop = np.interp(x, hull.env_x, hull.env_ztop, left=np.nan, right=np.nan)
+    zbot = np.interp(x, hull.env_x, hull.env_zbot, left=np.nan, right=np.nan)
+    ymax = np.interp(x, hull.env_x, hull.env_ymax, left=np.nan, right=np.nan)
+    ymin = np.interp(x, hull.env_x, hull.env_ymin, left=np.nan, right=np.nan)
+    h = np.minimum(np.minimum(ztop - z, z - zbot), np.minimum(ymax - y, y - ymin))
+    return np.where(np.isnan(h), 0.0, np.maximum(h, 0.0))
+
+
+def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, start_inside=None) -> np.ndarray:
+    """Body loss of the straight paths a -> b (N, 3), dB.
+
+    Every hull crossing costs its panel loss; a passage through the hull (entering and leaving
+    again) costs the smaller of its two panel losses and the knife-edge loss over its dominant edge.
+    """
+    a = np.asarray(a, float)
+    b = np.asarray(b, float)
+    c = hull_crossings(hull, a, b, start_inside)
+    total = c.loss_db.sum(axis=1)
+    k = c.t.shape[1]
+    if k < 2:
+        return total
+    lam = float(wavelength_m(freq_hz))
+    d = b - a
+    length = np.linalg.norm(d, axis=1)
+    frac = (np.arange(DIFFRACTION_SAMPLES) + 0.5) / DIFFRACTION_SAMPLES
+    for j in range(k - 1):
+        passage = (c.direction[:, j] == 1) & (c.direction[:, j + 1] == -1)
+        rows = np.nonzero(passage)[0]
+        if len(rows) == 0:
+            continue
+        t0, t1 = c.t[rows, j], c.t[rows, j + 1]
+        ts = t0[:, None] + frac[None, :] * (t1 - t0)[:, None]  # (R, M)
+        q = a[rows, None, :] + ts[..., None] * d[rows, None, :]
+        h = escape_clearance_m(hull, q[..., 0], q[..., 1], q[..., 2])
+        d1 = ts * length[rows, None]
+        d2 = (1.0 - ts) * length[rows, None]
+        v = h * np.sqrt(2.0 / lam * (1.0 / np.maximum(d1, 1e-6) + 1.0 / np.maximum(d2, 1e-6)))
+        j_db = knife_edge_loss_db(v.max(axis=1))
+        pen = c.loss_db[rows, j] + c.loss_db[rows, j + 1]
+        total[rows] -= pen - np.minimum(pen, j_db)
+    return total

@@ -1,0 +1,337 @@
+"""Scores: per-(spot, wheel) worst case over a turn, spot margins, ranking, heatmap grids.
+
+Scene.from_vehicle prepares everything that does not depend on the receiver spot (hull, wheel
+geometry, sensor positions and axes over the turn, losses at the frequency); ``spot_levels``
+computes the received level for any set of spots, shape (S, W, A) in dBm.
+
+- worst case of (spot, wheel): the minimum over the turn, or a low percentile when the radio setup
+  asks for one; its angle; the median;
+- spot margin: the worst wheel's worst-case level - sensitivity - required margin, dB;
+- ranking: by margin, ties by the worst wheel's median.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+
+from core.geometry import Hull, build_hull, inside_hull
+from core.links import link_levels_for_wheel
+from core.materials import material_loss_db, road_permittivity
+from core.propagation import SHORT_DIPOLE_GAIN_DBI, near_field_limit_m, wavelength_m
+from core.vehicle import Region, Vehicle
+from core.wheel import WheelGeometry, sensor_axes, sensor_positions
+
+#: links per work chunk: bounds memory (about 2 kB per link in flight) and sets cancel latency
+CHUNK_LINKS = 60_000
+
+
+@dataclass(frozen=True, eq=False)
+class Scene:
+    """A vehicle prepared for fast link computation (SI units, dB)."""
+
+    vehicle: Vehicle
+    hull: Hull
+    wheels: tuple[WheelGeometry, ...]
+    angles_rad: np.ndarray  # (A,)
+    sensor_pos: np.ndarray  # (W, A, 3)
+    sensor_axis: np.ndarray  # (W, A, 3)
+    sensor_inside: np.ndarray  # (W, A) bool
+    freq_hz: float
+    wavelength_m: float
+    eirp_dbm: float
+    receiver_gain_dbi: float
+    receiver_pattern: str
+    sensor_kind: str  # "dipole", "isotropic" or "table"
+    null_floor_db: float
+    sensitivity_dbm: float
+    required_margin_db: float
+    worst_percentile: float
+    ground_reflection: bool
+    road_eps: complex
+    use_wheel_loss: bool
+    sidewall_loss_db: float
+    tread_loss_db: float
+    wheel_tables: tuple = ()
+    wheel_model_label: str = "knife edge"
+
+    @property
+    def wheel_ids(self) -> tuple[str, ...]:
+        return tuple(w.id for w in self.wheels)
+
+    @classmethod
+    def from_vehicle(cls, v: Vehicle, wheel_model: str | None = None, ground_reflection: bool | None = None) -> "Scene":
+        """Prepare a scene; ``wheel_model`` and ``ground_reflection`` override the file's radio setup."""
+        r = v.radio
+        f = r.frequency_hz
+        overrides = {name: m.loss_db for name, m in v.materials.items()}
+
+        def loss(name: str) -> float:
+            return float(material_loss_db(name, f, overrides))
+
+        wheels = tuple(WheelGeometry.from_wheel(w) for w in v.wheels)
+        clearance = v.body.wheelhouse_clearance_m
+        wh = []
+        for w in wheels:
+            inner = abs(w.centre[1]) - 0.5 * w.tire_width_m - clearance
+            wh.append((w.centre[0], w.centre[2], w.tire_radius_m + clearance, w.outboard_sign, inner))
+        top_zones = []
+        side_zones = []
+        for z in v.zones:
+            if z.view == "top":
+                zmin = z.z_min_m if z.z_min_m is not None else -np.inf
+                zmax = z.z_max_m if z.z_max_m is not None else np.inf
+                top_zones.append((np.asarray(z.outline), loss(z.material), zmin, zmax))
+            else:
+                side_zones.append((np.asarray(z.outline), loss(z.material)))
+        hull = build_hull(
+            v.body.top_outline, v.body.side_outline, wh, top_zones, side_zones,
+            default_loss_db=loss("metal"), wheelhouse_loss_db=loss(v.body.wheelhouse_material),
+        )
+        n = r.angles_per_turn
+        angles = np.arange(n) * (2.0 * np.pi / n)
+        pos = np.stack([sensor_positions(w, angles) for w in wheels])
+        axis = np.broadcast_to(sensor_axes(angles, r.sensor.axis), pos.shape).copy()
+        inside = inside_hull(hull, pos[..., 0], pos[..., 1], pos[..., 2])
+        model = wheel_model or r.wheel_model
+        sensor_kind = r.sensor.pattern
+        tables: tuple = ()
+        label = "knife edge"
+        if model == "installed_pattern" and r.sensor.pattern == "dipole":
+            from core.wheel_patterns import table_for_wheel
+
+            tables = tuple(table_for_wheel(w, f, r.sensor.axis) for w in wheels)
+            sensor_kind = "table"
+            label = "installed pattern: " + "; ".join(sorted({t.provenance for t in tables}))
+        elif r.sensor.pattern == "isotropic":
+            label = "knife edge (isotropic sensor)"
+        rx_gain = r.receiver.gain_dbi
+        return cls(
+            vehicle=v,
+            hull=hull,
+            wheels=wheels,
+            angles_rad=angles,
+            sensor_pos=pos,
+            sensor_axis=axis,
+            sensor_inside=inside,
+            freq_hz=f,
+            wavelength_m=float(wavelength_m(f)),
+            eirp_dbm=r.sensor_eirp_dbm,
+            receiver_gain_dbi=rx_gain,
+            receiver_pattern=r.receiver.pattern,
+            sensor_kind=sensor_kind,
+            null_floor_db=r.null_floor_db,
+            sensitivity_dbm=r.receiver.sensitivity_dbm,
+            required_margin_db=r.required_margin_db,
+            worst_percentile=r.worst_case_percentile,
+            ground_reflection=r.ground_reflection if ground_reflection is None else ground_reflection,
+            road_eps=complex(road_permittivity(r.road_surface, f)),
+            use_wheel_loss=sensor_kind != "table",
+            sidewall_loss_db=loss("tire_sidewall"),
+            tread_loss_db=loss("tire_tread"),
+            wheel_tables=tables,
+            wheel_model_label=label,
+        )
+
+
+def spot_levels(scene: Scene, spots, axes=None) -> np.ndarray:
+    """Received level, dBm, for spots (S, 3) m and receiver axes (S, 3): array (S, W, A)."""
+    spots = np.atleast_2d(np.asarray(spots, float))
+    if axes is None:
+        a = np.asarray(scene.vehicle.radio.receiver.axis, float)
+        axes = np.broadcast_to(a / np.linalg.norm(a), spots.shape)
+    axes = np.atleast_2d(np.asarray(axes, float))
+    axes = axes / np.linalg.norm(axes, axis=1, keepdims=True)
+    out = np.empty((len(spots), len(scene.wheels), len(scene.angles_rad)))
+    for wi in range(len(scene.wheels)):
+        out[:, wi, :] = link_levels_for_wheel(scene, wi, spots, axes)
+    return out
+
+
+def vehicle_spot_arrays(v: Vehicle) -> tuple[list[str], np.ndarray, np.ndarray]:
+    """Names, resolved positions (S, 3) and unit antenna axes (S, 3) of the file's spots."""
+    names = [s.name for s in v.spots]
+    pos = np.array([v.resolve_spot(s) for s in v.spots], float).reshape(-1, 3)
+    ax = np.array([v.spot_axis(s) for s in v.spots], float).reshape(-1, 3)
+    return names, pos, ax
+
+
+@dataclass(frozen=True)
+class SpotScores:
+    """Scores of S spots over W wheels (levels dBm, margins dB, angles deg)."""
+
+    names: tuple[str, ...]
+    positions: np.ndarray  # (S, 3) m
+    wheel_ids: tuple[str, ...]
+    angles_deg: np.ndarray  # (A,)
+    levels_dbm: np.ndarray  # (S, W, A)
+    worst_dbm: np.ndarray  # (S, W)
+    worst_angle_deg: np.ndarray  # (S, W)
+    median_dbm: np.ndarray  # (S, W)
+    margin_db: np.ndarray  # (S,)
+    worst_wheel: np.ndarray  # (S,) index into wheel_ids
+    sensitivity_dbm: float
+    required_margin_db: float
+    near_field: np.ndarray = field(default=None)  # (S,) True when a sensor comes nearer than lambda/2pi
+
+    def order(self) -> np.ndarray:
+        """Spot indices best first: by margin, ties by the worst wheel's median."""
+        med = self.median_dbm[np.arange(len(self.names)), self.worst_wheel]
+        return np.lexsort((-med, -self.margin_db))
+
+    def swing_db(self) -> np.ndarray:
+        """Level swing over the turn, max - min, per (spot, wheel), dB."""
+        return self.levels_dbm.max(axis=2) - self.levels_dbm.min(axis=2)
+
+
+def worst_case(levels: np.ndarray, percentile: float) -> tuple[np.ndarray, np.ndarray]:
+    """Worst-case level over the last axis (minimum, or the given low percentile) and its index."""
+    idx = np.argmin(levels, axis=-1)
+    if percentile <= 0:
+        return np.take_along_axis(levels, idx[..., None], axis=-1)[..., 0], idx
+    value = np.percentile(levels, percentile, axis=-1)
+    below = np.where(levels <= value[..., None], levels, -np.inf)
+    return value, np.argmax(below, axis=-1)
+
+
+def score_levels(scene: Scene, levels: np.ndarray, names=None, positions=None) -> SpotScores:
+    """Turn levels (S, W, A) into worst cases, margins and worst wheels."""
+    worst, widx = worst_case(levels, scene.worst_percentile)
+    med = np.median(levels, axis=2)
+    margin_w = worst - scene.sensitivity_dbm - scene.required_margin_db
+    worst_wheel = np.argmin(margin_w, axis=1)
+    margin = margin_w[np.arange(len(levels)), worst_wheel]
+    s = len(levels)
+    positions = np.zeros((s, 3)) if positions is None else np.asarray(positions, float)
+    d_min = np.linalg.norm(positions[:, None, None, :] - scene.sensor_pos[None], axis=-1).min(axis=(1, 2))
+    return SpotScores(
+        names=tuple(names) if names is not None else tuple(f"spot {i + 1}" for i in range(s)),
+        positions=positions,
+        wheel_ids=scene.wheel_ids,
+        angles_deg=np.degrees(scene.angles_rad),
+        levels_dbm=levels,
+        worst_dbm=worst,
+        worst_angle_deg=np.degrees(scene.angles_rad)[widx],
+        median_dbm=med,
+        margin_db=margin,
+        worst_wheel=worst_wheel,
+        sensitivity_dbm=scene.sensitivity_dbm,
+        required_margin_db=scene.required_margin_db,
+        near_field=d_min < float(near_field_limit_m(scene.freq_hz)),
+    )
+
+
+def score_spots(scene: Scene, positions, axes=None, names=None) -> SpotScores:
+    """Levels and scores for spots at positions (S, 3) m (the single-spot path when S = 1)."""
+    positions = np.atleast_2d(np.asarray(positions, float))
+    return score_levels(scene, spot_levels(scene, positions, axes), names, positions)
+
+
+def score_vehicle(v: Vehicle, scene: Scene | None = None) -> SpotScores:
+    """Scores of the file's own spots."""
+    scene = scene or Scene.from_vehicle(v)
+    names, pos, ax = vehicle_spot_arrays(v)
+    return score_spots(scene, pos, ax, names)
+
+
+# ----- heatmaps ------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Heatmap:
+    """Margin over a grid: view 'top' (u = x, v = y at height ``fixed_m``) or 'side' (u = x, v = z at y = fixed_m)."""
+
+    view: str
+    fixed_m: float
+    u_m: np.ndarray  # (nu,) cell centres
+    v_m: np.ndarray  # (nv,)
+    step_m: float
+    margin_db: np.ndarray  # (nv, nu), nan outside the region
+    worst_wheel: np.ndarray  # (nv, nu) int, -1 outside
+    complete: bool = True
+
+    def points(self) -> np.ndarray:
+        """(nv, nu, 3) positions of the cells, m."""
+        uu, vv = np.meshgrid(self.u_m, self.v_m)
+        ff = np.full_like(uu, self.fixed_m)
+        return np.stack([uu, vv, ff] if self.view == "top" else [uu, ff, vv], axis=-1)
+
+    def best_cells(self, n: int = 10) -> list[tuple[float, float, float, float, int]]:
+        """The n best cells as (x, y, z, margin_db, worst_wheel), best first."""
+        pts = self.points().reshape(-1, 3)
+        m = self.margin_db.reshape(-1)
+        ok = np.nonzero(~np.isnan(m))[0]
+        best = ok[np.argsort(-m[ok], kind="stable")][:n]
+        ww = self.worst_wheel.reshape(-1)
+        return [(*pts[i], float(m[i]), int(ww[i])) for i in best]
+
+
+class Cancelled(Exception):
+    """Raised inside a long computation when its cancel flag was set."""
+
+
+def grid_for_region(region: Region, step_m: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
+    """Cell centres covering the region's bounding box, a mask of cells inside it, and the fixed coordinate."""
+    from core.geometry import points_in_polygon
+
+    poly = np.asarray(region.outline, float)
+    lo, hi = poly.min(axis=0), poly.max(axis=0)
+    nu = max(1, int(np.floor((hi[0] - lo[0]) / step_m + 1e-9)))
+    nv = max(1, int(np.floor((hi[1] - lo[1]) / step_m + 1e-9)))
+    u = lo[0] + (np.arange(nu) + 0.5) * (hi[0] - lo[0]) / nu
+    v = lo[1] + (np.arange(nv) + 0.5) * (hi[1] - lo[1]) / nv
+    uu, vv = np.meshgrid(u, v)
+    mask = points_in_polygon(uu, vv, poly)
+    fixed = region.height_m if region.view == "top" else region.lateral_m
+    return u, v, mask, float(fixed)
+
+
+def heatmap(
+    scene: Scene,
+    region: Region,
+    step_m: float = 0.05,
+    axis=None,
+    progress: Callable[[int, int], None] | None = None,
+    cancel: Callable[[], bool] | None = None,
+    chunk_links: int = CHUNK_LINKS,
+) -> Heatmap:
+    """Spot margin over a mounting region's grid (cell spacing ``step_m``, m).
+
+    Work is split into chunks of about ``chunk_links`` links; ``progress(done, total)`` is called
+    after each chunk (spots), and when ``cancel()`` returns True the computation raises Cancelled
+    before the next chunk.
+    """
+    if not step_m > 0:
+        raise ValueError("step_m must be positive")
+    u, v, mask, fixed = grid_for_region(region, step_m)
+    uu, vv = np.meshgrid(u, v)
+    ff = np.full_like(uu, fixed)
+    pts = np.stack([uu, vv, ff] if region.view == "top" else [uu, ff, vv], axis=-1)[mask]
+    margin = np.full(uu.shape, np.nan)
+    worst = np.full(uu.shape, -1, int)
+    m_flat = np.full(len(pts), np.nan)
+    w_flat = np.full(len(pts), -1, int)
+    links_per_spot = len(scene.wheels) * len(scene.angles_rad)
+    per_chunk = max(1, chunk_links // max(1, links_per_spot))
+    total = len(pts)
+    if axis is not None:
+        axis = np.broadcast_to(np.asarray(axis, float), (per_chunk, 3))
+    for start in range(0, total, per_chunk):
+        if cancel is not None and cancel():
+            raise Cancelled()
+        sl = slice(start, min(total, start + per_chunk))
+        ax = None if axis is None else axis[: sl.stop - sl.start]
+        sc = score_levels(scene, spot_levels(scene, pts[sl], ax), positions=pts[sl])
+        m_flat[sl] = sc.margin_db
+        w_flat[sl] = sc.worst_wheel
+        if progress is not None:
+            progress(sl.stop, total)
+    margin[mask] = m_flat
+    worst[mask] = w_flat
+    return Heatmap(region.view, fixed, u, v, step_m, margin, worst)
+
+
+__all__ = [
+    "Scene", "SpotScores", "Heatmap", "Cancelled", "spot_levels", "score_levels", "score_spots",
+    "score_vehicle", "heatmap", "grid_for_region", "worst_case", "vehicle_spot_arrays", "SHORT_DIPOLE_GAIN_DBI",
+]
