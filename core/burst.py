@@ -1,0 +1,106 @@
+"""Burst (time-diversity) success over vehicle speed.
+
+A sensor sends a burst of K frames spaced dt apart. At speed v the wheel turns by
+omega dt = v dt / R_rolling between frames, so the frames sample the angles
+theta0 + k v dt / R (k = 0..K-1). The burst succeeds when at least one frame's level clears
+the threshold (the receiver sensitivity). With the start angle theta0 uniformly distributed,
+P(success) is the share of start angles for which some frame clears it. Parked (v = 0) all
+frames fall on one angle; at the resonant speeds v_n = 2 pi n R / dt every frame lands on the
+same angle again, so the burst gains nothing from diversity there.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+START_ANGLES = 720
+
+
+@dataclass(frozen=True)
+class BurstResult:
+    """P(success) per wheel vs speed; speeds in m/s, radius in m."""
+
+    wheel_ids: tuple[str, ...]
+    speeds_mps: np.ndarray  # (V,)
+    success: np.ndarray  # (W, V) probability 0..1
+    parked: np.ndarray  # (W,) probability with all frames at one angle
+    resonant_mps: tuple[np.ndarray, ...]  # per wheel, resonant speeds inside the speed range
+
+    def worst(self) -> tuple[int, int]:
+        """(wheel index, speed index) of the lowest success probability."""
+        i = int(np.argmin(self.success))
+        return divmod(i, self.success.shape[1])
+
+
+def _periodic_interp(levels: np.ndarray, angles_rad: np.ndarray, query: np.ndarray) -> np.ndarray:
+    return np.interp(np.mod(query, 2 * np.pi), angles_rad, levels, period=2 * np.pi)
+
+
+def burst_success(
+    levels_dbm: np.ndarray,
+    angles_rad: np.ndarray,
+    threshold_dbm: float,
+    frames: int,
+    interval_s: float,
+    speeds_mps: np.ndarray,
+    rolling_radius_m: np.ndarray,
+    wheel_ids=None,
+    start_angles: int = START_ANGLES,
+) -> BurstResult:
+    """P(at least one of ``frames`` frames >= threshold) per wheel and speed.
+
+    Parameters
+    ----------
+    levels_dbm : (W, A) level over the turn per wheel, dBm (linear interpolation between angles)
+    angles_rad : (A,) wheel angles of the levels, rad
+    threshold_dbm : level a frame must reach, dBm (the receiver sensitivity)
+    frames : frames per burst K
+    interval_s : frame spacing dt, s
+    speeds_mps : (V,) vehicle speeds, m/s
+    rolling_radius_m : (W,) rolling radius per wheel, m
+    """
+    lv = np.atleast_2d(np.asarray(levels_dbm, float))
+    W = lv.shape[0]
+    speeds = np.asarray(speeds_mps, float)
+    radius = np.broadcast_to(np.asarray(rolling_radius_m, float), (W,))
+    th0 = np.arange(start_angles) * (2 * np.pi / start_angles)
+    k = np.arange(frames)
+    success = np.empty((W, len(speeds)))
+    parked = np.empty(W)
+    resonant = []
+    for w in range(W):
+        ok0 = _periodic_interp(lv[w], angles_rad, th0) >= threshold_dbm
+        parked[w] = ok0.mean()
+        step = speeds * interval_s / radius[w]  # (V,) rad between frames
+        ang = th0[None, :, None] + step[:, None, None] * k[None, None, :]  # (V, T, K)
+        ok = _periodic_interp(lv[w], angles_rad, ang.reshape(-1)).reshape(ang.shape) >= threshold_dbm
+        success[w] = ok.any(axis=2).mean(axis=1)
+        period = 2 * np.pi * radius[w] / interval_s
+        lo, hi = (speeds.min(), speeds.max()) if len(speeds) else (0.0, 0.0)
+        n = np.arange(max(1, int(np.ceil(lo / period))), int(np.floor(hi / period)) + 1)
+        resonant.append(n * period)
+    ids = tuple(wheel_ids) if wheel_ids is not None else tuple(str(i) for i in range(W))
+    return BurstResult(ids, speeds, success, parked, tuple(resonant))
+
+
+def speed_sweep(speed_min_mps: float, speed_max_mps: float, step_mps: float = 0.25) -> np.ndarray:
+    """Speeds from min to max inclusive (m/s); always includes 0 when min is 0."""
+    n = max(2, int(round((speed_max_mps - speed_min_mps) / step_mps)) + 1)
+    return np.linspace(speed_min_mps, speed_max_mps, n)
+
+
+def burst_for_spot(scene, scores, spot_index: int) -> BurstResult:
+    """Burst success of one scored spot with the scene's radio setup (threshold = sensitivity)."""
+    r = scene.vehicle.radio
+    return burst_success(
+        scores.levels_dbm[spot_index],
+        scene.angles_rad,
+        scene.sensitivity_dbm,
+        r.frames_per_burst,
+        r.frame_interval_s,
+        speed_sweep(r.speed_min_mps, r.speed_max_mps),
+        np.array([w.rolling_radius_m for w in scene.wheels]),
+        scene.wheel_ids,
+    )
