@@ -93,6 +93,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into e.g. head
+        sys.stderr.close()
+        return 0
 
 
 if __name__ == "__main__":

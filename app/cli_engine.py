@@ -1,0 +1,196 @@
+"""CLI commands of the engine: ``rank`` and ``heatmap``."""
+
+from __future__ import annotations
+
+import json
+import sys
+
+import numpy as np
+
+from core.vehicle import Spot, load_vehicle
+
+
+def _parse_spot(text: str) -> Spot:
+    """NAME=X,Y,Z in metres, vehicle axes."""
+    name, sep, rest = text.partition("=")
+    try:
+        if not sep or not name:
+            raise ValueError
+        x, y, z = (float(p) for p in rest.split(","))
+    except ValueError:
+        raise SystemExit(f"error: --spot {text!r}: expected NAME=X,Y,Z in metres, e.g. 'console=-1.3,0,0.5'") from None
+    return Spot(name=name, x_m=x, y_m=y, z_m=z)
+
+
+def _load_with_spots(args):
+    from core.vehicle import check_vehicle
+
+    v = load_vehicle(args.file)
+    extra = [_parse_spot(s) for s in (args.spot or [])]
+    radio = v.radio
+    if getattr(args, "angles", None):
+        radio = radio.model_copy(update={"angles_per_turn": args.angles})
+    if getattr(args, "no_ground", False):
+        radio = radio.model_copy(update={"ground_reflection": False})
+    if getattr(args, "wheel_model", None):
+        radio = radio.model_copy(update={"wheel_model": args.wheel_model})
+    v = v.model_copy(update={"spots": v.spots + tuple(extra), "radio": radio})
+    check_vehicle(v)
+    return v
+
+
+def rank_document(v, scores) -> dict:
+    """The documented JSON of ``wheelreach rank --json`` (see docs/cli-json.md)."""
+    order = scores.order()
+    spots = []
+    for rank, i in enumerate(order, 1):
+        wheels = []
+        for w, wid in enumerate(scores.wheel_ids):
+            wheels.append(
+                {
+                    "wheel": wid,
+                    "worst_dbm": round(float(scores.worst_dbm[i, w]), 3),
+                    "worst_angle_deg": round(float(scores.worst_angle_deg[i, w]), 3),
+                    "median_dbm": round(float(scores.median_dbm[i, w]), 3),
+                    "levels_dbm": [round(float(x), 3) for x in scores.levels_dbm[i, w]],
+                }
+            )
+        spots.append(
+            {
+                "rank": rank,
+                "name": scores.names[i],
+                "position_m": [round(float(c), 4) for c in scores.positions[i]],
+                "margin_db": round(float(scores.margin_db[i]), 3),
+                "worst_wheel": scores.wheel_ids[scores.worst_wheel[i]],
+                "worst_angle_deg": round(float(scores.worst_angle_deg[i, scores.worst_wheel[i]]), 3),
+                "near_field": bool(scores.near_field[i]),
+                "wheels": wheels,
+            }
+        )
+    return {
+        "vehicle": v.name,
+        "body_style": v.body_style,
+        "frequency_hz": v.radio.frequency_hz,
+        "sensitivity_dbm": scores.sensitivity_dbm,
+        "required_margin_db": scores.required_margin_db,
+        "angles_deg": [round(float(a), 4) for a in scores.angles_deg],
+        "spots": spots,
+    }
+
+
+def _cmd_rank(args) -> int:
+    from core.scoring import Scene, score_vehicle
+
+    v = _load_with_spots(args)
+    if not v.spots:
+        print("error: the file has no receiver spots; add some with --spot NAME=X,Y,Z", file=sys.stderr)
+        return 1
+    scene = Scene.from_vehicle(v)
+    scores = score_vehicle(v, scene)
+    if args.json:
+        print(json.dumps(rank_document(v, scores), indent=1))
+        return 0
+    print(f"{v.name} ({v.body_style}), {v.radio.frequency_hz / 1e6:.2f} MHz, sensitivity "
+          f"{scores.sensitivity_dbm:.1f} dBm, required margin {scores.required_margin_db:.1f} dB, "
+          f"{len(scores.angles_deg)} angles per turn, wheel model: {scene.wheel_model_label}")
+    print(f"{'rank':>4}  {'spot':<24} {'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}  {'worst wheel':<11} {'at deg':>6}")
+    for rank, i in enumerate(scores.order(), 1):
+        x, y, z = scores.positions[i]
+        w = scores.worst_wheel[i]
+        flag = "  (near field)" if scores.near_field[i] else ""
+        print(f"{rank:>4}  {scores.names[i]:<24} {x:7.3f} {y:7.3f} {z:7.3f} {scores.margin_db[i]:10.1f}  "
+              f"{scores.wheel_ids[w]:<11} {scores.worst_angle_deg[i, w]:6.0f}{flag}")
+    print("Results are approximate: confirm by detailed simulation and vehicle measurement.")
+    return 0
+
+
+class _Progress:
+    """A text progress bar on stderr for long grids."""
+
+    def __init__(self, enabled: bool):
+        self.enabled = enabled
+
+    def __call__(self, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        n = 30
+        k = int(n * done / max(total, 1))
+        sys.stderr.write(f"\r[{'#' * k}{'.' * (n - k)}] {done}/{total} spots")
+        if done >= total:
+            sys.stderr.write("\n")
+        sys.stderr.flush()
+
+
+def _cmd_heatmap(args) -> int:
+    from core.scoring import Scene, heatmap
+    from core.vehicle import Region
+
+    v = _load_with_spots(args)
+    regions = [r for r in v.regions if r.view == args.view]
+    if args.region:
+        regions = [r for r in regions if r.name == args.region]
+    if not regions:
+        print(f"error: {args.file}: regions: no {args.view}-view region"
+              + (f" named {args.region!r}" if args.region else ""), file=sys.stderr)
+        return 1
+    region = regions[0]
+    if args.view == "top" and args.height is not None:
+        region = Region(**{**region.model_dump(), "height_m": args.height})
+    if args.view == "side" and args.y is not None:
+        region = Region(**{**region.model_dump(), "lateral_m": args.y})
+    scene = Scene.from_vehicle(v)
+    show = args.progress or (sys.stderr.isatty() and not args.quiet)
+    hm = heatmap(scene, region, args.step, progress=_Progress(show))
+    fixed = "z" if hm.view == "top" else "y"
+    cells = int(np.isfinite(hm.margin_db).sum())
+    ok = int((hm.margin_db >= 0).sum())
+    print(f"{v.name}: {region.name!r}, {hm.view} view at {fixed} = {hm.fixed_m:.3f} m, step {args.step * 1000:.0f} mm, "
+          f"{cells} cells, {ok} with margin >= 0 dB ({100.0 * ok / max(cells, 1):.0f} %)")
+    print(f"{'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}  worst wheel")
+    for x, y, z, m, w in hm.best_cells(args.top):
+        print(f"{x:7.3f} {y:7.3f} {z:7.3f} {m:10.1f}  {scene.wheel_ids[w]}")
+    if args.csv:
+        from core.vehicle import atomic_write_text
+        from pathlib import Path
+
+        lines = ["x_m,y_m,z_m,margin_db,worst_wheel"]
+        pts = hm.points().reshape(-1, 3)
+        for p, m, w in zip(pts, hm.margin_db.reshape(-1), hm.worst_wheel.reshape(-1)):
+            if np.isfinite(m):
+                lines.append(f"{p[0]:.4f},{p[1]:.4f},{p[2]:.4f},{m:.3f},{scene.wheel_ids[w]}")
+        atomic_write_text(Path(args.csv), "\n".join(lines) + "\n")
+        print(f"wrote {args.csv}")
+    return 0
+
+
+def register(sub) -> None:
+    r = sub.add_parser("rank", help="rank the receiver spots by worst-case link margin")
+    r.add_argument("file")
+    r.add_argument("--spot", action="append", metavar="NAME=X,Y,Z", help="add a spot (m, vehicle axes)")
+    r.add_argument("--angles", type=int, metavar="N", help="wheel angles per turn (default: the file's)")
+    r.add_argument("--no-ground", action="store_true", help="leave out the road reflection")
+    r.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern"], help="override the file's wheel model")
+    r.add_argument("--json", action="store_true", help="print the ranking as JSON with per-angle levels")
+    r.set_defaults(func=_cmd_rank)
+    h = sub.add_parser("heatmap", help="link margin over a mounting region grid")
+    h.add_argument("file")
+    h.add_argument("--view", choices=["top", "side"], default="top")
+    h.add_argument("--region", help="region name (default: the first of the view)")
+    h.add_argument("--step", type=float, default=0.05, help="cell spacing, m (default 0.05)")
+    h.add_argument("--height", type=float, help="top view: height z of the grid, m (default: the region's)")
+    h.add_argument("--y", type=float, help="side view: lateral position y of the grid, m (default: the region's)")
+    h.add_argument("--top", type=int, default=10, help="how many best cells to print")
+    h.add_argument("--csv", metavar="OUT.csv", help="write every cell to a CSV file")
+    h.add_argument("--progress", action="store_true", help="show a progress bar even when not on a terminal")
+    h.add_argument("--quiet", action="store_true", help="no progress bar")
+    h.add_argument("--spot", action="append", help=argparse_suppress())
+    h.add_argument("--angles", type=int, metavar="N", help="wheel angles per turn")
+    h.add_argument("--no-ground", action="store_true", help="leave out the road reflection")
+    h.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern"])
+    h.set_defaults(func=_cmd_heatmap)
+
+
+def argparse_suppress():
+    import argparse
+
+    return argparse.SUPPRESS
