@@ -437,3 +437,107 @@ def test_docs_schema_is_current():
     on_disk = json.loads((ROOT / "docs" / "vehicle-format.json").read_text())
     assert on_disk == json_schema()
     assert FORMAT_TAG in on_disk["title"]
+
+
+# ----- atomic save (issue 2 item 7) ------------------------------------------------------------
+class _Boom(OSError):
+    pass
+
+
+@pytest.fixture
+def saved(tmp_path):
+    """A previous good file on disk, its bytes, and a changed vehicle to save over it."""
+    f = tmp_path / "car.json"
+    v = load_vehicle(SEDAN)
+    save_vehicle(v, f)
+    changed = v.model_copy(update={"name": "Demo sedan, edited"})
+    return f, f.read_bytes(), changed
+
+
+def _only_file_left(f: Path) -> None:
+    assert sorted(os.listdir(f.parent)) == [f.name], "no temporary file may be left behind"
+
+
+def test_save_interrupted_in_fsync_leaves_previous_file(saved, monkeypatch):
+    f, before, changed = saved
+
+    def fsync(fd):
+        raise _Boom("disk went away during fsync")
+
+    monkeypatch.setattr(os, "fsync", fsync)
+    with pytest.raises(_Boom):
+        save_vehicle(changed, f)
+    assert f.read_bytes() == before
+    _only_file_left(f)
+
+
+def test_save_interrupted_halfway_through_write_leaves_previous_file(saved, monkeypatch):
+    f, before, changed = saved
+    real_fdopen = os.fdopen
+    seen: dict = {}
+
+    class HalfWriter:
+        """Writes half of the data to the temporary file, then fails like a full disk."""
+
+        def __init__(self, fobj):
+            self.fobj = fobj
+
+        def write(self, data):
+            self.fobj.write(data[: len(data) // 2])
+            self.fobj.flush()
+            seen["during"] = sorted(os.listdir(f.parent))
+            raise _Boom("No space left on device")
+
+        def __getattr__(self, name):
+            return getattr(self.fobj, name)
+
+        def __enter__(self):
+            return self
+
+        def __exit__(self, *exc):
+            self.fobj.close()
+            return False
+
+    monkeypatch.setattr(os, "fdopen", lambda fd, *a, **k: HalfWriter(real_fdopen(fd, *a, **k)))
+    with pytest.raises(_Boom):
+        save_vehicle(changed, f)
+    # while writing, the half-written data lived in a temporary file in the same folder
+    assert len(seen["during"]) == 2 and f.name in seen["during"]
+    assert f.read_bytes() == before
+    _only_file_left(f)
+
+
+def test_save_interrupted_before_rename_leaves_previous_file(saved, monkeypatch):
+    f, before, changed = saved
+
+    def replace(src, dst):
+        raise KeyboardInterrupt  # not an Exception: the clean-up must still run
+
+    monkeypatch.setattr(os, "replace", replace)
+    with pytest.raises(KeyboardInterrupt):
+        save_vehicle(changed, f)
+    assert f.read_bytes() == before
+    _only_file_left(f)
+
+
+def test_save_fsyncs_before_it_replaces(saved, monkeypatch):
+    f, before, changed = saved
+    calls = []
+    real_fsync, real_replace = os.fsync, os.replace
+    monkeypatch.setattr(os, "fsync", lambda fd: (calls.append("fsync"), real_fsync(fd))[1])
+    monkeypatch.setattr(os, "replace", lambda a, b: (calls.append(("replace", Path(a).parent, Path(b))), real_replace(a, b))[1])
+    save_vehicle(changed, f)
+    assert calls[0] == "fsync"
+    assert calls[1] == ("replace", f.parent, f)  # temporary file in the same folder, renamed over the target
+    assert load_vehicle(f) == changed and f.read_bytes() != before
+    _only_file_left(f)
+
+
+def test_invalid_vehicle_is_not_saved(saved):
+    f, before, changed = saved
+    # model_copy does not validate; save_vehicle must check before it writes anything
+    bad = changed.model_copy(update={"wheels": changed.wheels + (changed.wheels[0],)})
+    with pytest.raises(VehicleFileError, match="used twice"):
+        save_vehicle(bad, f)
+    assert f.read_bytes() == before
+    _only_file_left(f)
