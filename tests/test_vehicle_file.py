@@ -541,3 +541,26 @@ def test_invalid_vehicle_is_not_saved(saved):
         save_vehicle(bad, f)
     assert f.read_bytes() == before
     _only_file_left(f)
+
+
+# ----- the human reference in docs/vehicle-format.md --------------------------------------------
+def _doc_text() -> str:
+    return (ROOT / "docs" / "vehicle-format.md").read_text()
+
+
+def test_docs_minimal_example_is_a_valid_file():
+    text = _doc_text()
+    block = text.split("```json", 1)[1].split("```", 1)[0]
+    v = parse_vehicle(block, "docs/vehicle-format.md")
+    assert len(v.wheels) == 4 and v.radio.frequency_hz == 433.92e6
+    # ISO 4000-1 / ETRTO: 205/55R16 -> 16 x 25.4 + 2 x 205 x 0.55 = 406.4 + 225.5 = 631.9 mm
+    assert v.wheels[0].tire_size.outer_diameter_m == pytest.approx(0.6319, abs=1e-9)
+
+
+def test_docs_name_every_key_of_the_format():
+    from core.vehicle import Body, ExplicitTire, Radio, Receiver, Region, Sensor, Spot, UserMaterial, Wheel, Zone
+
+    text = _doc_text()
+    models = (Vehicle, Body, Zone, UserMaterial, ExplicitTire, Wheel, Spot, Region, Sensor, Receiver, Radio)
+    missing = [f"{m.__name__}.{k}" for m in models for k in m.model_fields if f"`{k}`" not in text]
+    assert missing == [], f"docs/vehicle-format.md does not describe: {missing}"
