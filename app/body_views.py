@@ -1,0 +1,333 @@
+"""Top view and side view of the body: outlines, zones, wheels, mounting region and receiver spots.
+
+Both views are editable: drag an outline vertex, click an outline segment to add a vertex,
+right-click a vertex to remove it; drag a wheel; drag a receiver spot (live margin while dragging,
+the edit is made when the mouse is released). The views write user input to the document only;
+they redraw from the document's signals. A spot's x is shared by both views.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
+from PySide6.QtGui import QBrush, QPen, QPolygonF
+from PySide6.QtWidgets import QGraphicsEllipseItem, QGraphicsPolygonItem, QGraphicsRectItem, QLabel, QVBoxLayout, QWidget
+
+from app import edits
+from app.document import Document
+from app.look import BODY_COLOUR, material_colour
+
+SPOT_BRUSH = pg.mkBrush(255, 255, 255, 220)
+SPOT_PEN = pg.mkPen(20, 20, 20, width=1.5)
+SELECTED_BRUSH = pg.mkBrush(250, 200, 40, 255)
+SELECTED_PEN = pg.mkPen(0, 0, 0, width=2.5)
+
+
+def _cosmetic(pen: QPen) -> QPen:
+    pen = QPen(pen)
+    pen.setCosmetic(True)
+    return pen
+
+
+class SpotMarker(pg.TargetItem):
+    """A draggable receiver spot; emits sigClicked on a left click."""
+
+    sigClicked = Signal(object)
+
+    def mouseClickEvent(self, ev):
+        if ev.button() == Qt.MouseButton.LeftButton and not self.moving:
+            ev.accept()
+            self.sigClicked.emit(self)
+            return
+        super().mouseClickEvent(ev)
+
+    def mouseDragEvent(self, ev):
+        if ev.isStart() and ev.button() == Qt.MouseButton.LeftButton:
+            self.sigClicked.emit(self)
+        super().mouseDragEvent(ev)
+
+
+class _HandleFreeEllipse(pg.EllipseROI):
+    """A circle that can only be dragged (the tire in the side view)."""
+
+    def __init__(self, pos, size, **kw):
+        super().__init__(pos, size, **kw)
+        for h in list(self.getHandles()):
+            self.removeHandle(h)
+
+
+class BodyView(QWidget):
+    """One view of the body: 'top' (x, y) or 'side' (x, z), in metres; readouts in mm."""
+
+    def __init__(self, doc: Document, view: str, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.doc, self.view = doc, view
+        self._sync = False  # True while the view moves its own items (no edits, no live scoring)
+        self._rebuild_pending = False
+        self.markers: dict[str, SpotMarker] = {}
+        self.body_roi: pg.PolyLineROI | None = None
+        self.zone_roi: pg.PolyLineROI | None = None
+        self.region_roi: pg.PolyLineROI | None = None
+        self.wheel_rois: dict[str, pg.ROI] = {}
+        self._items: list = []
+
+        self.plot = pg.PlotWidget(background="w")
+        self.plot.setAspectLocked(True)
+        self.plot.showGrid(x=True, y=True, alpha=0.25)
+        vert = "y, left" if view == "top" else "z, up"
+        for side, text in (("bottom", "x, forward"), ("left", vert)):
+            ax = self.plot.getAxis(side)
+            ax.enableAutoSIPrefix(False)
+            self.plot.setLabel(side, text, units="m")
+        title = "Top view (from above)" if view == "top" else "Side view (left side)"
+        self.plot.setTitle(title, size="10pt")
+        self.plot.setMenuEnabled(False)
+        self.legend = pg.LegendItem(offset=(8, 8), labelTextSize="8pt", brush=pg.mkBrush(255, 255, 255, 200))
+        self.legend.setParentItem(self.plot.getPlotItem().vb)
+        self.readout = QLabel(" ")
+        self.readout.setToolTip("Cursor position in vehicle axes, mm (origin on the ground below the front axle)")
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.setSpacing(2)
+        lay.addWidget(self.plot, 1)
+        lay.addWidget(self.readout)
+        self.plot.scene().sigMouseMoved.connect(self._mouse_moved)
+
+        doc.vehicleChanged.connect(self._on_vehicle_changed)
+        doc.liveScore.connect(self._on_live)
+        doc.selectionChanged.connect(self._restyle_markers)
+        doc.zoneSelectionChanged.connect(lambda _i: self.schedule_rebuild())
+        doc.regionSelectionChanged.connect(lambda _i: self.schedule_rebuild())
+        self.rebuild()
+        self.plot.autoRange(padding=0.06)
+
+    # ----- coordinates -----------------------------------------------------------------
+    def to_view(self, pos) -> tuple[float, float]:
+        """(x, y, z) m -> this view's plane coordinates."""
+        return (pos[0], pos[1]) if self.view == "top" else (pos[0], pos[2])
+
+    def from_view(self, u: float, w: float, pos) -> tuple[float, float, float]:
+        """This view's plane coordinates plus the spot's other coordinate -> (x, y, z) m."""
+        return (u, w, pos[2]) if self.view == "top" else (u, pos[1], w)
+
+    def _mouse_moved(self, scene_pos) -> None:
+        vb = self.plot.getPlotItem().vb
+        if not vb.sceneBoundingRect().contains(scene_pos):
+            return
+        p = vb.mapSceneToView(scene_pos)
+        name = "y" if self.view == "top" else "z"
+        self.readout.setText(f"cursor  x {p.x() * 1000:.0f} mm   {name} {p.y() * 1000:.0f} mm")
+
+    # ----- redraw ----------------------------------------------------------------------
+    def _on_vehicle_changed(self) -> None:
+        self._place_markers()
+        self.schedule_rebuild()
+
+    def schedule_rebuild(self) -> None:
+        """Rebuild the editable items after the current event (an item may be handling a mouse event now)."""
+        if not self._rebuild_pending:
+            self._rebuild_pending = True
+            QTimer.singleShot(0, self.rebuild)
+
+    def rebuild(self) -> None:
+        self._rebuild_pending = False
+        self._sync = True
+        try:
+            pi = self.plot.getPlotItem()
+            for it in self._items:
+                pi.removeItem(it)
+            self._items = []
+            self.markers = {}
+            self.wheel_rois = {}
+            self.legend.clear()
+            v = self.doc.vehicle
+            self._draw_zones(v)
+            self._draw_region(v)
+            self._draw_body(v)
+            self._draw_wheels()
+            self._draw_spots()
+        finally:
+            self._sync = False
+
+    def _add(self, item):
+        self.plot.addItem(item)
+        self._items.append(item)
+        return item
+
+    def _draw_body(self, v) -> None:
+        pts = v.body.top_outline if self.view == "top" else v.body.side_outline
+        roi = pg.PolyLineROI([list(p) for p in pts], closed=True, movable=False, pen=pg.mkPen(BODY_COLOUR, width=2))
+        roi.setZValue(10)
+        roi.sigRegionChangeFinished.connect(self._body_edited)
+        self.body_roi = self._add(roi)
+
+    def _draw_zones(self, v) -> None:
+        seen = set()
+        for i, z in enumerate(v.zones):
+            if z.view != self.view:
+                continue
+            poly = QGraphicsPolygonItem(QPolygonF([QPointF(*p) for p in z.outline]))
+            poly.setBrush(QBrush(material_colour(z.material)))
+            poly.setPen(_cosmetic(pg.mkPen(material_colour(z.material, 200), width=1)))
+            poly.setZValue(1)
+            poly.setToolTip(f"{z.name}: {z.material}")
+            self._add(poly)
+            if z.material not in seen:
+                seen.add(z.material)
+                sample = pg.PlotDataItem([0, 1], [0, 0], pen=pg.mkPen(material_colour(z.material, 200)),
+                                         fillLevel=0, fillBrush=pg.mkBrush(material_colour(z.material, 140)))
+                self.legend.addItem(sample, z.material)
+            if i == self.doc.selected_zone:
+                roi = pg.PolyLineROI([list(p) for p in z.outline], closed=True, movable=True,
+                                     pen=pg.mkPen(material_colour(z.material, 255), width=2))
+                roi.setZValue(12)
+                roi.sigRegionChangeFinished.connect(lambda r, i=i: self._zone_edited(i, r))
+                self.zone_roi = self._add(roi)
+        self.legend.setVisible(bool(seen))
+
+    def _draw_region(self, v) -> None:
+        self.region_roi = None
+        if not v.regions:
+            return
+        i = self.doc.region_index
+        r = v.regions[i]
+        if r.view != self.view:
+            return
+        roi = pg.PolyLineROI([list(p) for p in r.outline], closed=True, movable=True,
+                             pen=pg.mkPen(90, 90, 90, width=1.5, style=Qt.PenStyle.DashLine))
+        roi.setZValue(5)
+        roi.setToolTip(f"Mounting region '{r.name}' (heatmap area)")
+        roi.sigRegionChangeFinished.connect(lambda rr, i=i: self._region_edited(i, rr))
+        self.region_roi = self._add(roi)
+
+    def _draw_wheels(self) -> None:
+        tire_pen = pg.mkPen(30, 30, 30, width=1.5)
+        rim_pen = _cosmetic(pg.mkPen(110, 110, 110, width=1))
+        for w in self.doc.scene.wheels:
+            cx, cy, cz = w.centre
+            r, rr = w.tire_radius_m, w.rim_radius_m
+            if self.view == "top":
+                roi = pg.ROI((cx - r, cy - 0.5 * w.tire_width_m), (2 * r, w.tire_width_m), movable=True,
+                             rotatable=False, resizable=False, removable=False, pen=tire_pen)
+                rim = QGraphicsRectItem(QRectF(r - rr, 0.5 * (w.tire_width_m - w.rim_width_m), 2 * rr, w.rim_width_m), roi)
+            else:
+                roi = _HandleFreeEllipse((cx - r, cz - r), (2 * r, 2 * r), movable=True, rotatable=False,
+                                         resizable=False, pen=tire_pen)
+                rim = QGraphicsEllipseItem(QRectF(r - rr, r - rr, 2 * rr, 2 * rr), roi)
+            rim.setPen(rim_pen)
+            rim.setBrush(QBrush(pg.mkColor(200, 200, 200, 120)))
+            roi.setZValue(8)
+            roi.setToolTip(f"wheel {w.id}: drag to move (tire {2 * r * 1000:.0f} mm, rim {2 * rr * 1000:.0f} mm)")
+            label = pg.TextItem(w.id, color=(60, 60, 60), anchor=(0.5, 0.5))
+            label.setParentItem(roi)
+            label.setPos(r, r if self.view == "side" else 0.5 * w.tire_width_m)
+            roi.sigRegionChangeFinished.connect(lambda rr_, wid=w.id: self._wheel_edited(wid, rr_))
+            self.wheel_rois[w.id] = self._add(roi)
+
+    def _draw_spots(self) -> None:
+        sc = self.doc.scores
+        for i, name in enumerate(sc.names):
+            m = SpotMarker(self.to_view(sc.positions[i]), size=11, symbol="o", movable=True,
+                           label=name, labelOpts={"offset": (8, -8), "color": (20, 20, 20), "anchor": (0, 1)})
+            m.setZValue(20)
+            m.sigPositionChanged.connect(lambda mk, n=name: self._spot_dragging(n, mk))
+            m.sigPositionChangeFinished.connect(lambda mk, n=name: self._spot_dropped(n, mk))
+            m.sigClicked.connect(lambda _mk, n=name: self.doc.select(n))
+            m.setToolTip(f"receiver spot '{name}': drag to move, click to select")
+            self.markers[name] = self._add(m)
+        self._restyle_markers(self.doc.selected)
+
+    def _restyle_markers(self, selected: str) -> None:
+        for name, m in self.markers.items():
+            sel = name == selected
+            m.setBrush(SELECTED_BRUSH if sel else SPOT_BRUSH)
+            m.setPen(SELECTED_PEN if sel else SPOT_PEN)
+            m.setZValue(21 if sel else 20)
+
+    def _place_markers(self) -> None:
+        """Move the markers to the document's spot positions (no rebuild)."""
+        sc = self.doc.scores
+        if set(sc.names) != set(self.markers):
+            return
+        self._sync = True
+        try:
+            for i, name in enumerate(sc.names):
+                self.markers[name].setPos(*self.to_view(sc.positions[i]))
+        finally:
+            self._sync = False
+
+    # ----- user edits -> document ------------------------------------------------------
+    def _spot_dragging(self, name: str, marker: SpotMarker) -> None:
+        if self._sync:
+            return
+        p = marker.pos()
+        u, w = edits.snap(p.x(), self.doc.snap_m), edits.snap(p.y(), self.doc.snap_m)
+        if (u, w) != (p.x(), p.y()):
+            self._sync = True
+            try:
+                marker.setPos(u, w)
+            finally:
+                self._sync = False
+        base = self.doc.live[1].positions[0] if self.doc.live and self.doc.live[0] == name else self.doc.spot_position(name)
+        self.doc.live_move(name, self.from_view(u, w, base))
+
+    def _spot_dropped(self, name: str, marker: SpotMarker) -> None:
+        if self._sync:
+            return
+        p = marker.pos()
+        u, w = edits.snap(p.x(), self.doc.snap_m), edits.snap(p.y(), self.doc.snap_m)
+        base = self.doc.live[1].positions[0] if self.doc.live and self.doc.live[0] == name else self.doc.spot_position(name)
+        pos = self.from_view(u, w, base)
+        self.doc.apply(lambda v: edits.move_spot(v, name, pos), f"Move spot '{name}'")
+
+    def _on_live(self, name: str, sc) -> None:
+        m = self.markers.get(name)
+        if m is None:
+            return
+        target = self.to_view(sc.positions[0])
+        cur = m.pos()
+        if (cur.x(), cur.y()) != target:
+            self._sync = True
+            try:
+                m.setPos(*target)
+            finally:
+                self._sync = False
+
+    def _roi_points(self, roi: pg.ROI) -> list[tuple[float, float]]:
+        pts = []
+        for _name, p in roi.getLocalHandlePositions():
+            q = roi.mapToParent(p)
+            pts.append((edits.snap(q.x(), self.doc.snap_m), edits.snap(q.y(), self.doc.snap_m)))
+        return pts
+
+    def _body_edited(self, roi) -> None:
+        if self._sync:
+            return
+        key = "top_outline" if self.view == "top" else "side_outline"
+        pts = self._roi_points(roi)
+        self.doc.apply(lambda v: edits.set_outline(v, key, pts), f"Edit {self.view} outline")
+
+    def _zone_edited(self, index: int, roi) -> None:
+        if self._sync:
+            return
+        pts = self._roi_points(roi)
+        name = self.doc.vehicle.zones[index].name
+        self.doc.apply(lambda v: edits.set_zone_outline(v, index, pts), f"Edit zone '{name}'")
+
+    def _region_edited(self, index: int, roi) -> None:
+        if self._sync:
+            return
+        pts = self._roi_points(roi)
+        name = self.doc.vehicle.regions[index].name
+        self.doc.apply(lambda v: edits.set_region_outline(v, index, pts), f"Edit region '{name}'")
+
+    def _wheel_edited(self, wheel_id: str, roi) -> None:
+        if self._sync:
+            return
+        w = next(g for g in self.doc.scene.wheels if g.id == wheel_id)
+        p = roi.pos()
+        x = edits.snap(p.x() + w.tire_radius_m, self.doc.snap_m)
+        y = edits.snap(p.y() + 0.5 * w.tire_width_m, self.doc.snap_m) if self.view == "top" else w.centre[1]
+        self.doc.apply(lambda v: edits.move_wheel(v, wheel_id, x, y), f"Move wheel {wheel_id}")
+

@@ -1,0 +1,48 @@
+"""Colours and pens of the program, all taken from pyqtgraph's colour map library."""
+
+from __future__ import annotations
+
+from functools import lru_cache
+
+import pyqtgraph as pg
+from PySide6.QtGui import QColor
+
+#: diverging map for link margin, centred on 0 dB (CET-D1 from the CET perceptual library)
+MARGIN_MAP = "CET-D1"
+#: categorical palette for materials and wheels
+PALETTE = "PAL-relaxed_bright"
+#: the body outline and axes
+BODY_COLOUR = QColor(40, 40, 40)
+
+
+@lru_cache(maxsize=None)
+def _palette(name: str) -> tuple[QColor, ...]:
+    cols = [QColor(c) for c in pg.colormap.get(name).getColors(mode="qcolor")]
+    if len(cols) > 1 and cols[0] == cols[-1]:
+        cols = cols[:-1]  # the palette closes on its first colour
+    return tuple(cols)
+
+
+# palette entries per material (glass blue, plastic orange, open green, ...)
+_MATERIAL_INDEX = {"glass": 5, "plastic": 0, "open": 3, "composite": 6, "metal": 8, "tire_sidewall": 2, "tire_tread": 7}
+# palette entries for wheel lines, most distinct first (the light yellow entry is left out)
+_WHEEL_INDEX = (5, 8, 3, 6, 0, 4, 7, 2)
+
+
+def material_colour(name: str, alpha: int = 90) -> QColor:
+    """Fill colour of a panel zone of material ``name``."""
+    pal = _palette(PALETTE)
+    i = _MATERIAL_INDEX.get(name, 4 + sum(map(ord, name)) % 4)
+    c = QColor(pal[i % len(pal)])
+    c.setAlpha(alpha)
+    return c
+
+
+def wheel_colour(i: int) -> QColor:
+    """Line colour of wheel i (levels, burst and distinctness figures)."""
+    pal = _palette("PAL-relaxed")
+    return QColor(pal[_WHEEL_INDEX[i % len(_WHEEL_INDEX)] % len(pal)])
+
+
+def margin_colormap() -> pg.ColorMap:
+    return pg.colormap.get(MARGIN_MAP)
