@@ -425,7 +425,8 @@ def check_vehicle(v: Vehicle) -> None:
         t = w.tire_size
         if t.outer_diameter_m > MAX_TIRE_DIAMETER_M:
             raise VehicleFileError(
-                f"tire is {t.outer_diameter_m:.3f} m across; the limit is {MAX_TIRE_DIAMETER_M:.0f} m", f"wheels[{i}].tire"
+                f"tire is {t.outer_diameter_m:.3f} m across; the limit is {MAX_TIRE_DIAMETER_M:.0f} m",
+                f"wheels[{i}].tire",
             )
         if t.rim_diameter_m >= t.outer_diameter_m:
             raise VehicleFileError("rim diameter must be smaller than the overall diameter", f"wheels[{i}].tire")

@@ -525,7 +525,12 @@ def test_save_fsyncs_before_it_replaces(saved, monkeypatch):
     calls = []
     real_fsync, real_replace = os.fsync, os.replace
     monkeypatch.setattr(os, "fsync", lambda fd: (calls.append("fsync"), real_fsync(fd))[1])
-    monkeypatch.setattr(os, "replace", lambda a, b: (calls.append(("replace", Path(a).parent, Path(b))), real_replace(a, b))[1])
+
+    def replace(a, b):
+        calls.append(("replace", Path(a).parent, Path(b)))
+        return real_replace(a, b)
+
+    monkeypatch.setattr(os, "replace", replace)
     save_vehicle(changed, f)
     assert calls[0] == "fsync"
     assert calls[1] == ("replace", f.parent, f)  # temporary file in the same folder, renamed over the target
