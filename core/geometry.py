@@ -295,89 +295,101 @@ class Crossings:
     start_inside: np.ndarray  # (N,) bool
 
 
-def hull_crossings(hull: Hull, a: np.ndarray, b: np.ndarray, start_inside=None) -> Crossings:
+def start_bits(hull: Hull, x, y, z) -> np.ndarray:
+    """Packed membership bits of points: bit 0 top outline, bit 1 side outline, and per wheelhouse h
+    bit 2+2h its arch, bit 3+2h its lateral half-space (int64, any shape)."""
+    x, y, z = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float), np.asarray(z, float))
+    bits = points_in_polygon(x, y, hull.top).astype(np.int64)
+    bits |= points_in_polygon(x, z, hull.side).astype(np.int64) << 1
+    if len(hull.wh_xc):
+        arch, lat = in_wheelhouse_parts(hull, x, y, z)
+        shifts = 2 + 2 * np.arange(len(hull.wh_xc), dtype=np.int64)
+        bits |= np.bitwise_or.reduce(arch.astype(np.int64) << shifts, axis=-1)
+        bits |= np.bitwise_or.reduce(lat.astype(np.int64) << (shifts + 1), axis=-1)
+    return bits
+
+
+def _hull_from_bits(bits: np.ndarray, n_wheelhouses: int) -> np.ndarray:
+    """Inside-hull flag from packed membership bits."""
+    arch_bits = sum(1 << (2 + 2 * h) for h in range(n_wheelhouses))
+    in_wh = ((bits >> 2) & (bits >> 3) & arch_bits) != 0 if n_wheelhouses else False
+    return ((bits & 3) == 3) & ~in_wh
+
+
+def hull_crossings(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | None = None) -> Crossings:
     """All crossings of the hull surface by the segments a -> b (N, 3) each, m.
 
-    ``start_inside`` may be given when known (e.g. shared start points), else it is computed.
+    ``bits0`` may give the start points' packed membership bits (:func:`start_bits`) when they
+    are known already (e.g. shared sensor positions); otherwise they are computed.
     """
     a = np.asarray(a, float)
     b = np.asarray(b, float)
     n = len(a)
     d = b - a
-    lo = np.minimum(a, b).min(axis=0) if n else np.zeros(3)
-    hi = np.maximum(a, b).max(axis=0) if n else np.zeros(3)
+    lo = np.minimum(a.min(axis=0), b.min(axis=0)) if n else np.zeros(3)
+    hi = np.maximum(a.max(axis=0), b.max(axis=0)) if n else np.zeros(3)
     t_top = _edge_hits(a[:, :2], d[:, :2], hull.top, lo[[0, 1]], hi[[0, 1]])
     t_side = _edge_hits(a[:, [0, 2]], d[:, [0, 2]], hull.side, lo[[0, 2]], hi[[0, 2]])
     t_arch, idx_arch, t_wall, idx_wall = _wheelhouse_hits(hull, a, d, lo, hi)
-    ts = [t_top, t_side, t_arch, t_wall]
-    kinds = np.concatenate(
+    ebits = np.concatenate(
         [
-            np.full(t_top.shape[1], KIND_TOP),
-            np.full(t_side.shape[1], KIND_SIDE),
-            np.full(t_arch.shape[1], KIND_WH_ARCH),
-            np.full(t_wall.shape[1], KIND_WH_WALL),
+            np.full(t_top.shape[1], 1, np.int64),
+            np.full(t_side.shape[1], 2, np.int64),
+            np.left_shift(1, 2 + 2 * idx_arch.astype(np.int64)),
+            np.left_shift(1, 3 + 2 * idx_wall.astype(np.int64)),
         ]
     )
-    whidx = np.concatenate([np.full(t_top.shape[1] + t_side.shape[1], -1), idx_arch, idx_wall])
-    t_all = np.concatenate(ts, axis=1)
-    # drop columns that no segment hits
+    t_all = np.concatenate([t_top, t_side, t_arch, t_wall], axis=1)
+    if bits0 is None:
+        bits0 = start_bits(hull, a[:, 0], a[:, 1], a[:, 2])
+    bits0 = np.asarray(bits0, np.int64)
+    n_wh = len(hull.wh_xc)
+    hull0 = _hull_from_bits(bits0, n_wh)
     used = ~np.all(np.isnan(t_all), axis=0) if n else np.zeros(t_all.shape[1], bool)
-    t_all, kinds, whidx = t_all[:, used], kinds[used], whidx[used]
-    if start_inside is None:
-        start_inside = inside_hull(hull, a[:, 0], a[:, 1], a[:, 2])
+    t_all, ebits = t_all[:, used], ebits[used]
     k = t_all.shape[1]
     if k == 0:
         z = np.zeros((n, 0))
-        return Crossings(z, z, z.astype(np.int8), np.asarray(start_inside, bool))
-
-    order = np.argsort(np.where(np.isnan(t_all), np.inf, t_all), axis=1, kind="stable")
-    t_sorted = np.take_along_axis(t_all, order, axis=1)
-    kind_sorted = kinds[order]
-    wh_sorted = whidx[order]
-    valid = ~np.isnan(t_sorted)
-    # state before the first event
-    in_t = points_in_polygon(a[:, 0], a[:, 1], hull.top)
-    in_s = points_in_polygon(a[:, 0], a[:, 2], hull.side)
-    arch0, lat0 = in_wheelhouse_parts(hull, a[:, 0], a[:, 1], a[:, 2])
-    # cumulative parity of each event type
-    st_t = in_t[:, None] ^ (np.cumsum(valid & (kind_sorted == KIND_TOP), axis=1) & 1).astype(bool)
-    st_s = in_s[:, None] ^ (np.cumsum(valid & (kind_sorted == KIND_SIDE), axis=1) & 1).astype(bool)
-    in_wh = np.zeros((n, k), bool)
-    for h in np.unique(whidx[whidx >= 0]):
-        fa = np.cumsum(valid & (kind_sorted == KIND_WH_ARCH) & (wh_sorted == h), axis=1) & 1
-        fl = np.cumsum(valid & (kind_sorted == KIND_WH_WALL) & (wh_sorted == h), axis=1) & 1
-        in_wh |= (arch0[:, h, None] ^ fa.astype(bool)) & (lat0[:, h, None] ^ fl.astype(bool))
-    for h in range(len(hull.wh_xc)):
-        if h not in whidx:
-            in_wh |= (arch0[:, h] & lat0[:, h])[:, None]
-    hull_state = st_t & st_s & ~in_wh
-    hull0 = in_t & in_s & ~np.any(arch0 & lat0, axis=1)
+        return Crossings(z, z, z.astype(np.int8), hull0)
+    t_key = np.where(np.isnan(t_all), np.inf, t_all)
+    order = np.argsort(t_key, axis=1)
+    t_sorted = np.take_along_axis(t_key, order, axis=1)
+    valid = np.isfinite(t_sorted)
+    ev = ebits[order]
+    ev[~valid] = 0
+    state = bits0[:, None] ^ np.bitwise_xor.accumulate(ev, axis=1)
+    hull_state = _hull_from_bits(state, n_wh)
     prev = np.concatenate([hull0[:, None], hull_state[:, :-1]], axis=1)
     flip = valid & (hull_state != prev)
 
     # keep only flips, compacted to the left
-    kmax = int(flip.sum(axis=1).max())
+    counts = flip.sum(axis=1)
+    kmax = int(counts.max()) if n else 0
     if kmax == 0:
         z = np.zeros((n, 0))
         return Crossings(z, z, z.astype(np.int8), hull0)
-    rank = np.cumsum(flip, axis=1) - 1
     rows, cols = np.nonzero(flip)
-    slot = rank[rows, cols]
+    slot = (np.cumsum(flip, axis=1) - 1)[rows, cols]
     t_out = np.full((n, kmax), np.nan)
     loss = np.zeros((n, kmax))
     direction = np.zeros((n, kmax), np.int8)
     tf = t_sorted[rows, cols]
-    kf = kind_sorted[rows, cols]
-    px = a[rows, 0] + tf * d[rows, 0]
-    py = a[rows, 1] + tf * d[rows, 1]
-    pz = a[rows, 2] + tf * d[rows, 2]
+    bf = ev[rows, cols]
+    kf = np.where(bf == 1, KIND_TOP, np.where(bf == 2, KIND_SIDE, KIND_WH_ARCH))
     lf = np.full(len(rows), hull.wheelhouse_loss_db)
     m_top = kf == KIND_TOP
     if m_top.any():
-        lf[m_top] = _zone_loss(hull.side_zones, px[m_top], pz[m_top], None, hull.default_loss_db)
+        r = rows[m_top]
+        px = a[r, 0] + tf[m_top] * d[r, 0]
+        pz = a[r, 2] + tf[m_top] * d[r, 2]
+        lf[m_top] = _zone_loss(hull.side_zones, px, pz, None, hull.default_loss_db)
     m_side = kf == KIND_SIDE
     if m_side.any():
-        lf[m_side] = _zone_loss(hull.top_zones, px[m_side], py[m_side], pz[m_side], hull.default_loss_db)
+        r = rows[m_side]
+        px = a[r, 0] + tf[m_side] * d[r, 0]
+        py = a[r, 1] + tf[m_side] * d[r, 1]
+        pz = a[r, 2] + tf[m_side] * d[r, 2]
+        lf[m_side] = _zone_loss(hull.top_zones, px, py, pz, hull.default_loss_db)
     t_out[rows, slot] = tf
     loss[rows, slot] = lf
     direction[rows, slot] = np.where(hull_state[rows, cols], 1, -1)
@@ -395,7 +407,7 @@ def escape_clearance_m(hull: Hull, x, y, z) -> np.ndarray:
     return np.where(np.isnan(h), 0.0, np.maximum(h, 0.0))
 
 
-def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, start_inside=None) -> np.ndarray:
+def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> np.ndarray:
     """Body loss of the straight paths a -> b (N, 3), dB.
 
     Every hull crossing costs its panel loss; a passage through the hull (entering and leaving
@@ -403,7 +415,7 @@ def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, start
     """
     a = np.asarray(a, float)
     b = np.asarray(b, float)
-    c = hull_crossings(hull, a, b, start_inside)
+    c = hull_crossings(hull, a, b, bits0)
     total = c.loss_db.sum(axis=1)
     k = c.t.shape[1]
     if k < 2:

@@ -92,7 +92,7 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
     dst = np.broadcast_to(spots[:, None, :], (S, A, 3)).reshape(-1, 3)
     r_axis = np.broadcast_to(axes[:, None, :], (S, A, 3)).reshape(-1, 3)
     theta_idx = np.broadcast_to(np.arange(A)[None, :], (S, A)).reshape(-1)
-    start_inside = np.broadcast_to(scene.sensor_inside[wheel_index][None, :], (S, A)).reshape(-1)
+    bits0 = np.broadcast_to(scene.sensor_bits[wheel_index][None, :], (S, A)).reshape(-1)
     lam = scene.wavelength_m
     k = 2.0 * np.pi / lam
     floor_amp = 10.0 ** (scene.null_floor_db / 20.0)
@@ -100,7 +100,7 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
     # direct ray
     u, d = _unit(dst - src)
     e_d = sensor_field(scene, wheel_index, theta_idx, s_axis, u, r_axis)
-    loss_d = body_loss_db(scene.hull, src, dst, scene.freq_hz, start_inside)
+    loss_d = body_loss_db(scene.hull, src, dst, scene.freq_hz, bits0)
     if scene.use_wheel_loss:
         loss_d = loss_d + wheel_loss_db(w, src, dst, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
     if scene.receiver_pattern == "dipole":
@@ -128,7 +128,7 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
         grazing = np.arcsin(np.clip(u_r[:, 2], 0.0, 1.0))
         g_perp, g_par = fresnel_reflection(scene.road_eps, grazing)
         e_r = (g_perp * _dot(e_i, n_te))[:, None] * n_te - (g_par * _dot(e_i, t_i))[:, None] * (t_i * _MIRROR)
-        loss_r = body_loss_db(scene.hull, src, g_pt, scene.freq_hz, start_inside)
+        loss_r = body_loss_db(scene.hull, src, g_pt, scene.freq_hz, bits0)
         loss_r = loss_r + body_loss_db(scene.hull, g_pt, dst, scene.freq_hz)
         if scene.use_wheel_loss:
             loss_r = loss_r + wheel_loss_db(w, src, g_pt, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)

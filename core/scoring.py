@@ -17,7 +17,7 @@ from typing import Callable
 
 import numpy as np
 
-from core.geometry import Hull, build_hull, inside_hull
+from core.geometry import Hull, build_hull, inside_hull, start_bits
 from core.links import link_levels_for_wheel
 from core.materials import material_loss_db, road_permittivity
 from core.propagation import SHORT_DIPOLE_GAIN_DBI, near_field_limit_m, wavelength_m
@@ -39,6 +39,7 @@ class Scene:
     sensor_pos: np.ndarray  # (W, A, 3)
     sensor_axis: np.ndarray  # (W, A, 3)
     sensor_inside: np.ndarray  # (W, A) bool
+    sensor_bits: np.ndarray  # (W, A) packed hull membership bits (core.geometry.start_bits)
     freq_hz: float
     wavelength_m: float
     eirp_dbm: float
@@ -95,6 +96,7 @@ class Scene:
         pos = np.stack([sensor_positions(w, angles) for w in wheels])
         axis = np.broadcast_to(sensor_axes(angles, r.sensor.axis), pos.shape).copy()
         inside = inside_hull(hull, pos[..., 0], pos[..., 1], pos[..., 2])
+        bits = start_bits(hull, pos[..., 0], pos[..., 1], pos[..., 2])
         model = wheel_model or r.wheel_model
         sensor_kind = r.sensor.pattern
         tables: tuple = ()
@@ -116,6 +118,7 @@ class Scene:
             sensor_pos=pos,
             sensor_axis=axis,
             sensor_inside=inside,
+            sensor_bits=bits,
             freq_hz=f,
             wavelength_m=float(wavelength_m(f)),
             eirp_dbm=r.sensor_eirp_dbm,
