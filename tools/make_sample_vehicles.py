@@ -43,6 +43,17 @@ def spot(name, x, y, z, axis=None):
     return d
 
 
+#: Spots placed relative to landmarks every body has (the axles and the floor), so that the same
+#: spot exists on all five bodies and a platform comparison is meaningful (see
+#: docs/vehicle-format.md, "Same spot on several bodies"). Each body resolves them to its own
+#: coordinates: x = offset + the landmark's x, z = offset + the body's floor height.
+PLATFORM_SPOTS = [
+    {"name": "platform console", "x_from": "rear_axle", "x_m": 1.40, "y_m": 0.0, "z_from": "floor", "z_m": 0.35},
+    {"name": "platform dash", "x_from": "front_axle", "x_m": -0.80, "y_m": 0.0, "z_from": "floor", "z_m": 0.55},
+    {"name": "platform rear floor", "x_from": "rear_axle", "x_m": -0.45, "y_m": 0.0, "z_from": "floor", "z_m": 0.25},
+]
+
+
 def four_wheels(wheelbase, half_track, tire, rim_w):
     return [
         wheel("FL", 0.0, half_track, tire, rim_w),
@@ -300,7 +311,9 @@ SAMPLES = {
 def main() -> None:
     OUT.mkdir(exist_ok=True)
     for name, make in SAMPLES.items():
-        v = vehicle_from_dict(make())
+        d = make()
+        d["spots"] = d["spots"] + [dict(p) for p in PLATFORM_SPOTS]
+        v = vehicle_from_dict(d)
         save_vehicle(v, OUT / name)
         print("wrote", OUT / name)
 
