@@ -311,7 +311,7 @@ def start_bits(hull: Hull, x, y, z) -> np.ndarray:
 
 def _hull_from_bits(bits: np.ndarray, n_wheelhouses: int) -> np.ndarray:
     """Inside-hull flag from packed membership bits."""
-    arch_bits = sum(1 << (2 + 2 * h) for h in range(n_wheelhouses))
+    arch_bits = sum(1 << (2 * h) for h in range(n_wheelhouses))
     in_wh = ((bits >> 2) & (bits >> 3) & arch_bits) != 0 if n_wheelhouses else False
     return ((bits & 3) == 3) & ~in_wh
 
