@@ -74,6 +74,8 @@ class Hull:
     env_zbot: np.ndarray
     env_ymax: np.ndarray
     env_ymin: np.ndarray
+    box_lo: np.ndarray  # (3,) lower corner of the hull's bounding box
+    box_hi: np.ndarray  # (3,) upper corner
 
 
 def _envelope(poly: np.ndarray, xs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -145,6 +147,8 @@ def build_hull(
         env_zbot=np.where(np.isfinite(zbot), zbot, np.nan),
         env_ymax=np.where(np.isfinite(ymax), ymax, np.nan),
         env_ymin=np.where(np.isfinite(ymin), ymin, np.nan),
+        box_lo=np.array([min(top[:, 0].min(), side[:, 0].min()), top[:, 1].min(), side[:, 1].min()]),
+        box_hi=np.array([max(top[:, 0].max(), side[:, 0].max()), top[:, 1].max(), side[:, 1].max()]),
     )
 
 
@@ -186,8 +190,8 @@ def inside_hull(hull: Hull, x, y, z) -> np.ndarray:
 
 
 # ----- crossings ---------------------------------------------------------------------------
-def _edge_hits(a2: np.ndarray, d2: np.ndarray, poly: np.ndarray, box_lo, box_hi) -> np.ndarray:
-    """t of crossings of 2-D segments a2 + t d2 (N, 2) with the polygon's edges: (N, E'), nan = none.
+def _edge_hits(au, av, du, dv, poly: np.ndarray, box_lo, box_hi):
+    """Crossings of 2-D segments (au, av) + t (du, dv) (1-D arrays) with the polygon's edges, as flat (rows, t).
 
     Edges whose bounding box misses (box_lo, box_hi) -- the union box of all segments -- are skipped.
     """
@@ -198,10 +202,10 @@ def _edge_hits(a2: np.ndarray, d2: np.ndarray, poly: np.ndarray, box_lo, box_hi)
     keep = np.all((ehi >= box_lo) & (elo <= box_hi), axis=1)
     p0, p1 = p0[keep], p1[keep]
     if len(p0) == 0:
-        return np.empty((len(a2), 0))
+        return np.empty(0, np.intp), np.empty(0)
     e = p1 - p0
-    ax, ay = a2[:, 0:1], a2[:, 1:2]
-    dx, dy = d2[:, 0:1], d2[:, 1:2]
+    ax, ay = au[:, None], av[:, None]
+    dx, dy = du[:, None], dv[:, None]
     ex, ey = e[None, :, 0], e[None, :, 1]
     wx = p0[None, :, 0] - ax
     wy = p0[None, :, 1] - ay
@@ -211,64 +215,61 @@ def _edge_hits(a2: np.ndarray, d2: np.ndarray, poly: np.ndarray, box_lo, box_hi)
         t = (wx * ey - wy * ex) * inv
         s = (wx * dy - wy * dx) * inv
     ok = (np.abs(den) > _EPS) & (t > 0.0) & (t < 1.0) & (s >= 0.0) & (s < 1.0)
-    return np.where(ok, t, np.nan)
+    rows, cols = np.nonzero(ok)
+    return rows, t[rows, cols]
 
 
-def _wheelhouse_hits(hull: Hull, a: np.ndarray, d: np.ndarray, box_lo, box_hi):
-    """Crossings of segments with wheelhouse arch surfaces and inner walls.
-
-    Returns (t_arch (N, 4H'), idx_arch (4H',), t_wall (N, H'), idx_wall (H',)).
-    """
+def _wheelhouse_hits(hull: Hull, a: tuple, d: tuple, box_lo, box_hi):
+    """Crossings of segments with wheelhouse arch surfaces and inner walls, as flat
+    (rows, t, event bit) arrays (arch of wheelhouse h: bit 2+2h; inner wall: bit 3+2h)."""
     H = len(hull.wh_xc)
+    empty = (np.empty(0, np.intp), np.empty(0), np.empty(0, np.int64))
+    if H == 0:
+        return empty
     # wheelhouses whose x-z box and lateral half-space the segments' box can reach
     keep = (
         (hull.wh_xc + hull.wh_r >= box_lo[0])
         & (hull.wh_xc - hull.wh_r <= box_hi[0])
         & (hull.wh_zc + hull.wh_r >= box_lo[2])
         & np.where(hull.wh_sign > 0, box_hi[1] > hull.wh_inner, box_lo[1] < -hull.wh_inner)
-    ) if H else np.zeros(0, bool)
+    )
     idx = np.nonzero(keep)[0]
-    n = len(a)
     if len(idx) == 0:
-        return np.empty((n, 0)), idx, np.empty((n, 0)), idx
+        return empty
+    ax, ay, az = (c[:, None] for c in a)
+    dx, dy, dz = (c[:, None] for c in d)
     xc, zc, r = hull.wh_xc[idx], hull.wh_zc[idx], hull.wh_r[idx]
     sg, inner = hull.wh_sign[idx], hull.wh_inner[idx]
-    ax, ay, az = a[:, 0:1], a[:, 1:2], a[:, 2:3]
-    dx, dy, dz = d[:, 0:1], d[:, 1:2], d[:, 2:3]
     ox, oz = ax - xc, az - zc
-    # circle in x-z: |o + t dxz|^2 = r^2, only the upper half (z >= zc)
-    qa = dx * dx + dz * dz
-    qb = 2.0 * (ox * dx + oz * dz)
-    qc = ox * ox + oz * oz - r * r
-    disc = qb * qb - 4.0 * qa * qc
+    out_r, out_t, out_b = [], [], []
+
+    def add(t, ok, bit_base):
+        rows, cols = np.nonzero(ok)
+        out_r.append(rows)
+        out_t.append(t[rows, cols])
+        out_b.append(np.left_shift(np.int64(1), bit_base + 2 * idx[cols].astype(np.int64)))
+
     with np.errstate(invalid="ignore", divide="ignore"):
-        sq = np.sqrt(np.where(disc > 0, disc, np.nan))
-        inv2a = 0.5 / np.where(qa > _EPS, qa, np.nan)
-        t1 = (-qb - sq) * inv2a
-        t2 = (-qb + sq) * inv2a
-
-        def arc_ok(t):
-            return (t > 0) & (t < 1) & (oz + t * dz >= 0)
-
-        t1 = np.where(arc_ok(t1), t1, np.nan)
-        t2 = np.where(arc_ok(t2), t2, np.nan)
+        # circle in x-z: |o + t dxz|^2 = r^2, only its upper half (z >= zc)
+        qa = dx * dx + dz * dz
+        qb = 2.0 * (ox * dx + oz * dz)
+        qc = ox * ox + oz * oz - r * r
+        disc = qb * qb - 4.0 * qa * qc
+        sq = np.sqrt(disc)
+        inv2a = 0.5 / qa
+        for sign in (-1.0, 1.0):
+            t = (-qb + sign * sq) * inv2a
+            add(t, (disc > 0) & (qa > _EPS) & (t > 0) & (t < 1) & (oz + t * dz >= 0), 2)
         # vertical lines x = xc +- r below the centre
-        inv_dx = 1.0 / np.where(np.abs(dx) > _EPS, dx, np.nan)
-        t3 = (r - ox) * inv_dx
-        t4 = (-r - ox) * inv_dx
-
-        def line_ok(t):
-            return (t > 0) & (t < 1) & (oz + t * dz < 0)
-
-        t3 = np.where(line_ok(t3), t3, np.nan)
-        t4 = np.where(line_ok(t4), t4, np.nan)
+        inv_dx = 1.0 / dx
+        for edge in (r, -r):
+            t = (edge - ox) * inv_dx
+            add(t, (np.abs(dx) > _EPS) & (t > 0) & (t < 1) & (oz + t * dz < 0), 2)
         # inner wall: sg * y = inner
-        inv_dy = 1.0 / np.where(np.abs(dy) > _EPS, sg * dy, np.nan)
-        tw = (inner - sg * ay) * inv_dy
-        tw = np.where((tw > 0) & (tw < 1), tw, np.nan)
-    t_arch = np.concatenate([t1, t2, t3, t4], axis=1)
-    idx_arch = np.concatenate([idx, idx, idx, idx])
-    return t_arch, idx_arch, tw, idx
+        sdy = sg * dy
+        t = (inner - sg * ay) / sdy
+        add(t, (np.abs(sdy) > _EPS) & (t > 0) & (t < 1), 3)
+    return np.concatenate(out_r), np.concatenate(out_t), np.concatenate(out_b)
 
 
 def _zone_loss(table: ZoneTable, u: np.ndarray, v: np.ndarray, z: np.ndarray | None, default: float) -> np.ndarray:
@@ -280,6 +281,22 @@ def _zone_loss(table: ZoneTable, u: np.ndarray, v: np.ndarray, z: np.ndarray | N
             hit &= (z >= zmin) & (z <= zmax)
         loss = np.where(hit, l_db, loss)
     return loss
+
+
+@dataclass(frozen=True)
+class Flips:
+    """Hull-surface crossings of N segments as flat arrays sorted by (row, t).
+
+    rows : segment index; t : parameter along the segment (0..1); loss_db : panel loss, dB;
+    direction : +1 entering the hull, -1 leaving it. start_inside : (N,) bool.
+    """
+
+    n: int
+    rows: np.ndarray
+    t: np.ndarray
+    loss_db: np.ndarray
+    direction: np.ndarray
+    start_inside: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -316,8 +333,8 @@ def _hull_from_bits(bits: np.ndarray, n_wheelhouses: int) -> np.ndarray:
     return ((bits & 3) == 3) & ~in_wh
 
 
-def hull_crossings(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | None = None) -> Crossings:
-    """All crossings of the hull surface by the segments a -> b (N, 3) each, m.
+def hull_flips(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | None = None) -> Flips:
+    """All crossings of the hull surface by the segments a -> b (N, 3) each, m, as flat arrays.
 
     ``bits0`` may give the start points' packed membership bits (:func:`start_bits`) when they
     are known already (e.g. shared sensor positions); otherwise they are computed.
@@ -325,75 +342,91 @@ def hull_crossings(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray |
     a = np.asarray(a, float)
     b = np.asarray(b, float)
     n = len(a)
-    d = b - a
-    lo = np.minimum(a.min(axis=0), b.min(axis=0)) if n else np.zeros(3)
-    hi = np.maximum(a.max(axis=0), b.max(axis=0)) if n else np.zeros(3)
-    t_top = _edge_hits(a[:, :2], d[:, :2], hull.top, lo[[0, 1]], hi[[0, 1]])
-    t_side = _edge_hits(a[:, [0, 2]], d[:, [0, 2]], hull.side, lo[[0, 2]], hi[[0, 2]])
-    t_arch, idx_arch, t_wall, idx_wall = _wheelhouse_hits(hull, a, d, lo, hi)
-    ebits = np.concatenate(
-        [
-            np.full(t_top.shape[1], 1, np.int64),
-            np.full(t_side.shape[1], 2, np.int64),
-            np.left_shift(1, 2 + 2 * idx_arch.astype(np.int64)),
-            np.left_shift(1, 3 + 2 * idx_wall.astype(np.int64)),
-        ]
-    )
-    t_all = np.concatenate([t_top, t_side, t_arch, t_wall], axis=1)
     if bits0 is None:
         bits0 = start_bits(hull, a[:, 0], a[:, 1], a[:, 2])
     bits0 = np.asarray(bits0, np.int64)
     n_wh = len(hull.wh_xc)
     hull0 = _hull_from_bits(bits0, n_wh)
-    used = ~np.all(np.isnan(t_all), axis=0) if n else np.zeros(t_all.shape[1], bool)
-    t_all, ebits = t_all[:, used], ebits[used]
-    k = t_all.shape[1]
-    if k == 0:
-        z = np.zeros((n, 0))
-        return Crossings(z, z, z.astype(np.int8), hull0)
-    t_key = np.where(np.isnan(t_all), np.inf, t_all)
-    order = np.argsort(t_key, axis=1)
-    t_sorted = np.take_along_axis(t_key, order, axis=1)
-    valid = np.isfinite(t_sorted)
-    ev = ebits[order]
-    ev[~valid] = 0
-    state = bits0[:, None] ^ np.bitwise_xor.accumulate(ev, axis=1)
-    hull_state = _hull_from_bits(state, n_wh)
-    prev = np.concatenate([hull0[:, None], hull_state[:, :-1]], axis=1)
-    flip = valid & (hull_state != prev)
-
-    # keep only flips, compacted to the left
-    counts = flip.sum(axis=1)
-    kmax = int(counts.max()) if n else 0
-    if kmax == 0:
-        z = np.zeros((n, 0))
-        return Crossings(z, z, z.astype(np.int8), hull0)
-    rows, cols = np.nonzero(flip)
-    slot = (np.cumsum(flip, axis=1) - 1)[rows, cols]
-    t_out = np.full((n, kmax), np.nan)
-    loss = np.zeros((n, kmax))
-    direction = np.zeros((n, kmax), np.int8)
-    tf = t_sorted[rows, cols]
-    bf = ev[rows, cols]
-    kf = np.where(bf == 1, KIND_TOP, np.where(bf == 2, KIND_SIDE, KIND_WH_ARCH))
-    lf = np.full(len(rows), hull.wheelhouse_loss_db)
-    m_top = kf == KIND_TOP
+    empty = Flips(n, np.empty(0, np.intp), np.empty(0), np.empty(0), np.empty(0, np.int8), hull0)
+    if n == 0:
+        return empty
+    ac = np.ascontiguousarray(a.T)
+    bc = np.ascontiguousarray(b.T)
+    # only segments whose box meets the hull's box can cross it
+    lo_s = np.minimum(ac, bc)
+    hi_s = np.maximum(ac, bc)
+    cand = np.all((hi_s >= hull.box_lo[:, None]) & (lo_s <= hull.box_hi[:, None]), axis=0)
+    sub = None
+    if not cand.all():
+        sub = np.nonzero(cand)[0]
+        if len(sub) == 0:
+            return empty
+        ac, bc, lo_s, hi_s = ac[:, sub], bc[:, sub], lo_s[:, sub], hi_s[:, sub]
+    dc = bc - ac
+    lo = lo_s.min(axis=1)
+    hi = hi_s.max(axis=1)
+    ax, ay, az = ac
+    dx, dy, dz = dc
+    r_top, t_top = _edge_hits(ax, ay, dx, dy, hull.top, lo[[0, 1]], hi[[0, 1]])
+    r_side, t_side = _edge_hits(ax, az, dx, dz, hull.side, lo[[0, 2]], hi[[0, 2]])
+    r_wh, t_wh, b_wh = _wheelhouse_hits(hull, (ax, ay, az), (dx, dy, dz), lo, hi)
+    rows = np.concatenate([r_top, r_side, r_wh])
+    if len(rows) == 0:
+        return empty
+    t = np.concatenate([t_top, t_side, t_wh])
+    ebit = np.concatenate([np.full(len(r_top), 1, np.int64), np.full(len(r_side), 2, np.int64), b_wh])
+    order = np.argsort(rows + t, kind="stable")  # t in (0, 1): sorts by row, then along the segment
+    rows, t, ebit = rows[order], t[order], ebit[order]
+    # membership after each event: start bits XOR the events so far on the same segment
+    prefix = np.bitwise_xor.accumulate(ebit)
+    first = np.empty(len(rows), bool)
+    first[0] = True
+    np.not_equal(rows[1:], rows[:-1], out=first[1:])
+    run = np.cumsum(first) - 1
+    first_idx = np.nonzero(first)[0]
+    base = (prefix[first_idx] ^ ebit[first_idx])[run]
+    b0 = bits0 if sub is None else bits0[sub]
+    h0 = hull0 if sub is None else hull0[sub]
+    state_in = _hull_from_bits(b0[rows] ^ prefix ^ base, n_wh)
+    prev = np.empty(len(rows), bool)
+    prev[1:] = state_in[:-1]
+    prev[first] = h0[rows[first]]
+    flip = state_in != prev
+    rows, t, ebit, entering = rows[flip], t[flip], ebit[flip], state_in[flip]
+    loss = np.full(len(rows), hull.wheelhouse_loss_db)
+    m_top = ebit == 1
     if m_top.any():
         r = rows[m_top]
-        px = a[r, 0] + tf[m_top] * d[r, 0]
-        pz = a[r, 2] + tf[m_top] * d[r, 2]
-        lf[m_top] = _zone_loss(hull.side_zones, px, pz, None, hull.default_loss_db)
-    m_side = kf == KIND_SIDE
+        px = ax[r] + t[m_top] * dx[r]
+        pz = az[r] + t[m_top] * dz[r]
+        loss[m_top] = _zone_loss(hull.side_zones, px, pz, None, hull.default_loss_db)
+    m_side = ebit == 2
     if m_side.any():
         r = rows[m_side]
-        px = a[r, 0] + tf[m_side] * d[r, 0]
-        py = a[r, 1] + tf[m_side] * d[r, 1]
-        pz = a[r, 2] + tf[m_side] * d[r, 2]
-        lf[m_side] = _zone_loss(hull.top_zones, px, py, pz, hull.default_loss_db)
-    t_out[rows, slot] = tf
-    loss[rows, slot] = lf
-    direction[rows, slot] = np.where(hull_state[rows, cols], 1, -1)
-    return Crossings(t_out, loss, direction, hull0)
+        px = ax[r] + t[m_side] * dx[r]
+        py = ay[r] + t[m_side] * dy[r]
+        pz = az[r] + t[m_side] * dz[r]
+        loss[m_side] = _zone_loss(hull.top_zones, px, py, pz, hull.default_loss_db)
+    if sub is not None:
+        rows = sub[rows]
+    return Flips(n, rows, t, loss, np.where(entering, 1, -1).astype(np.int8), hull0)
+
+
+def hull_crossings(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | None = None) -> Crossings:
+    """The crossings of :func:`hull_flips` as padded (N, K) arrays, in order along each segment."""
+    f = hull_flips(hull, a, b, bits0)
+    counts = np.bincount(f.rows, minlength=f.n)
+    kmax = int(counts.max()) if f.n else 0
+    t_out = np.full((f.n, kmax), np.nan)
+    loss = np.zeros((f.n, kmax))
+    direction = np.zeros((f.n, kmax), np.int8)
+    if len(f.rows):
+        starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
+        slot = np.arange(len(f.rows)) - starts[f.rows]
+        t_out[f.rows, slot] = f.t
+        loss[f.rows, slot] = f.loss_db
+        direction[f.rows, slot] = f.direction
+    return Crossings(t_out, loss, direction, f.start_inside)
 
 
 def escape_clearance_m(hull: Hull, x, y, z) -> np.ndarray:
@@ -415,28 +448,26 @@ def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0
     """
     a = np.asarray(a, float)
     b = np.asarray(b, float)
-    c = hull_crossings(hull, a, b, bits0)
-    total = c.loss_db.sum(axis=1)
-    k = c.t.shape[1]
-    if k < 2:
+    f = hull_flips(hull, a, b, bits0)
+    total = np.bincount(f.rows, weights=f.loss_db, minlength=f.n).astype(float)
+    if len(f.rows) < 2:
+        return total
+    passage = np.nonzero((f.rows[1:] == f.rows[:-1]) & (f.direction[:-1] == 1) & (f.direction[1:] == -1))[0]
+    if len(passage) == 0:
         return total
     lam = float(wavelength_m(freq_hz))
-    d = b - a
+    rows = f.rows[passage]
+    t0, t1 = f.t[passage], f.t[passage + 1]
+    d = b[rows] - a[rows]
     length = np.linalg.norm(d, axis=1)
     frac = (np.arange(DIFFRACTION_SAMPLES) + 0.5) / DIFFRACTION_SAMPLES
-    for j in range(k - 1):
-        passage = (c.direction[:, j] == 1) & (c.direction[:, j + 1] == -1)
-        rows = np.nonzero(passage)[0]
-        if len(rows) == 0:
-            continue
-        t0, t1 = c.t[rows, j], c.t[rows, j + 1]
-        ts = t0[:, None] + frac[None, :] * (t1 - t0)[:, None]  # (R, M)
-        q = a[rows, None, :] + ts[..., None] * d[rows, None, :]
-        h = escape_clearance_m(hull, q[..., 0], q[..., 1], q[..., 2])
-        d1 = ts * length[rows, None]
-        d2 = (1.0 - ts) * length[rows, None]
-        v = h * np.sqrt(2.0 / lam * (1.0 / np.maximum(d1, 1e-6) + 1.0 / np.maximum(d2, 1e-6)))
-        j_db = knife_edge_loss_db(v.max(axis=1))
-        pen = c.loss_db[rows, j] + c.loss_db[rows, j + 1]
-        total[rows] -= pen - np.minimum(pen, j_db)
+    ts = t0[:, None] + frac[None, :] * (t1 - t0)[:, None]  # (R, M)
+    q = a[rows, None, :] + ts[..., None] * d[:, None, :]
+    h = escape_clearance_m(hull, q[..., 0], q[..., 1], q[..., 2])
+    d1 = np.maximum(ts * length[:, None], 1e-6)
+    d2 = np.maximum((1.0 - ts) * length[:, None], 1e-6)
+    v = h * np.sqrt(2.0 / lam * (1.0 / d1 + 1.0 / d2))
+    j_db = knife_edge_loss_db(v.max(axis=1))
+    pen = f.loss_db[passage] + f.loss_db[passage + 1]
+    np.add.at(total, rows, np.minimum(pen, j_db) - pen)
     return total
