@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from core.geometry import body_loss_db
+from core.geometry import body_loss_db, start_bits
 from core.propagation import fresnel_reflection
 from core.wheel import wheel_loss_db
 
@@ -129,14 +129,18 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
         g_perp, g_par = fresnel_reflection(scene.road_eps, grazing)
         e_r = (g_perp * _dot(e_i, n_te))[:, None] * n_te - (g_par * _dot(e_i, t_i))[:, None] * (t_i * _MIRROR)
         loss_r = body_loss_db(scene.hull, src, g_pt, scene.freq_hz, bits0)
-        loss_r = loss_r + body_loss_db(scene.hull, g_pt, dst, scene.freq_hz)
+        # the road point -> receiver leg, traced from the receiver end (same panels and passages),
+        # so the start membership is the spot's, shared by every angle
+        spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2])
+        bits_p = np.broadcast_to(spot_bits[:, None], (S, A)).reshape(-1)
+        loss_r = loss_r + body_loss_db(scene.hull, dst, g_pt, scene.freq_hz, bits_p)
         if scene.use_wheel_loss:
             loss_r = loss_r + wheel_loss_db(w, src, g_pt, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
         if scene.receiver_pattern == "dipole":
             c_r = _dot(e_r, r_axis)
         else:
             c_r = _dot(e_r, np.conj(ref))
-        field = field + c_r * 10.0 ** (-loss_r / 20.0) * np.exp(-1j * k * d_r) / d_r
+        field = field + _floor(c_r, floor_amp) * 10.0 ** (-loss_r / 20.0) * np.exp(-1j * k * d_r) / d_r
 
     amp = np.abs(field) * lam / (4.0 * np.pi)
     level = scene.eirp_dbm + scene.receiver_gain_dbi + 20.0 * np.log10(np.maximum(amp, 1e-30))
