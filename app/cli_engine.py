@@ -6,6 +6,7 @@ import json
 import sys
 
 import numpy as np
+from pydantic import ValidationError
 
 from core.vehicle import Spot, load_vehicle
 
@@ -19,7 +20,12 @@ def _parse_spot(text: str) -> Spot:
         x, y, z = (float(p) for p in rest.split(","))
     except ValueError:
         raise SystemExit(f"error: --spot {text!r}: expected NAME=X,Y,Z in metres, e.g. 'console=-1.3,0,0.5'") from None
-    return Spot(name=name, x_m=x, y_m=y, z_m=z)
+    try:
+        return Spot(name=name, x_m=x, y_m=y, z_m=z)
+    except ValidationError as e:  # non-finite or out-of-range coordinate, over-long name
+        err = e.errors()[0]
+        field = ".".join(str(p) for p in err["loc"])
+        raise SystemExit(f"error: --spot {text!r}: {field}: {err['msg']}") from None
 
 
 def _load_with_spots(args):

@@ -1,0 +1,136 @@
+"""The engine's command line: ``wheelreach rank`` (table and JSON) and ``wheelreach heatmap`` (CSV).
+
+The JSON document is described in docs/cli-json.md; these tests hold the command to it and to the
+engine (core.scoring) it reports.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from app.cli import main
+from core.scoring import Scene, heatmap, score_spots, score_vehicle
+from core.vehicle import load_vehicle
+from engine_vehicles import REPO, SEDAN_PATH, sedan
+
+WHEEL_KEYS = {"wheel", "worst_dbm", "worst_angle_deg", "median_dbm", "levels_dbm"}
+SPOT_KEYS = {"rank", "name", "position_m", "margin_db", "worst_wheel", "worst_angle_deg", "near_field", "wheels"}
+TOP_KEYS = {"vehicle", "body_style", "frequency_hz", "sensitivity_dbm", "required_margin_db", "angles_deg", "spots"}
+
+
+def _rank_json(capsys, *extra) -> dict:
+    assert main(["rank", str(SEDAN_PATH), "--json", *extra]) == 0
+    return json.loads(capsys.readouterr().out)
+
+
+def test_rank_json_matches_the_engine(capsys):
+    doc = _rank_json(capsys)
+    v = load_vehicle(SEDAN_PATH)
+    s = score_vehicle(v, Scene.from_vehicle(v))
+    assert set(doc) == TOP_KEYS
+    assert doc["vehicle"] == v.name and doc["frequency_hz"] == v.radio.frequency_hz
+    assert len(doc["angles_deg"]) == v.radio.angles_per_turn
+    np.testing.assert_allclose(doc["angles_deg"], s.angles_deg, atol=1e-4)
+    assert [d["rank"] for d in doc["spots"]] == list(range(1, len(v.spots) + 1))
+    assert [d["name"] for d in doc["spots"]] == [s.names[i] for i in s.order()]
+    margins = [d["margin_db"] for d in doc["spots"]]
+    assert margins == sorted(margins, reverse=True)
+    for d in doc["spots"]:
+        assert set(d) == SPOT_KEYS
+        i = s.names.index(d["name"])
+        assert d["margin_db"] == pytest.approx(s.margin_db[i], abs=1e-3)
+        assert d["worst_wheel"] == s.wheel_ids[s.worst_wheel[i]]
+        np.testing.assert_allclose(d["position_m"], s.positions[i], atol=1e-4)
+        assert [w["wheel"] for w in d["wheels"]] == list(s.wheel_ids)
+        for w, wd in enumerate(d["wheels"]):
+            assert set(wd) == WHEEL_KEYS
+            lv = np.array(wd["levels_dbm"])
+            assert lv.shape == (v.radio.angles_per_turn,)
+            np.testing.assert_allclose(lv, s.levels_dbm[i, w], atol=1e-3)
+            assert wd["worst_dbm"] == pytest.approx(lv.min(), abs=1e-3)  # worst case = minimum (percentile 0)
+            assert wd["median_dbm"] == pytest.approx(np.median(lv), abs=1e-3)
+            assert wd["worst_angle_deg"] == pytest.approx(doc["angles_deg"][int(np.argmin(lv))], abs=1e-3)
+        # margin = worst wheel's worst case - sensitivity - required margin (DESIGN.md section 5)
+        worst = min(wd["worst_dbm"] for wd in d["wheels"])
+        assert d["margin_db"] == pytest.approx(worst - doc["sensitivity_dbm"] - doc["required_margin_db"], abs=2e-3)
+
+
+def test_rank_json_angles_option_sets_the_length_of_the_level_lists(capsys):
+    doc = _rank_json(capsys, "--angles", "36")
+    assert len(doc["angles_deg"]) == 36
+    assert all(len(w["levels_dbm"]) == 36 for d in doc["spots"] for w in d["wheels"])
+
+
+def test_rank_spot_option_adds_a_spot(capsys):
+    doc = _rank_json(capsys, "--spot", "glovebox=-0.9,-0.45,0.62", "--spot", "tail=-3.6,0.2,0.8")
+    n_file = len(sedan().spots)
+    assert len(doc["spots"]) == n_file + 2
+    by_name = {d["name"]: d for d in doc["spots"]}
+    scene = Scene.from_vehicle(sedan())
+    for name, p in (("glovebox", [-0.9, -0.45, 0.62]), ("tail", [-3.6, 0.2, 0.8])):
+        assert by_name[name]["position_m"] == p
+        assert by_name[name]["margin_db"] == pytest.approx(score_spots(scene, [p]).margin_db[0], abs=1e-3)
+
+
+def test_rank_table_names_the_spots_and_carries_the_caution(capsys):
+    assert main(["rank", str(SEDAN_PATH), "--spot", "probe=-1.0,0,0.6"]) == 0
+    out = capsys.readouterr().out
+    assert "probe" in out and all(s.name in out for s in sedan().spots)
+    assert "approximate" in out  # DESIGN.md section 8 caution
+
+
+@pytest.mark.parametrize("bad", ["console", "console=-1.3,0", "console=-1.3,0,0.5,1", "console=a,b,c", "=1,0,0.5",
+                                 "console=nan,0,0.5", "console=1000,0,0.5"])
+def test_bad_spot_gives_a_clear_message_and_nonzero_exit(bad):
+    r = subprocess.run([sys.executable, "-m", "app.cli", "rank", str(SEDAN_PATH), "--spot", bad],
+                       capture_output=True, text=True, cwd=REPO, timeout=120)
+    assert r.returncode != 0
+    assert "Traceback" not in r.stderr
+    assert r.stderr.startswith("error: --spot") and repr(bad) in r.stderr, r.stderr
+    assert r.stdout == ""
+
+
+def test_heatmap_csv_holds_every_cell_of_the_grid(capsys, tmp_path):
+    out = tmp_path / "floor.csv"
+    assert main(["heatmap", str(SEDAN_PATH), "--view", "top", "--step", "0.3", "--angles", "24", "--quiet",
+                 "--csv", str(out)]) == 0
+    assert f"wrote {out}" in capsys.readouterr().out
+    with out.open(newline="") as f:
+        rows = list(csv.DictReader(f))
+    assert rows and list(rows[0]) == ["x_m", "y_m", "z_m", "margin_db", "worst_wheel"]
+    v = sedan(angles_per_turn=24)
+    scene = Scene.from_vehicle(v)
+    region = [r for r in v.regions if r.view == "top"][0]
+    hm = heatmap(scene, region, 0.3)
+    pts = hm.points()[np.isfinite(hm.margin_db)]
+    assert len(rows) == len(pts)
+    got = np.array([[float(r["x_m"]), float(r["y_m"]), float(r["z_m"]), float(r["margin_db"])] for r in rows])
+    np.testing.assert_allclose(got[:, :3], pts, atol=1e-4)
+    np.testing.assert_allclose(got[:, 3], hm.margin_db[np.isfinite(hm.margin_db)], atol=1e-3)
+    assert {r["worst_wheel"] for r in rows} <= set(scene.wheel_ids)
+
+
+def test_side_heatmap_csv_at_a_lateral_position(capsys, tmp_path):
+    out = tmp_path / "side.csv"
+    assert main(["heatmap", str(SEDAN_PATH), "--view", "side", "--y", "0.2", "--step", "0.4", "--angles", "24",
+                 "--quiet", "--csv", str(out)]) == 0
+    with out.open(newline="") as f:
+        rows = list(csv.DictReader(f))
+    assert rows and all(float(r["y_m"]) == 0.2 for r in rows)
+    assert all(np.isfinite(float(r["margin_db"])) for r in rows)
+
+
+def test_cli_json_doc_describes_every_key(capsys):
+    # docs/cli-json.md documents the rank document: every key the command prints has a table row.
+    text = (REPO / "docs" / "cli-json.md").read_text(encoding="utf-8")
+    doc = _rank_json(capsys, "--angles", "8")
+    keys = set(doc) | set(doc["spots"][0]) | set(doc["spots"][0]["wheels"][0])
+    assert keys == TOP_KEYS | SPOT_KEYS | WHEEL_KEYS
+    missing = [k for k in sorted(keys) if f"| `{k}` |" not in text]
+    assert not missing, missing
