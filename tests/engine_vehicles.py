@@ -61,7 +61,8 @@ def box_cabin(window_material: str | None) -> Vehicle:
     m); None leaves the whole box in the default panel material (metal).
     """
     body = Body(
-        top_outline=((-1.0, -BOX_HALF_WIDTH_M), (1.0, -BOX_HALF_WIDTH_M), (1.0, BOX_HALF_WIDTH_M), (-1.0, BOX_HALF_WIDTH_M)),
+        top_outline=((-1.0, -BOX_HALF_WIDTH_M), (1.0, -BOX_HALF_WIDTH_M), (1.0, BOX_HALF_WIDTH_M),
+                     (-1.0, BOX_HALF_WIDTH_M)),
         side_outline=((-1.0, 0.2), (1.0, 0.2), (1.0, 1.4), (-1.0, 1.4)),
     )
     zones = ()
