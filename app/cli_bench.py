@@ -1,0 +1,255 @@
+"""``wheelreach bench [FILE]``: speed and memory of the engine, against the scalar reference.
+
+In one process and one run, after a warm-up, it measures (medians of several repeats where timed):
+
+- heatmap: the top-view grid of the file's first top-view mounting region at 5 cm spacing (or a
+  finer grid of at least 2,400 spots if the region is smaller), all wheels, the file's angles per
+  turn: seconds and links per second (a link = one spot, one wheel, one angle);
+- single spot (the drag update): ``score_spots`` of one spot, all wheels and angles: ms;
+- the scalar reference (core.reference) on a random subset of the same links, its time scaled to
+  the heatmap's link count: the speedup of the engine over it;
+- peak memory of the heatmap call and of a 10,000-spot grid: the tracemalloc peak of the call
+  (numpy reports its buffers to tracemalloc), measured in separate untimed runs;
+- cost growth: one run each for grids of 600, 2,400 and 9,600 spots.
+
+One line per figure, then the summary line
+``heatmap_s=<x> spot_ms=<y> speedup=<z> links_per_s=<w> peak_mib=<m>``.
+Numbers depend on the machine and its load; quote medians of several runs.
+"""
+
+from __future__ import annotations
+
+import os
+import platform
+import statistics
+import sys
+import time
+import tracemalloc
+
+import numpy as np
+
+from app.cli_engine import _Progress
+from core.vehicle import load_vehicle
+
+MAIN_STEP_M = 0.05
+MIN_MAIN_SPOTS = 2400
+MEMORY_SPOTS = 10_000
+GROWTH_SPOTS = (600, 2400, 9600)
+QUICK_MAIN_SPOTS = 150
+QUICK_MEMORY_SPOTS = 400
+QUICK_GROWTH_SPOTS = (40, 80, 160)
+
+
+def cpu_model() -> str:
+    """The CPU model name from /proc/cpuinfo (Linux), else the platform's processor string."""
+    try:
+        with open("/proc/cpuinfo", encoding="utf-8") as f:
+            for line in f:
+                if line.lower().startswith("model name"):
+                    return line.split(":", 1)[1].strip()
+    except OSError:
+        pass
+    return platform.processor() or "unknown CPU"
+
+
+def _count(region, step_m: float) -> int:
+    from core.scoring import grid_for_region
+
+    return int(grid_for_region(region, step_m)[2].sum())
+
+
+def step_for_spots(region, n: int) -> float:
+    """The largest cell spacing, m, whose grid over the region holds at least n spots."""
+    poly = np.asarray(region.outline, float)
+    w, h = poly.max(axis=0) - poly.min(axis=0)
+    hi = 2.0 * (w * h / n) ** 0.5  # a box grid of n / 4 cells: too coarse
+    lo = hi / 4.0
+    while _count(region, lo) < n:  # a region filling little of its box needs a finer start
+        lo /= 2.0
+        if w * h / lo**2 > 1e3 * n:
+            raise ValueError(f"region {region.name!r} cannot hold {n} spots")
+    for _ in range(40):
+        mid = (lo * hi) ** 0.5
+        if _count(region, mid) >= n:
+            lo = mid
+        else:
+            hi = mid
+    return lo
+
+
+def _median_time(fn, repeats: int) -> tuple[float, object]:
+    times, out = [], None
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        out = fn()
+        times.append(time.perf_counter() - t0)
+    return statistics.median(times), out
+
+
+def _peak_mib(fn) -> float:
+    """tracemalloc peak of one call, MiB (allocations made during the call, numpy buffers included)."""
+    tracemalloc.start()
+    tracemalloc.reset_peak()
+    try:
+        fn()
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    return peak / 2**20
+
+
+def reference_seconds_per_link(v, scene, points: np.ndarray, n_links: int, seed: int = 0) -> tuple[float, int]:
+    """Mean time of the scalar reference per link, s, over n_links random links of the grid."""
+    from core.reference import DegenerateCase, ReferenceModel
+
+    ref = ReferenceModel(v, ground_reflection=scene.ground_reflection)
+    rng = np.random.default_rng(seed)
+    spots = points[rng.integers(0, len(points), n_links)]
+    wheels = rng.integers(0, len(scene.wheels), n_links)
+    angles = rng.integers(0, len(scene.angles_rad), n_links)
+    axis = v.radio.receiver.axis
+    degenerate = 0
+    t0 = time.perf_counter()
+    for p, w, a in zip(spots, wheels, angles):
+        try:
+            ref.level_dbm(p, int(w), int(a), axis)
+        except DegenerateCase:
+            degenerate += 1
+    return (time.perf_counter() - t0) / n_links, degenerate
+
+
+def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_progress: bool, with_reference: bool,
+                out=print) -> dict:
+    """Run every figure for one wheel model; print one line per figure; return the figures."""
+    from core.scoring import Scene, grid_for_region, heatmap, score_spots
+
+    scene = Scene.from_vehicle(v, wheel_model=wheel_model)
+    regions = [r for r in v.regions if r.view == "top"]
+    if not regions:
+        raise SystemExit(f"error: {v.name}: regions: no top-view mounting region to bench")
+    region = regions[0]
+    W, A = len(scene.wheels), len(scene.angles_rad)
+    if quick:
+        step = step_for_spots(region, QUICK_MAIN_SPOTS)
+    else:
+        step = MAIN_STEP_M if _count(region, MAIN_STEP_M) >= MIN_MAIN_SPOTS else step_for_spots(region, MIN_MAIN_SPOTS)
+    n_spots = _count(region, step)
+    links = n_spots * W * A
+    progress = _Progress(show_progress)
+    out(f"wheel model: {scene.wheel_model_label}; road reflection {'on' if scene.ground_reflection else 'off'}; "
+        f"{W} wheels x {A} angles")
+
+    def run_main():
+        return heatmap(scene, region, step)
+
+    run_main()  # warm-up
+    heat_s, hm = _median_time(run_main, repeats)
+    cells = int(np.isfinite(hm.margin_db).sum())
+    out(f"heatmap: {region.name!r}, step {step * 1000:.1f} mm, {cells} spots x {W} wheels x {A} angles = "
+        f"{links} links: {heat_s:.3f} s (median of {repeats})")
+    out(f"heatmap links per second: {links / heat_s:,.0f}")
+
+    u, vv, mask, fixed = grid_for_region(region, step)
+    uu, vg = np.meshgrid(u, vv)
+    pts = np.stack([uu, vg, np.full_like(uu, fixed)], axis=-1)[mask]
+    centre = 0.5 * (pts.min(axis=0) + pts.max(axis=0))
+    one = pts[np.argmin(np.linalg.norm(pts - centre, axis=1))][None, :]  # the grid spot nearest the centre
+    spot_repeats = 5 if quick else 30
+    for _ in range(3):
+        score_spots(scene, one)
+    spot_s, _ = _median_time(lambda: score_spots(scene, one), spot_repeats)
+    out(f"single spot ({one[0, 0]:.2f}, {one[0, 1]:.2f}, {one[0, 2]:.2f}) m, {W} wheels x {A} angles: "
+        f"{spot_s * 1e3:.2f} ms (median of {spot_repeats})")
+
+    speedup = None
+    if with_reference:
+        n_ref = 20 if quick else 300
+        per_link, degenerate = reference_seconds_per_link(v, scene, pts, n_ref)
+        scaled = per_link * links
+        speedup = scaled / heat_s
+        extra = f", {degenerate} degenerate" if degenerate else ""
+        out(f"scalar reference: {per_link * 1e3:.3f} ms per link over {n_ref} random links of the grid{extra}; "
+            f"scaled to {links} links: {scaled:.1f} s; speedup {speedup:.0f}x")
+    else:
+        out("scalar reference: not available for this wheel model (the reference models the knife-edge wheel)")
+
+    peak = _peak_mib(run_main)
+    out(f"peak memory of the heatmap call: {peak:.1f} MiB (tracemalloc peak, numpy buffers included)")
+
+    n_mem = QUICK_MEMORY_SPOTS if quick else MEMORY_SPOTS
+    step_mem = step_for_spots(region, n_mem)
+    n_mem_actual = _count(region, step_mem)
+    peak_mem = _peak_mib(lambda: heatmap(scene, region, step_mem, progress=progress))
+    out(f"peak memory of a {n_mem_actual}-spot grid: {peak_mem:.1f} MiB (tracemalloc peak)")
+
+    growth = []
+    for n in QUICK_GROWTH_SPOTS if quick else GROWTH_SPOTS:
+        s = step_for_spots(region, n)
+        n_act = _count(region, s)
+        t0 = time.perf_counter()
+        heatmap(scene, region, s, progress=progress)
+        dt = time.perf_counter() - t0
+        growth.append((n_act, dt))
+    base_n, base_t = growth[0]
+    parts = [f"{n} spots {t:.3f} s (x{t / base_t:.2f} for x{n / base_n:.2f} work)" for n, t in growth]
+    out("cost growth: " + "; ".join(parts))
+    return {
+        "heatmap_s": heat_s,
+        "spot_ms": spot_s * 1e3,
+        "speedup": speedup,
+        "links_per_s": links / heat_s,
+        "peak_mib": peak,
+        "peak_10k_mib": peak_mem,
+        "growth": growth,
+    }
+
+
+def summary_line(fig: dict) -> str:
+    sp = "n/a" if fig["speedup"] is None else f"{fig['speedup']:.0f}"
+    return (f"heatmap_s={fig['heatmap_s']:.3f} spot_ms={fig['spot_ms']:.2f} speedup={sp} "
+            f"links_per_s={fig['links_per_s']:.0f} peak_mib={fig['peak_mib']:.1f}")
+
+
+def _cmd_bench(args) -> int:
+    from app.cli import DEFAULT_SAMPLE
+
+    path = args.file or DEFAULT_SAMPLE
+    v = load_vehicle(path)
+    import numpy
+
+    print(f"machine: {os.cpu_count()} logical CPUs, {cpu_model()}; Python {platform.python_version()}, "
+          f"numpy {numpy.__version__}")
+    print(f"vehicle: {v.name} ({path})")
+    models = [None]
+    if args.wheel_model == "both":
+        try:
+            import core.wheel_patterns  # noqa: F401
+        except ModuleNotFoundError:
+            print("error: --wheel-model both needs core/wheel_patterns.py (installed wheel patterns)", file=sys.stderr)
+            return 1
+        models = ["knife_edge", "installed_pattern"]
+    elif args.wheel_model:
+        models = [args.wheel_model]
+    repeats = max(1, args.repeats if args.repeats else (1 if args.quick else 5))
+    show = args.progress or (sys.stderr.isatty() and not args.quiet)
+    figures = []
+    for m in models:
+        effective = m or v.radio.wheel_model
+        with_ref = effective == "knife_edge" and v.radio.sensor.pattern in ("dipole", "isotropic")
+        figures.append((effective, bench_model(v, m, args.quick, repeats, show, with_ref)))
+    for name, fig in figures[1:]:
+        print(f"{name}: {summary_line(fig)}")
+    print(summary_line(figures[0][1]))
+    return 0
+
+
+def register(sub) -> None:
+    b = sub.add_parser("bench", help="speed and memory benchmark of the engine against the scalar reference")
+    b.add_argument("file", nargs="?", default=None, help="vehicle file (default: the sample sedan)")
+    b.add_argument("--quick", action="store_true", help="small grids and few repeats (a smoke run, not a measurement)")
+    b.add_argument("--repeats", type=int, help="timed repeats of the heatmap (default 5; 1 with --quick)")
+    b.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern", "both"],
+                   help="wheel model to bench (default: the file's); 'both' needs the installed wheel patterns")
+    b.add_argument("--progress", action="store_true", help="show progress bars even when not on a terminal")
+    b.add_argument("--quiet", action="store_true", help="no progress bars")
+    b.set_defaults(func=_cmd_bench)
