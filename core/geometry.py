@@ -392,6 +392,13 @@ def hull_flips(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | Non
     prev[1:] = state_in[:-1]
     prev[first] = h0[rows[first]]
     flip = state_in != prev
+    # an end face drawn as an edge of both outlines is crossed by both at the same t: it is a wall
+    # (side or end face) crossing, so it takes the side-view zone whichever event flips the state
+    same = (rows[1:] == rows[:-1]) & (np.abs(t[1:] - t[:-1]) < 1e-9)
+    tie = np.zeros(len(rows), bool)
+    tie[1:] |= same & (ebit[:-1] == 1)
+    tie[:-1] |= same & (ebit[1:] == 1)
+    ebit = np.where((ebit == 2) & tie, 1, ebit)
     rows, t, ebit, entering = rows[flip], t[flip], ebit[flip], state_in[flip]
     loss = np.full(len(rows), hull.wheelhouse_loss_db)
     m_top = ebit == 1

@@ -118,8 +118,6 @@ def test_reference_reproduces_a_hand_worked_link():
     assert ref.level_dbm(spot, 0, a, (1.0, 0.0, 0.0)) == pytest.approx(expected, abs=0.005)
 
 
-@pytest.mark.xfail(strict=True, reason="known engine defect: an end face drawn as an edge of both outlines "
-                   "(sedan front face, x = 0.95 m) takes the top-view zone instead of the side-view zone")
 def test_end_face_in_both_outlines_takes_the_side_view_zone():
     """core.geometry's docstring: a crossing through a side or end face takes its material from the
     side-view zones at (x, z). The sedan's front face at x = 0.95 m is an edge of the top outline and of
