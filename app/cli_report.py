@@ -1,0 +1,79 @@
+"""CLI commands ``report`` (placement report PDF with CSV/JSON export) and ``compare`` (several bodies)."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from core.compare import LANDMARKS
+
+
+def _cmd_report(args) -> int:
+    import os
+
+    os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+    from app.report import write_report
+
+    if not args.step > 0:
+        print("error: --step must be positive", file=sys.stderr)
+        return 1
+    d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step)
+    s = d.scores
+    b = int(s.order()[0])
+    print(f"wrote {args.output}: {n} pages; {d.vehicle.name}; best spot '{s.names[b]}' at {s.margin_db[b]:+.1f} dB "
+          f"(worst wheel {s.wheel_ids[s.worst_wheel[b]]})")
+    for p in (args.csv, args.json):
+        if p:
+            print(f"wrote {p}")
+    return 0
+
+
+def _cmd_compare(args) -> int:
+    from app.compare_report import comparison_csv, comparison_text
+    from core.compare import NoSharedRegion, compare_bodies, search_common_position
+    from core.scoring import Scene
+    from core.vehicle import atomic_write_text, load_vehicle
+
+    vehicles = [load_vehicle(f) for f in args.files]  # a bad file stops here with its located message
+    scenes = [Scene.from_vehicle(v) for v in vehicles]
+    c = compare_bodies(vehicles, scenes)
+    search, err = None, ""
+    if not args.no_search:
+        try:
+            search = search_common_position(vehicles, args.landmark, args.search_step, args.above_floor, scenes)
+        except NoSharedRegion as e:
+            err = str(e)
+    print(comparison_text(c, search, err))
+    if args.csv:
+        atomic_write_text(Path(args.csv), comparison_csv(c, search))
+        print(f"wrote {args.csv}")
+    if args.output:
+        import os
+
+        os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+        from app.compare_report import write_comparison_pdf
+
+        n = write_comparison_pdf(args.output, vehicles, list(args.files), c, search, err)
+        print(f"wrote {args.output}: {n} pages")
+    return 0
+
+
+def register(sub) -> None:
+    r = sub.add_parser("report", help="write the placement report of a vehicle file as PDF (and CSV/JSON data)")
+    r.add_argument("file")
+    r.add_argument("-o", "--output", required=True, metavar="OUT.pdf", help="PDF to write")
+    r.add_argument("--csv", metavar="OUT.csv", help="also write the report's numbers as CSV")
+    r.add_argument("--json", metavar="OUT.json", help="also write the report's numbers as JSON")
+    r.add_argument("--step", type=float, default=0.05, help="heatmap cell spacing, m (default 0.05)")
+    r.set_defaults(func=_cmd_report)
+    c = sub.add_parser("compare", help="compare spots across several bodies; name the platform-common best spot")
+    c.add_argument("files", nargs="+", metavar="FILE")
+    c.add_argument("-o", "--output", metavar="OUT.pdf", help="also write the comparison as PDF")
+    c.add_argument("--csv", metavar="OUT.csv", help="also write the table as CSV")
+    c.add_argument("--landmark", choices=[x for x in LANDMARKS], default="rear_axle",
+                   help="landmark the shared mounting region is measured from (default rear_axle)")
+    c.add_argument("--above-floor", type=float, metavar="H",
+                   help="search at H m above each body's floor (default: each body's own region height)")
+    c.add_argument("--search-step", type=float, default=0.10, help="grid spacing of the search, m (default 0.10)")
+    c.add_argument("--no-search", action="store_true", help="skip the shared-region search")
+    c.set_defaults(func=_cmd_compare)

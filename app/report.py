@@ -1,0 +1,517 @@
+"""The placement report: a PDF drawn with Qt (QPdfWriter, QTextDocument, QPainter), no browser.
+
+``write_report(path_or_vehicle, out_pdf, ...)`` runs the engine (app.report_data), lays the report
+out on A4 pages and writes it atomically: the PDF goes to a temporary file beside the target and is
+renamed only when complete, so a bad vehicle file (VehicleFileError with its located message) or
+any failure leaves no partial PDF. ``--csv`` / ``--json`` exports with the same numbers go beside it.
+
+Text is drawn as text (selectable); figures are vector drawings (app.report_figures) except the
+heatmap cells, which are an image. Pages are numbered "page i of N".
+"""
+
+from __future__ import annotations
+
+import html
+import os
+import tempfile
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+from PySide6.QtCore import QMarginsF, QPointF, QRectF
+from PySide6.QtGui import (
+    QAbstractTextDocumentLayout,
+    QColor,
+    QFont,
+    QFontMetricsF,
+    QPageLayout,
+    QPageSize,
+    QPainter,
+    QPdfWriter,
+    QTextDocument,
+)
+
+from app import report_figures as fig
+from app.report_data import CAUTION, MPS_TO_KMH, ReportData, build_report_data, report_csv, report_json_text
+from core.vehicle import atomic_write_text
+
+DPI = 300
+S = DPI / 72.0  # device pixels per point
+PAGE_W_PT, PAGE_H_PT = 595.0, 842.0  # A4
+MARGIN_PT = 46.0
+FOOTER_PT = 30.0
+HEADER_PT = 18.0
+
+
+def _ensure_app():
+    """QTextDocument and fonts need a Qt application object (a GUI one for fonts)."""
+    from PySide6.QtWidgets import QApplication
+
+    if QApplication.instance() is None:
+        os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+        _ensure_app.app = QApplication([])  # kept alive for the process
+    return QApplication.instance()
+
+
+CSS = """
+body { font-family: 'DejaVu Sans'; font-size: 8.5pt; color: #202020; }
+h1 { font-size: 16pt; margin: 0; }
+h2 { font-size: 12pt; margin-top: 0; margin-bottom: 4px; }
+h3 { font-size: 10pt; margin-top: 0; margin-bottom: 3px; }
+p { margin-top: 0; margin-bottom: 5px; }
+table { border-collapse: collapse; }
+th { background-color: #e8e8e8; font-weight: bold; text-align: left; }
+td, th { border: 0.5px solid #b0b0b0; padding: 2px; vertical-align: top; }
+td.n, th.n { text-align: right; }
+tr.hl td { background-color: #fff2b3; }
+.small { font-size: 7pt; }
+.mono { font-family: 'DejaVu Sans Mono'; font-size: 7.5pt; }
+.caution { background-color: #fdf0e6; }
+"""
+
+
+class Flow:
+    """Blocks laid out top to bottom on pages; each page is a list of (y, height, draw(painter, rect))."""
+
+    def __init__(self, device):
+        self.device = device
+        self.left = MARGIN_PT * S
+        self.width = (PAGE_W_PT - 2 * MARGIN_PT) * S
+        self.top = (MARGIN_PT + HEADER_PT) * S
+        self.bottom = (PAGE_H_PT - MARGIN_PT - FOOTER_PT + 10) * S
+        self.pages: list[list[tuple[float, float, Callable]]] = [[]]
+        self.y = self.top
+
+    @property
+    def room(self) -> float:
+        return self.bottom - self.y
+
+    def new_page(self) -> None:
+        if self.pages[-1]:
+            self.pages.append([])
+        self.y = self.top
+
+    def add(self, height: float, draw: Callable, gap_pt: float = 6.0) -> None:
+        if height > self.room and self.y > self.top:
+            self.new_page()
+        self.pages[-1].append((self.y, height, draw))
+        self.y += height + gap_pt * S
+
+    def space(self, pt: float) -> None:
+        self.y += pt * S
+
+    # ----- text --------------------------------------------------------------------------------
+    def doc(self, body_html: str, width: float | None = None) -> QTextDocument:
+        d = QTextDocument()
+        d.documentLayout().setPaintDevice(self.device)
+        d.setDefaultFont(fig.no_ligatures(QFont("DejaVu Sans", 9)))
+        d.setDefaultStyleSheet(CSS)
+        d.setDocumentMargin(0)
+        d.setHtml(f"<html><body>{body_html}</body></html>")
+        d.setTextWidth(width or self.width)
+        return d
+
+    def html(self, body_html: str, gap_pt: float = 4.0, keep: float = 0.0) -> None:
+        d = self.doc(body_html)
+        h = d.size().height()
+        if keep and h + keep > self.room and self.y > self.top:
+            self.new_page()
+        self.add(h, _draw_doc(d), gap_pt)
+
+    def table(self, head: list[str], rows: list[list[str]], widths: list[int], numeric: set[int] = frozenset(),
+              caption: str = "", highlight: set[int] = frozenset(), small: bool = False) -> None:
+        """An HTML table split over pages between rows; the header repeats on each part."""
+
+        # an inline style replaces the style sheet's cell rules in Qt's rich text: repeat them
+        st = ' style="font-size:7.5pt; border: 0.5px solid #b0b0b0; padding: 2px"' if small else ""
+        sth = (' style="font-size:7.5pt; border: 0.5px solid #b0b0b0; padding: 2px; background-color: #e8e8e8"'
+               if small else "")
+
+        def render(part: list[int], with_caption: bool) -> QTextDocument:
+            cols = "".join(f'<th width="{w}%" class="{"n" if k in numeric else ""}"{sth}>{h}</th>'
+                           for k, (h, w) in enumerate(zip(head, widths)))
+            body = []
+            for r in part:
+                stc = st
+                if small and r in highlight:
+                    stc = st[:-1] + '; background-color: #fff2b3"'
+                cells = "".join(f'<td class="{"n" if k in numeric else ""}"{stc}>{c}</td>' for k, c in enumerate(rows[r]))
+                body.append(f'<tr class="{"hl" if r in highlight else ""}">{cells}</tr>')
+            cap = f"<h3>{caption}</h3>" if with_caption and caption else ""
+            return self.doc(f'{cap}<table width="100%" cellspacing="0" cellpadding="2"><tr>{cols}</tr>'
+                            f'{"".join(body)}</table>')
+
+        start, first = 0, True
+        while start < len(rows) or (first and not rows):
+            end = start + 1
+            best = render(list(range(start, min(end, len(rows)))), first)
+            while end < len(rows):
+                trial = render(list(range(start, end + 1)), first)
+                if trial.size().height() > self.room:
+                    break
+                best, end = trial, end + 1
+            if best.size().height() > self.room and self.y > self.top:
+                self.new_page()
+                continue
+            self.add(best.size().height(), _draw_doc(best), 6)
+            start, first = end, False
+            if not rows:
+                break
+
+
+def _draw_doc(d: QTextDocument) -> Callable:
+    def draw(p: QPainter, rect: QRectF) -> None:
+        p.save()
+        p.translate(rect.topLeft())
+        ctx = QAbstractTextDocumentLayout.PaintContext()
+        d.documentLayout().draw(p, ctx)
+        p.restore()
+
+    return draw
+
+
+def esc(x) -> str:
+    return html.escape(str(x))
+
+
+# ----- report content ---------------------------------------------------------------------------
+def _title_page(f: Flow, d: ReportData) -> None:
+    v = d.vehicle
+    f.html(f"<h1>Receiver placement report</h1><p style='font-size:11pt'>{esc(v.name)} "
+           f"&mdash; body style: {esc(v.body_style)}</p>", 6)
+    rows = [
+        ["Vehicle", esc(v.name)],
+        ["Body style", esc(v.body_style)],
+        ["Description", esc(v.description) or "&ndash;"],
+        ["Input", esc(d.source)],
+        [f"SHA-256 of the {esc(d.hash_of)}", f"<span class='mono'>{d.sha256}</span>"],
+        ["Date", d.created.strftime("%Y-%m-%d %H:%M %Z").strip()],
+        ["Program", f"Wheelreach {esc(d.program_version)}"],
+        ["Wheel model", esc(d.scene.wheel_model_label)],
+        ["Body", (f"{len(v.wheels)} wheels ({', '.join(w.id for w in v.wheels)}), {len(v.zones)} panel zones, "
+                  f"{len(v.spots)} candidate spots, {len(v.regions)} mounting regions")],
+    ]
+    f.table(["Item", "Value"], rows, [26, 74])
+    paras = "".join(f"<p>{esc(t)}</p>" for t in d.findings.split("\n\n"))
+    f.html(f"<h2>Findings</h2>{paras}", 4)
+    f.html(f"<table width='100%' cellpadding='5'><tr><td class='caution'><b>{esc(CAUTION)}</b></td></tr></table>", 8)
+    f.html("<h2>Radio setup</h2>", 2, keep=120 * S)
+    f.table(["Quantity", "Value", "Source or note"], [[esc(a), esc(b), f"<span class='small'>{esc(c)}</span>"]
+                                                       for a, b, c in d.radio_rows], [20, 30, 50])
+    f.html("<h2>Materials</h2><p>Crossing loss of each panel material at the frequency, and where the value comes "
+           "from. Values marked <i>engineering default</i> are parameters, not published figures: replace them by "
+           "measurements where available.</p>", 2, keep=120 * S)
+    rows = []
+    for m in d.materials:
+        kind = "engineering default" if m["engineering_default"] else "published / by definition"
+        rows.append([esc(m["material"]), f"{m['loss_db']:.2f}", esc(kind),
+                     f"<span class='small'>{esc(', '.join(m['used_by']))}</span>",
+                     f"<span class='small'>{esc(m['source'])}</span>"])
+    f.table(["Material", "Loss dB", "Kind", "Used by", "Source"], rows, [11, 8, 14, 22, 45], numeric={1})
+
+
+def _ranked(d: ReportData) -> tuple[list[int], dict[int, int]]:
+    order = [int(i) for i in d.scores.order()]
+    return order, {i: k + 1 for k, i in enumerate(order)}
+
+
+def _drawings(f: Flow, d: ReportData) -> None:
+    v, sc = d.vehicle, d.scores
+    order, rank = _ranked(d)
+    f.new_page()
+    f.html("<h2>Body drawings</h2><p>Top and side view of the body without wheel arches, with the panel zones "
+           "(filled by material), the wheels, the mounting regions (dashed) and the candidate spots numbered by "
+           "rank.</p>", 2)
+    labels = [str(rank[i]) for i in range(len(sc.names))]
+    h = fig.body_views_height(v, f.width, S)
+    f.add(h, lambda p, r: fig.draw_body_views(p, r, S, v, sc.positions, labels, highlight=order[0]))
+    mats = sorted({z.material for z in v.zones})
+    key = " &nbsp; ".join(f"<span style='background-color:{fig.material_colour(m, 255).name()}'>&nbsp;&nbsp;&nbsp;"
+                          f"</span> {esc(m)}" for m in mats)
+    f.html(f"<p class='small'>Zones: {key} &nbsp; (body panels outside any zone: metal). The ringed spot is the "
+           f"best ranked.</p>", 2)
+    rows = [[str(rank[i]), esc(sc.names[i]), *(f"{c:.3f}" for c in sc.positions[i]), _spot_def(v, sc.names[i])]
+            for i in order]
+    f.table(["#", "Spot", "x m", "y m", "z m", "Defined as"], rows, [5, 30, 9, 9, 9, 38], numeric={0, 2, 3, 4},
+            caption="Spot key")
+
+
+def _spot_def(v, name: str) -> str:
+    s = next((s for s in v.spots if s.name == name), None)
+    if s is None:
+        return ""
+    if s.x_from == "origin" and s.z_from == "ground":
+        return "vehicle axes"
+    xs = f"x = {s.x_m:+.3f} m from the {s.x_from.replace('_', ' ')}" if s.x_from != "origin" else f"x = {s.x_m:.3f} m"
+    zs = f"z = {s.z_m:.3f} m above the floor" if s.z_from == "floor" else f"z = {s.z_m:.3f} m"
+    return esc(f"{xs}; {zs}")
+
+
+def _heatmaps(f: Flow, d: ReportData) -> None:
+    if not d.heatmaps:
+        return
+    v, sc = d.vehicle, d.scores
+    _, rank = _ranked(d)
+    labels = [str(rank[i]) for i in range(len(sc.names))]
+    f.new_page()
+    f.html("<h2>Heatmaps of the mounting regions</h2><p>Worst-wheel worst-case margin of a receiver placed in each "
+           "cell (default receiver axis), colour bar in dB; the black line is the 0 dB contour (the edge of the area "
+           "that meets the required margin). Spots numbered by rank.</p>", 2)
+    for region, hm in zip(d.regions, d.heatmaps):
+        h = fig.heatmap_height(v, hm, f.width, S)
+        f.add(h, lambda p, r, hm=hm, region=region: fig.draw_heatmap(p, r, S, v, hm, region, sc.positions, labels,
+                                                                     sc.wheel_ids), gap_pt=2)
+        cells = int(np.isfinite(hm.margin_db).sum())
+        ok = int((hm.margin_db >= 0).sum())
+        best = hm.best_cells(1)
+        txt = f"{cells} cells, {ok} ({100 * ok / max(cells, 1):.0f} %) with margin &ge; 0 dB"
+        if best:
+            x, y, z, m, w = best[0]
+            txt += (f"; best cell ({x:.2f}, {y:.2f}, {z:.2f}) m at {m:+.1f} dB, limited by {d.scene.wheel_ids[w]}; "
+                    f"worst {np.nanmin(hm.margin_db):+.1f} dB")
+        f.html(f"<p class='small'>{txt}.</p>", 8)
+
+
+def _ranking(f: Flow, d: ReportData) -> None:
+    sc = d.scores
+    order, _ = _ranked(d)
+    f.new_page()
+    f.html(f"<h2>Ranked spots</h2><p>Margin = worst-case level of the worst wheel &minus; sensitivity "
+           f"({sc.sensitivity_dbm:.1f} dBm) &minus; required margin ({sc.required_margin_db:.1f} dB). Ranked by "
+           f"margin, ties by the worst wheel's median. Swing = largest level swing of a wheel over the turn.</p>", 2)
+    rows = []
+    for k, i in enumerate(order, 1):
+        w = int(sc.worst_wheel[i])
+        x, y, z = sc.positions[i]
+        rows.append([str(k), esc(sc.names[i]) + (" <i>(near field)</i>" if sc.near_field[i] else ""),
+                     f"{x:.3f}", f"{y:.3f}", f"{z:.3f}", f"<b>{sc.margin_db[i]:+.1f}</b>", esc(sc.wheel_ids[w]),
+                     f"{sc.worst_angle_deg[i, w]:.0f}", f"{sc.worst_dbm[i, w]:.1f}", f"{sc.median_dbm[i, w]:.1f}",
+                     f"{sc.swing_db()[i].max():.1f}"])
+    f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "Worst wheel", "at deg", "Worst dBm", "Median dBm",
+             "Swing dB"], rows, [4, 26, 7, 7, 7, 9, 8, 7, 9, 9, 7], numeric={0, 2, 3, 4, 5, 7, 8, 9, 10},
+            highlight={0})
+    head = ["Spot"] + [esc(w) for w in sc.wheel_ids]
+    rows = [[esc(sc.names[i])] + [f"{sc.worst_dbm[i, w]:.1f} @ {sc.worst_angle_deg[i, w]:.0f}&deg;"
+                                  + ("*" if w == sc.worst_wheel[i] else "") for w in range(len(sc.wheel_ids))]
+            for i in order]
+    nw = len(sc.wheel_ids)
+    f.table(head, rows, [28] + [int(72 / nw)] * nw, numeric=set(range(1, nw + 1)),
+            caption="Worst case per wheel (dBm at wheel angle; * = the spot's limiting wheel)")
+
+
+def _details(f: Flow, d: ReportData) -> None:
+    sc = d.scores
+    for det in d.details:
+        i = det.index
+        w = int(sc.worst_wheel[i])
+        f.new_page()
+        f.html(f"<h2>Spot {det.rank}: {esc(sc.names[i])}</h2><p>Position ({', '.join(f'{c:.3f}' for c in sc.positions[i])})"
+               f" m; margin <b>{sc.margin_db[i]:+.1f} dB</b>, limited by wheel {esc(sc.wheel_ids[w])} at "
+               f"{sc.worst_dbm[i, w]:.1f} dBm, wheel angle {sc.worst_angle_deg[i, w]:.0f}&deg;."
+               + (" <b>Near field:</b> a sensor comes within lambda/2pi; the result is indicative only." if
+                  sc.near_field[i] else "") + "</p>", 2)
+        f.add(230 * S, lambda p, r, i=i: fig.draw_levels(p, r, S, sc, i))
+        half = (f.width - 12 * S) / 2
+        b, dd = det.burst, det.distinctness
+
+        def two(p, r, b=b, dd=dd, i=i, half=half):
+            fig.draw_burst(p, QRectF(r.left(), r.top(), half, r.height()), S, b, MPS_TO_KMH)
+            fig.draw_distinctness(p, QRectF(r.left() + half + 12 * S, r.top(), half, r.height()), S,
+                                  sc.levels_dbm[i], dd)
+
+        f.add(190 * S, two)
+        rows = []
+        for k, wid in enumerate(sc.wheel_ids):
+            vi = int(np.argmin(b.success[k]))
+            rs = ", ".join(f"{x * MPS_TO_KMH:.0f}" for x in b.resonant_mps[k]) or "none in range"
+            rows.append([esc(wid), f"{sc.worst_dbm[i, k]:.1f}", f"{sc.worst_angle_deg[i, k]:.0f}",
+                         f"{sc.median_dbm[i, k]:.1f}", f"{sc.swing_db()[i, k]:.1f}", f"{100 * b.parked[k]:.0f}",
+                         f"{100 * b.success[k, vi]:.0f} at {b.speeds_mps[vi] * MPS_TO_KMH:.0f}", rs])
+        f.table(["Wheel", "Worst dBm", "at deg", "Median dBm", "Swing dB", "Parked %", "Lowest burst % at km/h",
+                 "Resonant speeds km/h"], rows, [8, 10, 8, 11, 9, 9, 18, 27], numeric={1, 2, 3, 4, 5})
+        if len(dd.wheel_ids) > 1:
+            a, c = dd.closest_pair
+            f.html(f"<p class='small'>Wheel distinctness: closest pair {esc(dd.wheel_ids[a])}/{esc(dd.wheel_ids[c])}, "
+                   f"medians {dd.min_separation_db:.1f} dB apart, {100 * dd.closest_overlap:.0f} % of the quieter "
+                   f"wheel's frames louder than the other's median (figure: line = full range over the turn, box = "
+                   f"25-75 %, bar = median). Burst: {d.vehicle.radio.frames_per_burst} frames "
+                   f"every {d.vehicle.radio.frame_interval_s * 1e3:.0f} ms; success = share of start angles with at "
+                   f"least one frame at or above the sensitivity.</p>", 2)
+
+
+def _closing(f: Flow, d: ReportData) -> None:
+    f.html("<h2>Method and limits</h2><p>Received level per wheel and wheel angle: sensor EIRP + antenna pattern "
+           "and polarization terms + receiver gain &minus; free-space loss (Friis, ITU-R P.525) &minus; wheel "
+           "shadowing &minus; body crossings (2.5-D hull; per-panel crossing loss weighed against the dominant "
+           "edge's ITU-R P.526 knife-edge loss) with an optional two-ray road reflection (Fresnel coefficient, "
+           "ITU-R P.2040 material parameters). The worst case over one turn sets the margin; the spot margin is its "
+           "worst wheel's.</p>"
+           f"<p>Data export: the same numbers are available as CSV and JSON from <span class='mono'>wheelreach report "
+           f"FILE -o OUT.pdf --csv OUT.csv --json OUT.json</span> (heatmap cells of {d.step_m * 1000:.0f} mm).</p>",
+           6, keep=80 * S)
+    f.html(f"<table width='100%' cellpadding='5'><tr><td class='caution'><b>{esc(CAUTION)}</b></td></tr></table>", 4)
+
+
+def layout_report(f: Flow, d: ReportData) -> None:
+    _title_page(f, d)
+    _drawings(f, d)
+    _heatmaps(f, d)
+    _ranking(f, d)
+    _details(f, d)
+    _closing(f, d)
+
+
+# ----- painting -------------------------------------------------------------------------------
+def paint_pages(writer: QPdfWriter, f: Flow, header: str, footer: str) -> int:
+    p = QPainter()
+    if not p.begin(writer):
+        raise OSError("cannot start the PDF writer")
+    try:
+        n = len(f.pages)
+        for k, blocks in enumerate(f.pages):
+            if k:
+                writer.newPage()
+            p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+            for y, h, draw in blocks:
+                draw(p, QRectF(f.left, y, f.width, h))
+            p.setFont(fig.font(7, s=S))
+            fm = QFontMetricsF(p.font())
+            p.setPen(QColor(90, 90, 90))
+            ytop = MARGIN_PT * S
+            p.drawText(QPointF(f.left, ytop + fm.ascent()), header)
+            p.setPen(fig.pen(QColor(170, 170, 170), 0.5, S))
+            p.drawLine(QPointF(f.left, ytop + fm.height() + 2 * S), QPointF(f.left + f.width, ytop + fm.height() + 2 * S))
+            yb = (PAGE_H_PT - MARGIN_PT) * S
+            p.drawLine(QPointF(f.left, yb - fm.height() - 3 * S), QPointF(f.left + f.width, yb - fm.height() - 3 * S))
+            p.setPen(QColor(90, 90, 90))
+            p.drawText(QPointF(f.left, yb - fm.descent()), footer)
+            num = f"page {k + 1} of {n}"
+            p.drawText(QPointF(f.left + f.width - fm.horizontalAdvance(num), yb - fm.descent()), num)
+    finally:
+        p.end()
+    return n
+
+
+def new_writer(path: str, title: str) -> QPdfWriter:
+    w = QPdfWriter(path)
+    w.setResolution(DPI)
+    w.setPageLayout(QPageLayout(QPageSize(QPageSize.PageSizeId.A4), QPageLayout.Orientation.Portrait,
+                                QMarginsF(0, 0, 0, 0)))
+    w.setTitle(title)
+    w.setCreator("Wheelreach")
+    return w
+
+
+def render_pdf_atomic(out_pdf: str | os.PathLike, title: str, build: Callable[[Flow], None], header: str,
+                      footer: str) -> int:
+    """Lay out with ``build(flow)`` and paint to a temporary PDF beside ``out_pdf``; rename when complete."""
+    _ensure_app()
+    out = Path(out_pdf)
+    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=out.parent if str(out.parent) else ".")
+    os.close(fd)
+    try:
+        writer = new_writer(tmp, title)
+        f = Flow(writer)
+        build(f)
+        n = paint_pages(writer, f, header, footer)
+        del writer  # flushes and closes the file
+        with open(tmp, "rb") as fh:
+            os.fsync(fh.fileno())
+        os.replace(tmp, out)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+    return n
+
+
+def write_report_pdf(d: ReportData, out_pdf: str | os.PathLike) -> int:
+    """Write the PDF of report data ``d``; returns the page count."""
+    return render_pdf_atomic(
+        out_pdf, f"Receiver placement report: {d.vehicle.name}", lambda f: layout_report(f, d),
+        header=f"Wheelreach receiver placement report  |  {d.vehicle.name} ({d.vehicle.body_style})",
+        footer=f"SHA-256 {d.sha256[:16]}...  |  {d.created.strftime('%Y-%m-%d')}  |  results approximate: "
+               f"confirm by simulation and measurement",
+    )
+
+
+def write_report(path_or_vehicle, out_pdf, csv_path=None, json_path=None, step_m: float = 0.05,
+                 progress=None, cancel=None) -> tuple[ReportData, int]:
+    """Compute and write the report (and the CSV/JSON exports). Returns (data, page count).
+
+    A bad vehicle file raises VehicleFileError before anything is written."""
+    d = build_report_data(path_or_vehicle, step_m, progress=progress, cancel=cancel)
+    n = write_report_pdf(d, out_pdf)
+    if csv_path:
+        atomic_write_text(Path(csv_path), report_csv(d))
+    if json_path:
+        atomic_write_text(Path(json_path), report_json_text(d))
+    return d, n
+
+
+# ----- GUI entry point ---------------------------------------------------------------------------
+def export_report_dialog(parent, vehicle_path_or_vehicle, step_m: float = 0.05):
+    """Ask for a PDF name, compute the report in a worker thread (progress, cancel) and write it.
+
+    ``vehicle_path_or_vehicle``: a file path, or the Vehicle being edited (then the hash covers its
+    canonical JSON). Returns the written path, or None when cancelled or failed (a message box says why).
+    """
+    from PySide6.QtCore import QThread, Signal
+    from PySide6.QtWidgets import QFileDialog, QMessageBox, QProgressDialog
+
+    from core.scoring import Cancelled
+    from core.vehicle import Vehicle, VehicleFileError
+
+    src = vehicle_path_or_vehicle
+    stem = Path(src).stem if not isinstance(src, Vehicle) else "report"
+    start = str(Path(src).with_suffix(".pdf")) if not isinstance(src, Vehicle) else "report.pdf"
+    path, _ = QFileDialog.getSaveFileName(parent, "Export placement report", start, "PDF files (*.pdf)")
+    if not path:
+        return None
+    if not path.lower().endswith(".pdf"):
+        path += ".pdf"
+
+    class Worker(QThread):
+        step = Signal(int, int)
+
+        def __init__(self):
+            super().__init__()
+            self.result = None
+            self.error = None
+            self.stop = False
+
+        def run(self):
+            try:
+                self.result = build_report_data(src, step_m, progress=lambda a, b: self.step.emit(a, b),
+                                                cancel=lambda: self.stop)
+            except Cancelled:
+                self.error = None
+            except Exception as e:  # noqa: BLE001 - any failure is reported to the user in the GUI thread
+                self.error = e
+
+    dlg = QProgressDialog(f"Computing the report of {stem}...", "Cancel", 0, 100, parent)
+    dlg.setWindowTitle("Export placement report")
+    dlg.setMinimumDuration(0)
+    w = Worker()
+    w.step.connect(lambda a, b: (dlg.setMaximum(max(1, b)), dlg.setValue(a)))
+    dlg.canceled.connect(lambda: setattr(w, "stop", True))
+    w.finished.connect(dlg.reset)
+    w.start()
+    dlg.exec()
+    w.wait()
+    if w.error is not None:
+        msg = str(w.error) if isinstance(w.error, VehicleFileError) else f"{type(w.error).__name__}: {w.error}"
+        QMessageBox.warning(parent, "Export placement report", f"The report was not written.\n\n{msg}")
+        return None
+    if w.result is None:
+        return None
+    try:
+        n = write_report_pdf(w.result, path)
+    except OSError as e:
+        QMessageBox.warning(parent, "Export placement report", f"The report was not written.\n\n{e}")
+        return None
+    if parent is not None and hasattr(parent, "statusBar"):
+        parent.statusBar().showMessage(f"Wrote {path} ({n} pages)", 8000)
+    return path

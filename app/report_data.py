@@ -1,0 +1,399 @@
+"""The numbers of a placement report, computed once and shared by the PDF, the CSV and the JSON export.
+
+No Qt here: ``build_report_data`` runs the engine (scores, heatmaps, bursts, distinctness) and
+writes the findings paragraph from the results; ``report_json`` and ``report_csv`` give the data
+export that sits beside the PDF (docs/report-export.md describes both).
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import json
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+
+import numpy as np
+
+from app.cli_engine import rank_document
+from core.burst import BurstResult, burst_for_spot
+from core.distinctness import Distinctness, wheel_distinctness
+from core.materials import BUILTIN_MATERIALS, ROAD_SURFACES, material_loss_db
+from core.propagation import near_field_limit_m
+from core.regulatory import eirp_ceiling_dbm
+from core.scoring import Heatmap, Scene, SpotScores, heatmap, score_vehicle
+from core.vehicle import Region, Vehicle, load_vehicle, vehicle_to_json
+
+#: how many of the best spots get their own page (levels, burst, distinctness)
+DETAIL_SPOTS = 3
+MPS_TO_KMH = 3.6
+
+CAUTION = (
+    "Caution: the tire-pressure warning is a safety function required by law in many markets. "
+    "Wheelreach is an early placement aid built on simplified models, so its results are approximate: "
+    "confirm the receiver location by detailed simulation and by measurements on the vehicle. "
+    "Radio limits follow the rules of each market and licensed practice."
+)
+
+
+def program_version() -> str:
+    try:
+        return version("wheelreach")
+    except PackageNotFoundError:  # running from a source tree that was not installed
+        return "unknown (not installed)"
+
+
+@dataclass(frozen=True)
+class SpotDetail:
+    """The detail page of one of the best spots."""
+
+    index: int  # into scores
+    rank: int
+    burst: BurstResult
+    distinctness: Distinctness
+
+
+@dataclass(frozen=True)
+class ReportData:
+    """Everything a placement report shows (SI units, dB)."""
+
+    vehicle: Vehicle
+    source: str  # file path, or a description of an in-memory document
+    sha256: str
+    hash_of: str  # what the hash covers
+    created: datetime
+    program_version: str
+    scene: Scene
+    scores: SpotScores
+    ranking: dict  # rank_document(v, scores): the JSON of ``wheelreach rank --json``
+    regions: tuple[Region, ...]
+    heatmaps: tuple[Heatmap, ...]
+    step_m: float
+    details: tuple[SpotDetail, ...]
+    materials: tuple[dict, ...]
+    radio_rows: tuple[tuple[str, str, str], ...]  # (quantity, value, source / note)
+    findings: str = ""
+    eirp_note: str = ""
+    near_field_limit_m: float = 0.0
+    extra: dict = field(default_factory=dict)
+
+
+def file_sha256(raw: bytes) -> str:
+    return hashlib.sha256(raw).hexdigest()
+
+
+def load_for_report(path_or_vehicle) -> tuple[Vehicle, str, str, str]:
+    """(vehicle, source, sha256, what the hash covers); a bad file raises VehicleFileError."""
+    if isinstance(path_or_vehicle, Vehicle):
+        v = path_or_vehicle
+        raw = vehicle_to_json(v).encode("utf-8")
+        return v, "unsaved document", file_sha256(raw), "canonical JSON of the unsaved document"
+    p = Path(path_or_vehicle)
+    v = load_vehicle(p)  # raises VehicleFileError with the located message
+    raw = p.read_bytes()
+    return v, str(p), file_sha256(raw), "input file"
+
+
+def _materials_in_use(v: Vehicle) -> tuple[dict, ...]:
+    """The materials the body model uses, with their crossing loss at the frequency and source."""
+    used: list[tuple[str, str]] = [("metal", "body panels outside any zone")]
+    used.append((v.body.wheelhouse_material, "wheelhouse"))
+    for z in v.zones:
+        used.append((z.material, f"zone '{z.name}'"))
+    if v.radio.wheel_model == "knife_edge" or v.radio.sensor.pattern == "isotropic":
+        used += [("tire_sidewall", "tire sidewall"), ("tire_tread", "tire tread")]
+    rows: dict[str, dict] = {}
+    f = v.radio.frequency_hz
+    for name, where in used:
+        if name in rows:
+            if where not in rows[name]["used_by"]:
+                rows[name]["used_by"].append(where)
+            continue
+        if name in v.materials:
+            m = v.materials[name]
+            src = "value given in the vehicle file" + (f": {m.description}" if m.description else "")
+            default = False
+            loss = m.loss_db
+        else:
+            bm = BUILTIN_MATERIALS[name]
+            src, default = bm.source, bm.engineering_default
+            loss = float(material_loss_db(name, f))
+        rows[name] = {"material": name, "loss_db": float(loss), "source": src,
+                      "engineering_default": bool(default), "used_by": [where]}
+    return tuple(rows.values())
+
+
+def _radio_rows(v: Vehicle, scene: Scene) -> tuple[tuple[tuple[str, str, str], ...], str]:
+    r = v.radio
+    s, rx = r.sensor, r.receiver
+    if s.eirp_dbm is not None:
+        eirp = (f"{s.eirp_dbm:.1f} dBm", "given in the file (peak EIRP)")
+    else:
+        eirp = (f"{r.sensor_eirp_dbm:.2f} dBm",
+                (f"conducted {s.conducted_power_dbm:.1f} dBm + antenna {s.antenna_gain_dbi:.1f} dBi - mismatch "
+                 f"loss of {s.return_loss_db:.1f} dB return loss (textbook transmission-line relation)"))
+    preset = eirp_ceiling_dbm(r.frequency_hz)
+    if preset is None:
+        eirp_note = "No radio-limit preset covers this frequency; check the market's rules."
+    else:
+        rel = "below" if r.sensor_eirp_dbm <= preset.eirp_dbm else "ABOVE"
+        eirp_note = (f"Sensor EIRP {r.sensor_eirp_dbm:.1f} dBm is {rel} the {preset.label} ceiling of "
+                     f"{preset.eirp_dbm:.2f} dBm ({preset.source}).")
+    road = ROAD_SURFACES[r.road_surface]
+    rows = [
+        ("Frequency", f"{r.frequency_hz / 1e6:.2f} MHz", f"wavelength {scene.wavelength_m:.3f} m"),
+        ("Sensor EIRP", *eirp),
+        ("Radio limit", f"{preset.eirp_dbm:.2f} dBm" if preset else "none built in",
+         preset.source if preset else "check the market's rules"),
+        ("Sensor antenna", f"{s.pattern}, {s.axis} axis", "short dipole directivity 1.5 (Balanis, Antenna Theory)"
+         if s.pattern == "dipole" else "isotropic"),
+        ("Sensor return loss", f"{s.return_loss_db:.1f} dB", "about 10 dB is common practice for a tuned sensor antenna"),
+        ("Receiver antenna", f"{rx.pattern}, gain {rx.gain_dbi:.1f} dBi, axis ({', '.join(f'{a:g}' for a in rx.axis)})",
+         "default axis; a spot may set its own"),
+        ("Receiver sensitivity", f"{rx.sensitivity_dbm:.1f} dBm", "from the file"),
+        ("Required margin", f"{r.required_margin_db:.1f} dB", "margin = worst level - sensitivity - required margin"),
+        ("Polarization null floor", f"{r.null_floor_db:.1f} dB", "engineering default for the dipole-dipole null"),
+        ("Wheel angles per turn", f"{r.angles_per_turn}", f"every {360 / r.angles_per_turn:g} deg"),
+        ("Worst case", "minimum over the turn" if r.worst_case_percentile <= 0
+         else f"{r.worst_case_percentile:g} % percentile over the turn", ""),
+        ("Burst", f"{r.frames_per_burst} frames every {r.frame_interval_s * 1e3:.0f} ms",
+         f"speeds {r.speed_min_mps * MPS_TO_KMH:.0f}-{r.speed_max_mps * MPS_TO_KMH:.0f} km/h"),
+        ("Road reflection", f"{'on' if r.ground_reflection else 'off'}, {r.road_surface}", road.note),
+        ("Wheel model", scene.wheel_model_label,
+         "ITU-R P.526 knife edge over the rim flange" if r.wheel_model == "knife_edge" else "full-wave table (NEC-2)"),
+        ("Free space", "Friis (ITU-R P.525)", f"near field below lambda/2pi = {float(near_field_limit_m(r.frequency_hz)):.3f} m"),
+    ]
+    return tuple(rows), eirp_note
+
+
+def _kmh_list(values) -> str:
+    return ", ".join(f"{v * MPS_TO_KMH:.0f}" for v in values)
+
+
+def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, regions, eirp_note: str) -> str:
+    order = scores.order()
+    b = int(order[0])
+    w = int(scores.worst_wheel[b])
+    m = float(scores.margin_db[b])
+    n_ok = int((scores.margin_db >= 0).sum())
+    parts = [
+        (f"The best of the {len(order)} candidate spots is '{scores.names[b]}' with a worst-case margin of "
+        f"{m:+.1f} dB (the required margin of {scores.required_margin_db:.1f} dB over the sensitivity of "
+        f"{scores.sensitivity_dbm:.1f} dBm is already taken off). Its weakest wheel is {scores.wheel_ids[w]}, "
+        f"at {scores.worst_dbm[b, w]:.1f} dBm at a wheel angle of {scores.worst_angle_deg[b, w]:.0f} deg.")
+    ]
+    if n_ok == 0:
+        parts.append(f"No spot meets the required margin; the best falls {-m:.1f} dB short.")
+    elif n_ok == len(order):
+        parts.append("Every spot meets the required margin.")
+    else:
+        passing = [f"'{scores.names[i]}'" for i in order if scores.margin_db[i] >= 0]
+        parts.append(f"{n_ok} of {len(order)} spots meet the required margin: {', '.join(passing)}.")
+    if len(order) > 1:
+        s2 = int(order[1])
+        parts.append(f"The runner-up is '{scores.names[s2]}' at {scores.margin_db[s2]:+.1f} dB.")
+    paras = [parts]
+    parts = []
+    paras.append(parts)
+    d0 = details[0]
+    br = d0.burst
+    wi, vi = br.worst()
+    res = {}
+    for wid, rs in zip(br.wheel_ids, br.resonant_mps):
+        if len(rs):
+            res.setdefault(_kmh_list(rs), []).append(wid)
+    if res:
+        txt = "; ".join(f"{k} km/h ({', '.join(ids)})" for k, ids in res.items())
+        parts.append(f"At the best spot the burst frames land on the same wheel angle every turn (resonant "
+                     f"speeds, no angle diversity) at {txt}.")
+    else:
+        parts.append("No resonant speed (frames landing on the same angle every turn) falls inside the speed range.")
+    parts.append(f"Its lowest burst success is {100 * br.success[wi, vi]:.0f} % for wheel {br.wheel_ids[wi]} at "
+                 f"{br.speeds_mps[vi] * MPS_TO_KMH:.0f} km/h; parked, the weakest wheel gets a frame through from "
+                 f"{100 * br.parked.min():.0f} % of its resting angles.")
+    dd = d0.distinctness
+    if len(dd.wheel_ids) > 1:
+        i, j = dd.closest_pair
+        parts.append(f"For wheel location by signal strength the closest pair there is {dd.wheel_ids[i]}/"
+                     f"{dd.wheel_ids[j]}, medians {dd.min_separation_db:.1f} dB apart with "
+                     f"{100 * dd.closest_overlap:.0f} % overlap.")
+    parts = []
+    paras.append(parts)
+    nf = [scores.names[i] for i in order if scores.near_field[i]]
+    lim = float(near_field_limit_m(scene.freq_hz))
+    if nf:
+        parts.append(f"Near-field warning: {', '.join(repr(n) for n in nf)} come within lambda/2pi = {lim:.3f} m "
+                     f"of a sensor; the far-field model is only indicative there.")
+    else:
+        parts.append(f"No spot comes within the near field (lambda/2pi = {lim:.3f} m) of a sensor.")
+    for r, hm in zip(regions, heatmaps):
+        cells = int(np.isfinite(hm.margin_db).sum())
+        if not cells:
+            continue
+        ok = int((hm.margin_db >= 0).sum())
+        x, y, z, mm, ww = hm.best_cells(1)[0]
+        parts.append(f"In region '{r.name}' {ok} of {cells} cells ({100 * ok / cells:.0f} %) meet the margin; the best "
+                     f"cell, at ({x:.2f}, {y:.2f}, {z:.2f}) m, reaches {mm:+.1f} dB (limited by {scene.wheel_ids[ww]}).")
+    paras.append([eirp_note])
+    return "\n\n".join(" ".join(p) for p in paras if p)
+
+
+def build_report_data(
+    path_or_vehicle,
+    step_m: float = 0.05,
+    progress: Callable[[int, int], None] | None = None,
+    cancel: Callable[[], bool] | None = None,
+    now: datetime | None = None,
+) -> ReportData:
+    """Run the engine for a report. ``progress(done, total)`` counts heatmap cells over all regions."""
+    v, source, sha, hash_of = load_for_report(path_or_vehicle)
+    if not v.spots:
+        from core.vehicle import VehicleFileError
+
+        raise VehicleFileError("the file has no receiver spots; a placement report needs at least one", "spots",
+                               source if source != "unsaved document" else None)
+    scene = Scene.from_vehicle(v)
+    scores = score_vehicle(v, scene)
+    ranking = rank_document(v, scores)
+    regions = tuple(v.regions)
+    from core.scoring import grid_for_region
+
+    sizes = [int(grid_for_region(r, step_m)[2].sum()) for r in regions]
+    total = max(1, sum(sizes))
+    done = [0]
+    maps = []
+    for r, n in zip(regions, sizes):
+        base = done[0]
+
+        def sub(d, t, base=base):
+            if progress:
+                progress(base + d, total)
+
+        maps.append(heatmap(scene, r, step_m, progress=sub, cancel=cancel))
+        done[0] += n
+    order = scores.order()
+    details = tuple(
+        SpotDetail(int(i), k + 1, burst_for_spot(scene, scores, int(i)),
+                   wheel_distinctness(scores.levels_dbm[int(i)], scores.wheel_ids))
+        for k, i in enumerate(order[:DETAIL_SPOTS])
+    )
+    radio_rows, eirp_note = _radio_rows(v, scene)
+    data = ReportData(
+        vehicle=v, source=source, sha256=sha, hash_of=hash_of,
+        created=now or datetime.now(UTC).astimezone(),
+        program_version=program_version(), scene=scene, scores=scores, ranking=ranking,
+        regions=regions, heatmaps=tuple(maps), step_m=step_m, details=details,
+        materials=_materials_in_use(v), radio_rows=radio_rows, eirp_note=eirp_note,
+        near_field_limit_m=float(near_field_limit_m(scene.freq_hz)),
+    )
+    findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note)
+    return ReportData(**{**data.__dict__, "findings": findings})
+
+
+# ----- data export ---------------------------------------------------------------------------
+def _r(x, nd=3):
+    x = float(x)
+    return None if not np.isfinite(x) else round(x, nd)
+
+
+def report_json(d: ReportData) -> dict:
+    """The JSON export: title block, the ranking of ``wheelreach rank --json``, heatmap grids, details."""
+    maps = []
+    for r, hm in zip(d.regions, d.heatmaps):
+        maps.append({
+            "region": r.name,
+            "view": hm.view,
+            "fixed_coordinate": "z" if hm.view == "top" else "y",
+            "fixed_m": _r(hm.fixed_m, 4),
+            "step_m": hm.step_m,
+            "u_m": [_r(u, 4) for u in hm.u_m],
+            "v_m": [_r(x, 4) for x in hm.v_m],
+            "margin_db": [[_r(m) for m in row] for row in hm.margin_db],
+            "worst_wheel": [[d.scene.wheel_ids[w] if w >= 0 else None for w in row] for row in hm.worst_wheel],
+        })
+    details = []
+    for det in d.details:
+        b, dd = det.burst, det.distinctness
+        details.append({
+            "rank": det.rank,
+            "spot": d.scores.names[det.index],
+            "burst": {
+                "speeds_mps": [_r(s, 4) for s in b.speeds_mps],
+                "success": {wid: [_r(p, 4) for p in b.success[k]] for k, wid in enumerate(b.wheel_ids)},
+                "parked": {wid: _r(b.parked[k], 4) for k, wid in enumerate(b.wheel_ids)},
+                "resonant_mps": {wid: [_r(s, 4) for s in rs] for wid, rs in zip(b.wheel_ids, b.resonant_mps)},
+            },
+            "distinctness": {
+                "medians_dbm": {wid: _r(m) for wid, m in zip(dd.wheel_ids, dd.medians_dbm)},
+                "closest_pair": [dd.wheel_ids[dd.closest_pair[0]], dd.wheel_ids[dd.closest_pair[1]]],
+                "min_separation_db": _r(dd.min_separation_db),
+                "closest_overlap": _r(dd.closest_overlap, 4),
+            },
+        })
+    return {
+        "report": {
+            "vehicle": d.vehicle.name,
+            "body_style": d.vehicle.body_style,
+            "source": d.source,
+            "sha256": d.sha256,
+            "hash_of": d.hash_of,
+            "created": d.created.isoformat(timespec="seconds"),
+            "program_version": d.program_version,
+            "wheel_model": d.scene.wheel_model_label,
+            "heatmap_step_m": d.step_m,
+        },
+        "ranking": d.ranking,
+        "heatmaps": maps,
+        "details": details,
+        "materials": [dict(m) for m in d.materials],
+        "findings": d.findings,
+        "caution": CAUTION,
+    }
+
+
+CSV_COLUMNS = ("record", "rank", "spot", "region", "wheel", "x_m", "y_m", "z_m", "angle_deg", "level_dbm",
+               "worst_dbm", "median_dbm", "margin_db", "worst_wheel", "near_field")
+
+
+def report_csv(d: ReportData) -> str:
+    """One flat CSV; the ``record`` column says what a row is:
+
+    - ``spot``: rank, spot, x/y/z, margin_db, worst_wheel, angle_deg (of that worst case), near_field
+    - ``wheel``: spot, wheel, worst_dbm, angle_deg (of the worst case), median_dbm
+    - ``level``: spot, wheel, angle_deg, level_dbm (every angle of the turn)
+    - ``cell``: region, x/y/z, margin_db, worst_wheel (every heatmap cell inside the region)
+    """
+    buf = io.StringIO()
+    wr = csv.DictWriter(buf, fieldnames=CSV_COLUMNS, lineterminator="\n")
+    wr.writeheader()
+    for s in d.ranking["spots"]:
+        x, y, z = s["position_m"]
+        wr.writerow({"record": "spot", "rank": s["rank"], "spot": s["name"], "x_m": x, "y_m": y, "z_m": z,
+                     "margin_db": s["margin_db"], "worst_wheel": s["worst_wheel"],
+                     "angle_deg": s["worst_angle_deg"], "near_field": int(s["near_field"])})
+    for s in d.ranking["spots"]:
+        for w in s["wheels"]:
+            wr.writerow({"record": "wheel", "rank": s["rank"], "spot": s["name"], "wheel": w["wheel"],
+                         "worst_dbm": w["worst_dbm"], "angle_deg": w["worst_angle_deg"], "median_dbm": w["median_dbm"]})
+    angles = d.ranking["angles_deg"]
+    for s in d.ranking["spots"]:
+        for w in s["wheels"]:
+            for a, lv in zip(angles, w["levels_dbm"]):
+                wr.writerow({"record": "level", "rank": s["rank"], "spot": s["name"], "wheel": w["wheel"],
+                             "angle_deg": a, "level_dbm": lv})
+    for r, hm in zip(d.regions, d.heatmaps):
+        pts = hm.points().reshape(-1, 3)
+        for p, m, w in zip(pts, hm.margin_db.reshape(-1), hm.worst_wheel.reshape(-1)):
+            if np.isfinite(m):
+                wr.writerow({"record": "cell", "region": r.name, "x_m": round(float(p[0]), 4),
+                             "y_m": round(float(p[1]), 4), "z_m": round(float(p[2]), 4),
+                             "margin_db": round(float(m), 3), "worst_wheel": d.scene.wheel_ids[w]})
+    return buf.getvalue()
+
+
+def report_json_text(d: ReportData) -> str:
+    return json.dumps(report_json(d), indent=1) + "\n"
