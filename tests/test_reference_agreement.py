@@ -135,6 +135,10 @@ def test_end_face_in_both_outlines_takes_the_side_view_zone():
     assert ref.crossings(tuple(a[0]), tuple(b[0]))[0][1] == 0.0
     c = hull_crossings(scene.hull, a, b)
     assert c.loss_db[0, 0] == 0.0
+    # and leaving through the face (the path reversed)
+    assert ref.crossings(tuple(b[0]), tuple(a[0]))[-1][1] == 0.0
+    back = hull_crossings(scene.hull, b, a)
+    assert back.direction[0, 0] == -1 and back.loss_db[0, 0] == 0.0
 
 
 # ----- heatmap chunking --------------------------------------------------------------------
