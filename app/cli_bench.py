@@ -235,8 +235,19 @@ def _cmd_bench(args) -> int:
     figures = []
     for m in models:
         effective = m or v.radio.wheel_model
+        if effective == "installed_pattern":
+            from core.scoring import Scene
+
+            try:
+                Scene.from_vehicle(v, wheel_model=effective)
+            except (FileNotFoundError, ModuleNotFoundError) as e:
+                print(f"installed wheel patterns not available, not benched: {e}")
+                continue
         with_ref = effective == "knife_edge" and v.radio.sensor.pattern in ("dipole", "isotropic")
         figures.append((effective, bench_model(v, m, args.quick, repeats, show, with_ref)))
+    if not figures:
+        print("error: nothing to bench", file=sys.stderr)
+        return 1
     for name, fig in figures[1:]:
         print(f"{name}: {summary_line(fig)}")
     print(summary_line(figures[0][1]))
