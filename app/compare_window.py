@@ -269,6 +269,7 @@ class CompareWindow(QMainWindow):
                     it.setBackground(QBrush(COMMON_ROW))
                     it.setFont(bold)
                 it.setData(Qt.ItemDataRole.UserRole, int(i))
+                it.setFlags(it.flags() & ~Qt.ItemFlag.ItemIsEditable)
                 self.table.setItem(r, k, it)
         self.table.resizeColumnsToContents()
 

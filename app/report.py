@@ -275,7 +275,10 @@ def _heatmaps(f: Flow, d: ReportData) -> None:
 def _ranking(f: Flow, d: ReportData) -> None:
     sc = d.scores
     order, _ = _ranked(d)
-    f.new_page()
+    if f.room < 300 * S:
+        f.new_page()
+    else:
+        f.space(10)
     f.html(f"<h2>Ranked spots</h2><p>Margin = worst-case level of the worst wheel &minus; sensitivity "
            f"({sc.sensitivity_dbm:.1f} dBm) &minus; required margin ({sc.required_margin_db:.1f} dB). Ranked by "
            f"margin, ties by the worst wheel's median. Swing = largest level swing of a wheel over the turn.</p>", 2)

@@ -8,8 +8,8 @@ Text is extracted from the PDF with pypdf (a reader independent of Qt's writer).
 from __future__ import annotations
 
 import csv
-import io
 import hashlib
+import io
 import json
 import os
 import re
@@ -22,10 +22,10 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 pypdf = pytest.importorskip("pypdf")
 
-from app.cli import main  # noqa: E402
-from app.report_data import CAUTION  # noqa: E402
-from core.scoring import Scene, heatmap, score_vehicle  # noqa: E402
-from core.vehicle import load_vehicle  # noqa: E402
+from app.cli import main
+from app.report_data import CAUTION
+from core.scoring import Scene, heatmap, score_vehicle
+from core.vehicle import load_vehicle
 
 ROOT = Path(__file__).resolve().parents[1]
 SAMPLES = sorted((ROOT / "sample_vehicles").glob("*.json"))
@@ -134,7 +134,7 @@ def test_bad_file_fails_with_the_located_message_and_leaves_no_pdf(tmp_path, cap
 
 def test_failure_while_painting_keeps_an_existing_pdf(tmp_path, monkeypatch):
     """An error after the PDF was started leaves the previous report untouched and no temporary file."""
-    import app.report as report
+    from app import report
 
     out = tmp_path / "old.pdf"
     out.write_bytes(b"previous report")
