@@ -223,8 +223,11 @@ def _drawings(f: Flow, d: ReportData) -> None:
            "(filled by material), the wheels, the mounting regions (dashed) and the candidate spots numbered by "
            "rank.</p>", 2)
     labels = [str(rank[i]) for i in range(len(sc.names))]
-    h = fig.body_views_height(v, f.width, S)
-    f.add(h, lambda p, r: fig.draw_body_views(p, r, S, v, sc.positions, labels, highlight=order[0]))
+    # leave room on the page for the spot key below (a row is about 13 pt)
+    max_h = f.room - (75 + 15 * len(sc.names)) * S
+    max_h = max(max_h, 300 * S)
+    h = fig.body_views_height(v, f.width, S, max_h)
+    f.add(h, lambda p, r: fig.draw_body_views(p, r, S, v, sc.positions, labels, highlight=order[0], max_height=max_h))
     mats = sorted({z.material for z in v.zones})
     key = " &nbsp; ".join(f"<span style='background-color:{fig.material_colour(m, 255).name()}'>&nbsp;&nbsp;&nbsp;"
                           f"</span> {esc(m)}" for m in mats)
@@ -242,8 +245,8 @@ def _spot_def(v, name: str) -> str:
         return ""
     if s.x_from == "origin" and s.z_from == "ground":
         return "vehicle axes"
-    xs = f"x = {s.x_m:+.3f} m from the {s.x_from.replace('_', ' ')}" if s.x_from != "origin" else f"x = {s.x_m:.3f} m"
-    zs = f"z = {s.z_m:.3f} m above the floor" if s.z_from == "floor" else f"z = {s.z_m:.3f} m"
+    xs = f"x: {s.x_from.replace('_', ' ')} {s.x_m:+.3f} m" if s.x_from != "origin" else f"x: {s.x_m:.3f} m"
+    zs = f"z: floor {s.z_m:+.3f} m" if s.z_from == "floor" else f"z: {s.z_m:.3f} m"
     return esc(f"{xs}; {zs}")
 
 
@@ -298,8 +301,9 @@ def _ranking(f: Flow, d: ReportData) -> None:
                                   + ("*" if w == sc.worst_wheel[i] else "") for w in range(len(sc.wheel_ids))]
             for i in order]
     nw = len(sc.wheel_ids)
-    f.table(head, rows, [28] + [int(72 / nw)] * nw, numeric=set(range(1, nw + 1)),
-            caption="Worst case per wheel (dBm at wheel angle; * = the spot's limiting wheel)")
+    first = 28 if nw <= 4 else 22
+    f.table(head, rows, [first] + [int((100 - first) / nw)] * nw, numeric=set(range(1, nw + 1)),
+            caption="Worst case per wheel (dBm at wheel angle; * = the spot's limiting wheel)", small=nw > 4)
 
 
 def _details(f: Flow, d: ReportData) -> None:

@@ -264,6 +264,8 @@ def draw_spots(ax: Axes, pts, labels, highlight: int = -1, colour=None, size_pt:
             p.drawEllipse(q, 2.3 * r, 2.3 * r)
         if lab:
             w, h = fm.horizontalAdvance(lab), fm.height()
+            if k == highlight:  # outside the ring
+                r = 2.3 * size_pt * s
             # try right, above, below, left of the marker; keep the first that overlaps no earlier label
             cands = [QRectF(q.x() + r + 1.5 * s, q.y() - h / 2, w, h), QRectF(q.x() - w / 2, q.y() - r - h - 1 * s, w, h),
                      QRectF(q.x() - w / 2, q.y() + r + 1 * s, w, h), QRectF(q.x() - r - 1.5 * s - w, q.y() - h / 2, w, h),
@@ -271,6 +273,7 @@ def draw_spots(ax: Axes, pts, labels, highlight: int = -1, colour=None, size_pt:
                      QRectF(q.x() - r - w, q.y() - r - h, w, h), QRectF(q.x() - r - w, q.y() + r, w, h)]
             box = next((c for c in cands if not any(c.intersects(o) for o in placed)), cands[0])
             placed.append(box)
+            r = size_pt * s
             if halo:
                 p.setPen(Qt.PenStyle.NoPen)
                 p.setBrush(QBrush(QColor(255, 255, 255, 190)))
@@ -280,15 +283,25 @@ def draw_spots(ax: Axes, pts, labels, highlight: int = -1, colour=None, size_pt:
     p.restore()
 
 
-def draw_body_views(p: QPainter, rect: QRectF, s: float, v: Vehicle, positions, labels, highlight: int = -1):
+def _views_scale(v: Vehicle, width: float, s: float, max_height: float | None) -> float:
+    """Device px per m of the stacked top and side views: fill the width, but keep within max_height."""
+    (x0, x1), (y0, y1), (z0, z1) = body_extent(v)
+    k = (width - 46 * s) / (x1 - x0)
+    if max_height is not None:
+        k = min(k, (max_height - 2 * 42 * s - 4 * s) / ((y1 - y0) + (z1 - z0)))
+    return k
+
+
+def draw_body_views(p: QPainter, rect: QRectF, s: float, v: Vehicle, positions, labels, highlight: int = -1,
+                    max_height: float | None = None):
     """Top view above side view, same x scale, with zones, wheels, regions and the spots. Returns the height used."""
     (x0, x1), (y0, y1), (z0, z1) = body_extent(v)
     left, bottom, top_pt = 40.0, 28.0, 14.0
-    width = rect.width() - (left + 6) * s
-    k = width / (x1 - x0)  # device px per m
+    k = _views_scale(v, rect.width(), s, max_height)
+    fw = k * (x1 - x0) + (left + 6) * s
     h_top = (y1 - y0) * k + (top_pt + bottom) * s
     h_side = (z1 - z0) * k + (top_pt + bottom) * s
-    ra = QRectF(rect.left(), rect.top(), rect.width(), h_top)
+    ra = QRectF(rect.left(), rect.top(), fw, h_top)
     at = Axes(p, ra, s, (x0, x1), (y0, y1), "x (m, forward)", "y (m, left)", "Top view", equal=True, left_pt=left,
               bottom_pt=bottom)
     at.draw_frame()
@@ -296,7 +309,7 @@ def draw_body_views(p: QPainter, rect: QRectF, s: float, v: Vehicle, positions, 
     draw_wheel_labels(at, v)
     pos = np.asarray(positions, float).reshape(-1, 3)
     draw_spots(at, pos[:, [0, 1]], labels, highlight)
-    rb = QRectF(rect.left(), rect.top() + h_top + 4 * s, rect.width(), h_side)
+    rb = QRectF(rect.left(), rect.top() + h_top + 4 * s, fw, h_side)
     asd = Axes(p, rb, s, (x0, x1), (z0, z1), "x (m, forward)", "z (m, up)", "Side view", equal=True, left_pt=left,
                bottom_pt=bottom)
     asd.draw_frame()
@@ -305,9 +318,9 @@ def draw_body_views(p: QPainter, rect: QRectF, s: float, v: Vehicle, positions, 
     return h_top + h_side + 4 * s
 
 
-def body_views_height(v: Vehicle, width: float, s: float) -> float:
+def body_views_height(v: Vehicle, width: float, s: float, max_height: float | None = None) -> float:
     (x0, x1), (y0, y1), (z0, z1) = body_extent(v)
-    k = (width - 46 * s) / (x1 - x0)
+    k = _views_scale(v, width, s, max_height)
     return (y1 - y0 + z1 - z0) * k + 2 * 42 * s + 4 * s
 
 
