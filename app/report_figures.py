@@ -319,7 +319,7 @@ def draw_body_views(p: QPainter, rect: QRectF, s: float, v: Vehicle, positions, 
 
 
 def body_views_height(v: Vehicle, width: float, s: float, max_height: float | None = None) -> float:
-    (x0, x1), (y0, y1), (z0, z1) = body_extent(v)
+    _, (y0, y1), (z0, z1) = body_extent(v)
     k = _views_scale(v, width, s, max_height)
     return (y1 - y0 + z1 - z0) * k + 2 * 42 * s + 4 * s
 
