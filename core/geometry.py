@@ -74,6 +74,10 @@ class Hull:
     env_zbot: np.ndarray
     env_ymax: np.ndarray
     env_ymin: np.ndarray
+    arch_xc: np.ndarray  # (G,) distinct arches in x-z (wheels of one axle share one)
+    arch_zc: np.ndarray
+    arch_r: np.ndarray
+    arch_bits: np.ndarray  # (G,) int64: the arch bits of every wheelhouse with that arch
     box_lo: np.ndarray  # (3,) lower corner of the hull's bounding box
     box_hi: np.ndarray  # (3,) upper corner
 
@@ -147,9 +151,25 @@ def build_hull(
         env_zbot=np.where(np.isfinite(zbot), zbot, np.nan),
         env_ymax=np.where(np.isfinite(ymax), ymax, np.nan),
         env_ymin=np.where(np.isfinite(ymin), ymin, np.nan),
+        **_arch_groups(wh),
         box_lo=np.array([min(top[:, 0].min(), side[:, 0].min()), top[:, 1].min(), side[:, 1].min()]),
         box_hi=np.array([max(top[:, 0].max(), side[:, 0].max()), top[:, 1].max(), side[:, 1].max()]),
     )
+
+
+def _arch_groups(wh: np.ndarray) -> dict:
+    """Distinct (x, z, radius) arches of the wheelhouses and the membership bits each one flips."""
+    groups: dict[tuple, int] = {}
+    for h, (xc, zc, r) in enumerate(wh[:, :3]):
+        key = (round(float(xc), 9), round(float(zc), 9), round(float(r), 9))
+        groups[key] = groups.get(key, 0) | (1 << (2 + 2 * h))
+    keys = list(groups)
+    return {
+        "arch_xc": np.array([k[0] for k in keys], float),
+        "arch_zc": np.array([k[1] for k in keys], float),
+        "arch_r": np.array([k[2] for k in keys], float),
+        "arch_bits": np.array([groups[k] for k in keys], np.int64),
+    }
 
 
 # ----- point tests -----------------------------------------------------------------------
@@ -221,54 +241,60 @@ def _edge_hits(au, av, du, dv, poly: np.ndarray, box_lo, box_hi):
 
 def _wheelhouse_hits(hull: Hull, a: tuple, d: tuple, box_lo, box_hi):
     """Crossings of segments with wheelhouse arch surfaces and inner walls, as flat
-    (rows, t, event bit) arrays (arch of wheelhouse h: bit 2+2h; inner wall: bit 3+2h)."""
-    H = len(hull.wh_xc)
+    (rows, t, event bits) arrays (arch of wheelhouse h: bit 2+2h; inner wall: bit 3+2h). An arch
+    shared by the wheelhouses of one axle is solved once and flips all their arch bits."""
     empty = (np.empty(0, np.intp), np.empty(0), np.empty(0, np.int64))
-    if H == 0:
-        return empty
-    # wheelhouses whose x-z box and lateral half-space the segments' box can reach
-    keep = (
-        (hull.wh_xc + hull.wh_r >= box_lo[0])
-        & (hull.wh_xc - hull.wh_r <= box_hi[0])
-        & (hull.wh_zc + hull.wh_r >= box_lo[2])
-        & np.where(hull.wh_sign > 0, box_hi[1] > hull.wh_inner, box_lo[1] < -hull.wh_inner)
-    )
-    idx = np.nonzero(keep)[0]
-    if len(idx) == 0:
+    if len(hull.wh_xc) == 0:
         return empty
     ax, ay, az = (c[:, None] for c in a)
     dx, dy, dz = (c[:, None] for c in d)
-    xc, zc, r = hull.wh_xc[idx], hull.wh_zc[idx], hull.wh_r[idx]
-    sg, inner = hull.wh_sign[idx], hull.wh_inner[idx]
-    ox, oz = ax - xc, az - zc
     out_r, out_t, out_b = [], [], []
 
-    def add(t, ok, bit_base):
+    def add(t, ok, bits):
         rows, cols = np.nonzero(ok)
         out_r.append(rows)
         out_t.append(t[rows, cols])
-        out_b.append(np.left_shift(np.int64(1), bit_base + 2 * idx[cols].astype(np.int64)))
+        out_b.append(bits[cols])
 
+    # arches whose x-z box the segments' box reaches
+    g = np.nonzero(
+        (hull.arch_xc + hull.arch_r >= box_lo[0])
+        & (hull.arch_xc - hull.arch_r <= box_hi[0])
+        & (hull.arch_zc + hull.arch_r >= box_lo[2])
+    )[0]
     with np.errstate(invalid="ignore", divide="ignore"):
-        # circle in x-z: |o + t dxz|^2 = r^2, only its upper half (z >= zc)
-        qa = dx * dx + dz * dz
-        qb = 2.0 * (ox * dx + oz * dz)
-        qc = ox * ox + oz * oz - r * r
-        disc = qb * qb - 4.0 * qa * qc
-        sq = np.sqrt(disc)
-        inv2a = 0.5 / qa
-        for sign in (-1.0, 1.0):
-            t = (-qb + sign * sq) * inv2a
-            add(t, (disc > 0) & (qa > _EPS) & (t > 0) & (t < 1) & (oz + t * dz >= 0), 2)
-        # vertical lines x = xc +- r below the centre
-        inv_dx = 1.0 / dx
-        for edge in (r, -r):
-            t = (edge - ox) * inv_dx
-            add(t, (np.abs(dx) > _EPS) & (t > 0) & (t < 1) & (oz + t * dz < 0), 2)
-        # inner wall: sg * y = inner
-        sdy = sg * dy
-        t = (inner - sg * ay) / sdy
-        add(t, (np.abs(sdy) > _EPS) & (t > 0) & (t < 1), 3)
+        if len(g):
+            xc, zc, r, bits = hull.arch_xc[g], hull.arch_zc[g], hull.arch_r[g], hull.arch_bits[g]
+            ox, oz = ax - xc, az - zc
+            # circle in x-z: |o + t dxz|^2 = r^2, only its upper half (z >= zc)
+            qa = dx * dx + dz * dz
+            qb = 2.0 * (ox * dx + oz * dz)
+            qc = ox * ox + oz * oz - r * r
+            disc = qb * qb - 4.0 * qa * qc
+            sq = np.sqrt(disc)
+            inv2a = 0.5 / qa
+            for sign in (-1.0, 1.0):
+                t = (-qb + sign * sq) * inv2a
+                add(t, (disc > 0) & (qa > _EPS) & (t > 0) & (t < 1) & (oz + t * dz >= 0), bits)
+            # vertical lines x = xc +- r below the centre
+            inv_dx = 1.0 / dx
+            for edge in (r, -r):
+                t = (edge - ox) * inv_dx
+                add(t, (np.abs(dx) > _EPS) & (t > 0) & (t < 1) & (oz + t * dz < 0), bits)
+        # inner walls sg * y = inner of the wheelhouses whose box and half-space the segments reach
+        idx = np.nonzero(
+            (hull.wh_xc + hull.wh_r >= box_lo[0])
+            & (hull.wh_xc - hull.wh_r <= box_hi[0])
+            & (hull.wh_zc + hull.wh_r >= box_lo[2])
+            & np.where(hull.wh_sign > 0, box_hi[1] > hull.wh_inner, box_lo[1] < -hull.wh_inner)
+        )[0]
+        if len(idx):
+            sg, inner = hull.wh_sign[idx], hull.wh_inner[idx]
+            sdy = sg * dy
+            t = (inner - sg * ay) / sdy
+            add(t, (np.abs(sdy) > _EPS) & (t > 0) & (t < 1), np.left_shift(np.int64(1), 3 + 2 * idx.astype(np.int64)))
+    if not out_r:
+        return empty
     return np.concatenate(out_r), np.concatenate(out_t), np.concatenate(out_b)
 
 
