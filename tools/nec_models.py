@@ -75,6 +75,7 @@ __all__ = [
     "equal_area_radius_m",
     "grid_spacing_m",
     "installed_pattern",
+    "pattern_with_near",
     "plate",
     "rim",
     "sphere_grid",
@@ -84,6 +85,7 @@ __all__ = [
     "wheel",
     "wheel_mesh_spacing_m",
     "wheel_patterns",
+    "wire_dipole",
 ]
 
 #: Speed of light in vacuum, m/s (SI definition).
@@ -776,59 +778,111 @@ NEAR_RADIUS_M = 1.5
 NEAR_STEP_DEG = 10.0
 
 
-def wheel_patterns(spec: WheelSpec, freq_hz: float, step_deg: float = 5.0, axes=None, near: bool = True) -> dict:
-    """Installed patterns of the sensor on the wire-grid wheel ``spec`` for each sensor axis.
+def pattern_with_near(solver: NecSolver, position_m, axis, step_deg: float = 5.0,
+                      near_radius_m: float = NEAR_RADIUS_M, near_step_deg: float = NEAR_STEP_DEG) -> dict:
+    """:func:`installed_pattern` plus the near-field term ``near`` (T1, P1, 3) and its grid.
 
-    One NEC-2 solve (one matrix factorisation) serves all axes. For each axis the result holds the
-    normalised far field (:func:`installed_pattern`: ``e_theta``, ``e_phi``, ``power_ratio``) and,
-    with ``near=True``, a near-field correction: with r E exp(jkr) = F0 + F1 / r + ... (the
-    expansion of the field outside the sphere enclosing the wheel in powers of 1/r; Wilcox 1956),
-    F1 = r0 (r0 E(r0) exp(jk r0) - F0) is sampled on the sphere r0 = NEAR_RADIUS_M about the wheel
-    centre (Cartesian components, grid NEAR_STEP_DEG, same normalisation as the far field), so that
-    (F0 + F1/r) exp(-jkr)/r reproduces NEC-2 at r0 and at infinity. Returns ``theta_deg``,
-    ``phi_deg``, ``near_theta_deg``, ``near_phi_deg``, ``near_radius_m``, ``patterns`` {axis: dict
-    with ``e_theta``, ``e_phi``, ``power_ratio``, ``near`` (T1, P1, 3)}, ``segments``, ``notes``,
-    ``solver`` and ``model``. Axes (wheel frame, sensor on top): radial +Z, tangential +X, axial +Y.
+    With r E exp(jkr) = F0 + F1 / r + ... (the expansion of the field outside the sphere enclosing
+    the structure in powers of 1/r; Wilcox 1956), F1 = r0 (r0 E(r0) exp(jk r0) - F0) is sampled on
+    the sphere r0 = ``near_radius_m`` about the origin (Cartesian components, grid
+    ``near_step_deg``, same normalisation as the far field), so that (F0 + F1/r) exp(-jkr)/r
+    reproduces NEC-2 at r0 and at infinity.
 
     References
     ----------
     C. H. Wilcox, "An expansion theorem for electromagnetic fields", Comm. Pure Appl. Math. 9,
     1956 (from memory): E = exp(-jkr)/r sum_n F_n(theta, phi) / r^n outside the enclosing sphere.
     """
+    freq_hz = solver.freq_hz
+    k = 2.0 * math.pi * freq_hz / C0_M_PER_S
+    pat = installed_pattern(solver, position_m, axis, step_deg)
+    t1, p1 = sphere_grid(near_step_deg)
+    tt, pp = np.meshgrid(t1, p1, indexing="ij")
+    r_hat, t_hat, p_hat = _basis(tt, pp)
+    it = np.isin(np.round(pat["theta_deg"], 6), np.round(t1, 6))
+    jt = np.isin(np.round(pat["phi_deg"], 6), np.round(p1, 6))
+    scale = math.sqrt(4.0 * math.pi / (pat["power_ratio"] * 2.0 * ETA0_OHM * dipole_radiated_power_w(freq_hz)))
+    f0 = pat["e_theta"][np.ix_(it, jt)][..., None] * t_hat + pat["e_phi"][np.ix_(it, jt)][..., None] * p_hat
+    e_r0 = solver.scattered_sphere_field(near_radius_m, t1, p1) + dipole_field(
+        r_hat * near_radius_m, position_m, axis, freq_hz)
+    f_r0 = e_r0 * scale * near_radius_m * np.exp(1j * k * near_radius_m)
+    pat["near"] = near_radius_m * (f_r0 - f0)
+    pat["near_theta_deg"], pat["near_phi_deg"], pat["near_radius_m"] = t1, p1, near_radius_m
+    pat["scale"] = scale  # normalised field = scale x (field of the 1 A m element)
+    return pat
+
+
+def wheel_patterns(spec: WheelSpec, freq_hz: float, step_deg: float = 5.0, axes=None) -> dict:
+    """Installed patterns (:func:`pattern_with_near`) of the sensor on the wire-grid wheel ``spec``.
+
+    One NEC-2 solve (one matrix factorisation) serves all axes. Returns ``theta_deg``, ``phi_deg``,
+    ``near_theta_deg``, ``near_phi_deg``, ``near_radius_m``, ``patterns`` {axis: dict with
+    ``e_theta``, ``e_phi``, ``power_ratio``, ``near`` (T1, P1, 3)}, ``segments``, ``notes``,
+    ``solver`` and ``model``. Axes (wheel frame, sensor on top): radial +Z, tangential +X, axial +Y.
+    """
     from core.wheel_patterns import AXES, axis_vector
 
     model = wheel(spec, wheel_mesh_spacing_m(freq_hz))
     solver = NecSolver(model, freq_hz)
-    k = 2.0 * math.pi * freq_hz / C0_M_PER_S
-    t1, p1 = sphere_grid(NEAR_STEP_DEG)
-    tt, pp = np.meshgrid(t1, p1, indexing="ij")
-    r_hat, t_hat, p_hat = _basis(tt, pp)
-    sel_t = np.isin(np.round(np.arange(0.0, 180.0 + 1e-9, step_deg), 6), np.round(t1, 6))
-    out = {}
-    for name in axes or AXES:
-        pos, axis = spec.sensor_position(0.0), axis_vector(name)
-        pat = installed_pattern(solver, pos, axis, step_deg)
-        if near:
-            phi = pat["phi_deg"]
-            scale = math.sqrt(4.0 * math.pi / (pat["power_ratio"] * 2.0 * ETA0_OHM * dipole_radiated_power_w(freq_hz)))
-            # far field on the coarse grid (normalised), as Cartesian vectors
-            jt = np.isin(np.round(phi, 6), np.round(p1, 6))
-            f0 = pat["e_theta"][np.ix_(sel_t, jt)][..., None] * t_hat + pat["e_phi"][np.ix_(sel_t, jt)][..., None] * p_hat
-            e_r0 = solver.scattered_sphere_field(NEAR_RADIUS_M, t1, p1) + dipole_field(
-                r_hat * NEAR_RADIUS_M, pos, axis, freq_hz)
-            f_r0 = e_r0 * scale * NEAR_RADIUS_M * np.exp(1j * k * NEAR_RADIUS_M)
-            pat["near"] = NEAR_RADIUS_M * (f_r0 - f0)
-        out[name] = pat
+    out = {name: pattern_with_near(solver, spec.sensor_position(0.0), axis_vector(name), step_deg)
+           for name in axes or AXES}
     first = next(iter(out.values()))
     return {
         "theta_deg": first["theta_deg"],
         "phi_deg": first["phi_deg"],
-        "near_theta_deg": t1,
-        "near_phi_deg": p1,
-        "near_radius_m": NEAR_RADIUS_M,
+        "near_theta_deg": first["near_theta_deg"],
+        "near_phi_deg": first["near_phi_deg"],
+        "near_radius_m": first["near_radius_m"],
         "patterns": out,
         "segments": model.segment_count,
         "notes": list(model.notes),
         "solver": solver,
         "model": model,
     }
+
+
+def wire_dipole(freq_hz: float, position_m, axis, length_m: float = 0.03, radius_m: float = 0.0005,
+                segments: int = 5, structure: WireModel | None = None):
+    """A short centre-fed wire dipole (NEC-2 voltage source, EX type 0), alone or next to ``structure``.
+
+    An independent source model for the checks: its current follows from NEC-2's own solution
+    instead of being imposed. Returns (context, tag of the dipole wire); use
+    :func:`wire_dipole_fields` for fields and input power.
+    """
+    from PyNEC import nec_context
+
+    p = _unit(axis)
+    c = np.asarray(position_m, dtype=float)
+    ctx = nec_context()
+    geo = ctx.get_geometry()
+    wires = list(structure.wires) if structure is not None else []
+    for i, w in enumerate(wires):
+        geo.wire(i + 1, int(w.segments), *w.start, *w.end, float(w.radius_m), 1.0, 1.0)
+    tag = len(wires) + 1
+    a, b = c - 0.5 * length_m * p, c + 0.5 * length_m * p
+    geo.wire(tag, int(segments), *a, *b, float(radius_m), 1.0, 1.0)
+    ctx.geometry_complete(0)
+    ctx.fr_card(0, 1, float(freq_hz) / 1e6, 0.0)
+    ctx.ex_card(0, tag, int(segments) // 2 + 1, 0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0)
+    return ctx, tag
+
+
+def wire_dipole_fields(ctx, points_m, theta_deg=None, phi_deg=None) -> dict:
+    """Near fields at ``points_m`` (N, 3), optional far field on a grid, and the input power (W)."""
+    pts = np.atleast_2d(np.asarray(points_m, dtype=float))
+    e = np.zeros(pts.shape, complex)
+    for i, (x, y, z) in enumerate(pts):
+        ctx.ne_card(0, 1, 1, 1, float(x), float(y), float(z), 0.0, 0.0, 0.0)
+        nf = ctx.get_near_field_pattern(i)
+        e[i] = (nf.get_field_x()[0], nf.get_field_y()[0], nf.get_field_z()[0])
+    out = {"near": e, "input_power_w": float(np.real(ctx.get_input_parameters(0).get_power()[0]))}
+    if theta_deg is not None:
+        theta_deg = np.asarray(theta_deg, float)
+        phi_deg = np.asarray(phi_deg, float)
+        ctx.rp_card(0, len(theta_deg), len(phi_deg), 0, 0, 0, 0, float(theta_deg[0]), float(phi_deg[0]),
+                    float(theta_deg[1] - theta_deg[0]), float(phi_deg[1] - phi_deg[0]), 0.0, 0.0)
+        rp = ctx.get_radiation_pattern(0)
+        shape = (len(phi_deg), len(theta_deg))
+        out["e_theta"] = np.asarray(rp.get_e_theta()).reshape(shape).T
+        out["e_phi"] = np.asarray(rp.get_e_phi()).reshape(shape).T
+    return out
