@@ -8,8 +8,8 @@ import pytest
 
 pytest.importorskip("PyNEC")
 
-from core.propagation import SHORT_DIPOLE_DIRECTIVITY, free_space_loss_db, wavelength_m  # noqa: E402
-from tools import nec_models as nm  # noqa: E402
+from core.propagation import SHORT_DIPOLE_DIRECTIVITY, free_space_loss_db, wavelength_m
+from tools import nec_models as nm
 
 pytestmark = pytest.mark.nec
 

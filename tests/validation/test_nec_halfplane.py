@@ -18,7 +18,7 @@ import pytest
 
 pytest.importorskip("PyNEC")
 
-from tools import nec_checks  # noqa: E402
+from tools import nec_checks
 
 pytestmark = pytest.mark.nec
 
