@@ -12,7 +12,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
 from PySide6.QtGui import QBrush, QPen, QPolygonF
-from PySide6.QtWidgets import QGraphicsEllipseItem, QGraphicsPolygonItem, QGraphicsRectItem, QLabel, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QGraphicsEllipseItem, QGraphicsPolygonItem, QGraphicsRectItem, QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
 from app import edits
 from app.document import Document
@@ -28,6 +28,13 @@ def _cosmetic(pen: QPen) -> QPen:
     pen = QPen(pen)
     pen.setCosmetic(True)
     return pen
+
+
+def _on_white(c, alpha: float):
+    """The colour ``c`` painted at opacity ``alpha`` on white (for swatches in labels)."""
+    from PySide6.QtGui import QColor
+
+    return QColor(*(int(round(255 + alpha * (ch - 255))) for ch in (c.red(), c.green(), c.blue())))
 
 
 class SpotMarker(pg.TargetItem):
@@ -83,15 +90,19 @@ class BodyView(QWidget):
         title = "Top view (from above)" if view == "top" else "Side view (left side)"
         self.plot.setTitle(title, size="10pt")
         self.plot.setMenuEnabled(False)
-        self.legend = pg.LegendItem(offset=(8, 8), labelTextSize="8pt", brush=pg.mkBrush(255, 255, 255, 200))
-        self.legend.setParentItem(self.plot.getPlotItem().vb)
+        self.legend = QLabel(" ")
+        self.legend.setToolTip("Panel zones drawn in this view, by material")
         self.readout = QLabel(" ")
         self.readout.setToolTip("Cursor position in vehicle axes, mm (origin on the ground below the front axle)")
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
         lay.setSpacing(2)
         lay.addWidget(self.plot, 1)
-        lay.addWidget(self.readout)
+        row = QHBoxLayout()
+        row.addWidget(self.legend)
+        row.addStretch(1)
+        row.addWidget(self.readout)
+        lay.addLayout(row)
         self.plot.scene().sigMouseMoved.connect(self._mouse_moved)
 
         doc.vehicleChanged.connect(self._on_vehicle_changed)
@@ -140,7 +151,6 @@ class BodyView(QWidget):
             self._items = []
             self.markers = {}
             self.wheel_rois = {}
-            self.legend.clear()
             v = self.doc.vehicle
             self._draw_zones(v)
             self._draw_region(v)
@@ -163,7 +173,7 @@ class BodyView(QWidget):
         self.body_roi = self._add(roi)
 
     def _draw_zones(self, v) -> None:
-        seen = set()
+        seen: dict = {}
         for i, z in enumerate(v.zones):
             if z.view != self.view:
                 continue
@@ -173,18 +183,15 @@ class BodyView(QWidget):
             poly.setZValue(1)
             poly.setToolTip(f"{z.name}: {z.material}")
             self._add(poly)
-            if z.material not in seen:
-                seen.add(z.material)
-                sample = pg.PlotDataItem([0, 1], [0, 0], pen=pg.mkPen(material_colour(z.material, 200)),
-                                         fillLevel=0, fillBrush=pg.mkBrush(material_colour(z.material, 140)))
-                self.legend.addItem(sample, z.material)
+            seen.setdefault(z.material, _on_white(material_colour(z.material, 255), 0.45))
             if i == self.doc.selected_zone:
                 roi = pg.PolyLineROI([list(p) for p in z.outline], closed=True, movable=True,
                                      pen=pg.mkPen(material_colour(z.material, 255), width=2))
                 roi.setZValue(12)
                 roi.sigRegionChangeFinished.connect(lambda r, i=i: self._zone_edited(i, r))
                 self.zone_roi = self._add(roi)
-        self.legend.setVisible(bool(seen))
+        parts = [f"<span style='background-color:{c.name()}'>&nbsp;&nbsp;&nbsp;&nbsp;</span> {m}" for m, c in seen.items()]
+        self.legend.setText("zones: " + " &nbsp; ".join(parts) if parts else "no panel zones in this view")
 
     def _draw_region(self, v) -> None:
         self.region_roi = None
@@ -204,7 +211,14 @@ class BodyView(QWidget):
     def _draw_wheels(self) -> None:
         tire_pen = pg.mkPen(30, 30, 30, width=1.5)
         rim_pen = _cosmetic(pg.mkPen(110, 110, 110, width=1))
+        groups: dict[tuple, list] = {}
         for w in self.doc.scene.wheels:
+            # the side view shows one circle per axle position and size (left, right and dual wheels overlap)
+            key = (w.id,) if self.view == "top" else (round(w.centre[0], 3), round(w.tire_radius_m, 4))
+            groups.setdefault(key, []).append(w)
+        for ws in groups.values():
+            w = ws[0]
+            ids = [g.id for g in ws]
             cx, cy, cz = w.centre
             r, rr = w.tire_radius_m, w.rim_radius_m
             if self.view == "top":
@@ -218,18 +232,21 @@ class BodyView(QWidget):
             rim.setPen(rim_pen)
             rim.setBrush(QBrush(pg.mkColor(200, 200, 200, 120)))
             roi.setZValue(8)
-            roi.setToolTip(f"wheel {w.id}: drag to move (tire {2 * r * 1000:.0f} mm, rim {2 * rr * 1000:.0f} mm)")
-            label = pg.TextItem(w.id, color=(60, 60, 60), anchor=(0.5, 0.5))
+            what = "drag to move" if self.view == "top" else "drag to move the axle along x"
+            roi.setToolTip(f"wheel {'/'.join(ids)}: {what} (tire {2 * r * 1000:.0f} mm, rim {2 * rr * 1000:.0f} mm)")
+            label = pg.TextItem("/".join(ids), color=(60, 60, 60), anchor=(0.5, 0.5))
             label.setParentItem(roi)
             label.setPos(r, r if self.view == "side" else 0.5 * w.tire_width_m)
-            roi.sigRegionChangeFinished.connect(lambda rr_, wid=w.id: self._wheel_edited(wid, rr_))
-            self.wheel_rois[w.id] = self._add(roi)
+            roi.sigRegionChangeFinished.connect(lambda rr_, ids=tuple(ids): self._wheel_edited(ids, rr_))
+            for i in ids:
+                self.wheel_rois[i] = roi
+            self._add(roi)
 
     def _draw_spots(self) -> None:
         sc = self.doc.scores
         for i, name in enumerate(sc.names):
             m = SpotMarker(self.to_view(sc.positions[i]), size=11, symbol="o", movable=True,
-                           label=name, labelOpts={"offset": (8, -8), "color": (20, 20, 20), "anchor": (0, 1)})
+                           label=str(i + 1), labelOpts={"offset": (7, -7), "color": (20, 20, 20), "anchor": (0, 1)})
             m.setZValue(20)
             m.sigPositionChanged.connect(lambda mk, n=name: self._spot_dragging(n, mk))
             m.sigPositionChangeFinished.connect(lambda mk, n=name: self._spot_dropped(n, mk))
@@ -239,8 +256,10 @@ class BodyView(QWidget):
         self._restyle_markers(self.doc.selected)
 
     def _restyle_markers(self, selected: str) -> None:
-        for name, m in self.markers.items():
+        for i, (name, m) in enumerate(self.markers.items()):
             sel = name == selected
+            m.setLabel(f"{i + 1} {name}" if sel else str(i + 1),
+                       {"offset": (7, -7), "color": (0, 0, 0) if sel else (40, 40, 40), "anchor": (0, 1)})
             m.setBrush(SELECTED_BRUSH if sel else SPOT_BRUSH)
             m.setPen(SELECTED_PEN if sel else SPOT_PEN)
             m.setZValue(21 if sel else 20)
@@ -322,12 +341,15 @@ class BodyView(QWidget):
         name = self.doc.vehicle.regions[index].name
         self.doc.apply(lambda v: edits.set_region_outline(v, index, pts), f"Edit region '{name}'")
 
-    def _wheel_edited(self, wheel_id: str, roi) -> None:
+    def _wheel_edited(self, wheel_ids: tuple[str, ...], roi) -> None:
         if self._sync:
             return
-        w = next(g for g in self.doc.scene.wheels if g.id == wheel_id)
+        geo = {g.id: g for g in self.doc.scene.wheels}
+        w = geo[wheel_ids[0]]
         p = roi.pos()
         x = edits.snap(p.x() + w.tire_radius_m, self.doc.snap_m)
-        y = edits.snap(p.y() + 0.5 * w.tire_width_m, self.doc.snap_m) if self.view == "top" else w.centre[1]
-        self.doc.apply(lambda v: edits.move_wheel(v, wheel_id, x, y), f"Move wheel {wheel_id}")
-
+        if self.view == "top":
+            moves = {w.id: (x, edits.snap(p.y() + 0.5 * w.tire_width_m, self.doc.snap_m))}
+        else:
+            moves = {i: (x, geo[i].centre[1]) for i in wheel_ids}
+        self.doc.apply(lambda v: edits.move_wheels(v, moves), f"Move wheel {'/'.join(wheel_ids)}")

@@ -93,14 +93,17 @@ def set_outline(v: Vehicle, key: str, points) -> Vehicle:
     return _rebuild(d)
 
 
-def move_wheel(v: Vehicle, wheel_id: str, x_m: float, y_m: float) -> Vehicle:
+def move_wheels(v: Vehicle, moves: dict[str, tuple[float, float]]) -> Vehicle:
+    """Move wheels to new centres: {wheel id: (x_m, y_m)}."""
     d = vehicle_to_dict(v)
+    found = set()
     for w in d["wheels"]:
-        if w["id"] == wheel_id:
-            w["x_m"], w["y_m"] = float(x_m), float(y_m)
-            break
-    else:
-        raise KeyError(wheel_id)
+        if w["id"] in moves:
+            w["x_m"], w["y_m"] = (float(c) for c in moves[w["id"]])
+            found.add(w["id"])
+    missing = set(moves) - found
+    if missing:
+        raise KeyError(", ".join(sorted(missing)))
     return _rebuild(d)
 
 

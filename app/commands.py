@@ -1,0 +1,173 @@
+"""The program's commands: plain functions taking the document (and the window that hosts dialogs).
+
+Menus and shortcuts are built from ``COMMANDS`` in one place (``MainWindow._build_menus``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+from PySide6.QtWidgets import QDialog, QFileDialog
+
+from app import dialogs, edits
+from app.document import Document
+
+FILE_FILTER = "Wheelreach vehicle (*.json);;All files (*)"
+SNAP_GRID_M = 0.025
+
+
+@dataclass(frozen=True)
+class Command:
+    menu: str
+    label: str
+    func: Callable[[Document, object], object]
+    shortcut: str = ""
+    tip: str = ""
+    checkable: bool = False
+    enabled_when: str = ""  # "spot" (a spot is selected), "undo", "redo"
+
+
+# ----- files -------------------------------------------------------------------------
+def new_file(doc: Document, ui) -> None:
+    if ui.confirm_discard():
+        doc.replace(edits.new_vehicle(), None)
+
+
+def open_file(doc: Document, ui) -> None:
+    if not ui.confirm_discard():
+        return
+    path, _ = QFileDialog.getOpenFileName(ui, "Open a vehicle file", ui.last_folder(), FILE_FILTER)
+    if path:
+        ui.open_path(path, confirm=False)
+
+
+def save_file(doc: Document, ui) -> bool:
+    if doc.path is None:
+        return save_file_as(doc, ui)
+    return ui.save_to(doc.path)
+
+
+def save_file_as(doc: Document, ui) -> bool:
+    start = str(doc.path) if doc.path else ui.last_folder()
+    path, _ = QFileDialog.getSaveFileName(ui, "Save the vehicle file as", start, FILE_FILTER)
+    if not path:
+        return False
+    if not path.lower().endswith(".json"):
+        path += ".json"
+    return ui.save_to(path)
+
+
+def quit_program(doc: Document, ui) -> None:
+    ui.close()
+
+
+# ----- edit --------------------------------------------------------------------------
+def undo(doc: Document, ui) -> None:
+    doc.undo_stack.undo()
+
+
+def redo(doc: Document, ui) -> None:
+    doc.undo_stack.redo()
+
+
+def toggle_snap(doc: Document, ui) -> None:
+    doc.snap_m = None if doc.snap_m else SNAP_GRID_M
+    state = f"on ({SNAP_GRID_M * 1000:.0f} mm)" if doc.snap_m else "off"
+    doc.statusMessage.emit(f"Snap to grid {state}")
+
+
+# ----- spots -------------------------------------------------------------------------
+def add_spot(doc: Document, ui) -> None:
+    """Add a spot at the centre of the mounting region (or of the body) and select it."""
+    v = doc.vehicle
+    name = dialogs.ask_spot_name(ui, "Add a receiver spot", edits.unique_spot_name(v))
+    if name is None:
+        return
+    if v.regions:
+        import numpy as np
+
+        r = v.regions[doc.region_index]
+        c = np.asarray(r.outline).mean(axis=0)
+        pos = (c[0], c[1], r.height_m) if r.view == "top" else (c[0], r.lateral_m, c[1])
+    else:
+        pos = doc.spot_position(doc.selected) if doc.selected else (-1.0, 0.0, 0.5)
+    if doc.apply(lambda vv: edits.add_spot(vv, name, pos), f"Add spot '{name}'"):
+        doc.select(name)
+
+
+def rename_spot(doc: Document, ui) -> None:
+    old = doc.selected
+    if not old:
+        return
+    new = dialogs.ask_spot_name(ui, "Rename the receiver spot", old)
+    if new and new != old:
+        if doc.apply(lambda v: edits.rename_spot(v, old, new), f"Rename spot '{old}' to '{new}'"):
+            doc.select(new)
+
+
+def delete_spot(doc: Document, ui) -> None:
+    name = doc.selected
+    if name:
+        doc.apply(lambda v: edits.delete_spot(v, name), f"Delete spot '{name}'")
+
+
+def spot_axis(doc: Document, ui) -> None:
+    name = doc.selected
+    if not name:
+        return
+    spot = doc.vehicle.spots[edits.spot_index(doc.vehicle, name)]
+    dlg = dialogs.AxisDialog(ui, name, spot.axis)
+    if dlg.exec() == QDialog.DialogCode.Accepted:
+        axis = dlg.axis()
+        doc.apply(lambda v: edits.set_spot_axis(v, name, axis), f"Antenna axis of '{name}'")
+
+
+# ----- view / heatmap ------------------------------------------------------------------
+def fit_views(doc: Document, ui) -> None:
+    ui.fit_views()
+
+
+def compute_heatmap(doc: Document, ui) -> None:
+    ui.ranking.heatmap.start()
+
+
+def cancel_heatmap(doc: Document, ui) -> None:
+    ui.ranking.heatmap.cancel()
+
+
+# ----- help --------------------------------------------------------------------------
+def help_usage(doc: Document, ui) -> None:
+    ui.help_dialog = dialogs.show_help(ui, "Usage")
+
+
+def help_caution(doc: Document, ui) -> None:
+    ui.help_dialog = dialogs.show_help(ui, "Caution")
+
+
+def about(doc: Document, ui) -> None:
+    dialogs.about(ui)
+
+
+COMMANDS: tuple[Command, ...] = (
+    Command("&File", "&New", new_file, "Ctrl+N", "Start a new vehicle from a plain body"),
+    Command("&File", "&Open...", open_file, "Ctrl+O", "Open a vehicle file"),
+    Command("&File", "&Save", save_file, "Ctrl+S", "Save the vehicle file"),
+    Command("&File", "Save &as...", save_file_as, "Ctrl+Shift+S", "Save under a new name"),
+    Command("&File", "&Quit", quit_program, "Ctrl+Q", "Close the program"),
+    Command("&Edit", "&Undo", undo, "Ctrl+Z", "Undo the last edit", enabled_when="undo"),
+    Command("&Edit", "&Redo", redo, "Ctrl+Shift+Z", "Redo the edit undone last", enabled_when="redo"),
+    Command("&Edit", "Snap to &grid", toggle_snap, "Ctrl+G", f"Round dragged positions to {SNAP_GRID_M * 1000:.0f} mm",
+            checkable=True),
+    Command("&Spots", "&Add spot...", add_spot, "Ctrl+Shift+A", "Add a receiver spot at the centre of the mounting region"),
+    Command("&Spots", "&Rename spot...", rename_spot, "F2", "Rename the selected spot", enabled_when="spot"),
+    Command("&Spots", "Antenna &axis...", spot_axis, "Ctrl+Shift+X", "Set the selected spot's antenna axis",
+            enabled_when="spot"),
+    Command("&Spots", "&Delete spot", delete_spot, "Del", "Delete the selected spot", enabled_when="spot"),
+    Command("&View", "&Fit views", fit_views, "Ctrl+0", "Show the whole body in both views"),
+    Command("&View", "&Compute heatmap", compute_heatmap, "F5", "Compute the margin over the mounting region"),
+    Command("&View", "Ca&ncel heatmap", cancel_heatmap, "Esc", "Stop the heatmap computation"),
+    Command("&Help", "&Using the program", help_usage, "F1", "README: set-up, usage and file format pointers"),
+    Command("&Help", "&Cautions", help_caution, "", "README: limits of the results"),
+    Command("&Help", "&About Wheelreach", about, "", "Version, models and the safety caution"),
+)

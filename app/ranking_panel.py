@@ -1,0 +1,512 @@
+"""Ranking panel: margin heatmap of the mounting region, the sorted spot table and the selected spot's figures.
+
+All numbers come from ``core``: the heatmap from ``core.scoring.heatmap`` (in a worker thread), the
+table from the document's ``SpotScores`` in the order of ``SpotScores.order()``, burst success from
+``core.burst`` and wheel distinctness from ``core.distinctness``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
+from PySide6.QtGui import QColor, QPolygonF
+from PySide6.QtWidgets import (
+    QAbstractItemView, QCheckBox, QComboBox, QGraphicsPolygonItem, QHBoxLayout, QHeaderView, QLabel, QMenu,
+    QProgressBar, QPushButton, QSplitter, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget,
+)
+from scipy import ndimage
+
+from app import edits
+from app.document import Document
+from app.heatmap_worker import HeatmapJob
+from app.look import BODY_COLOUR, margin_colormap, wheel_colour
+from core.burst import burst_for_spot
+from core.distinctness import wheel_distinctness
+
+KMH_PER_MPS = 3.6
+STEPS_MM = (25, 50, 100, 200)
+
+
+def _plot(title: str, bottom: str, left: str, bottom_units: str | None = None, left_units: str | None = None) -> pg.PlotWidget:
+    p = pg.PlotWidget(background="w")
+    p.setTitle(title, size="9pt")
+    for side, text, units in (("bottom", bottom, bottom_units), ("left", left, left_units)):
+        p.getAxis(side).enableAutoSIPrefix(False)
+        p.setLabel(side, text, units=units)
+    p.showGrid(x=True, y=True, alpha=0.25)
+    p.setMenuEnabled(False)
+    return p
+
+
+def _filled_for_contour(margin_db: np.ndarray) -> np.ndarray:
+    """Margin with the cells outside the region set to their nearest inside value, so the 0 dB
+    contour follows the data and not the region's edge."""
+    bad = np.isnan(margin_db)
+    if not bad.any() or bad.all():
+        return np.nan_to_num(margin_db, nan=-1.0)
+    idx = ndimage.distance_transform_edt(bad, return_distances=False, return_indices=True)
+    return margin_db[tuple(idx)]
+
+
+class HeatmapPanel(QWidget):
+    """Heatmap of the worst-case margin over the mounting region, computed in a worker thread."""
+
+    heatmapReady = Signal(object)
+
+    def __init__(self, doc: Document, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.doc = doc
+        self.job: HeatmapJob | None = None
+        self.result = None  # the last complete core.scoring.Heatmap
+        self._outline_items: list = []
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.setSpacing(2)
+        row = QHBoxLayout()
+        self.step = QComboBox()
+        for mm in STEPS_MM:
+            self.step.addItem(f"{mm} mm grid", mm / 1000.0)
+        self.step.setCurrentIndex(1)
+        self.step.setToolTip("Spacing of the heatmap cells")
+        self.auto = QCheckBox("auto")
+        self.auto.setChecked(True)
+        self.auto.setToolTip("Recompute the heatmap after every edit")
+        self.compute = QPushButton("Compute")
+        self.compute.setToolTip("Compute the margin over the mounting region (runs in the background)")
+        self.cancel_button = QPushButton("Cancel")
+        self.cancel_button.setEnabled(False)
+        self.progress = QProgressBar()
+        self.progress.setRange(0, 100)
+        self.progress.setTextVisible(True)
+        self.progress.setFormat("%p %")
+        self.progress.setMaximumWidth(130)
+        for w in (self.step, self.auto, self.compute, self.cancel_button, self.progress):
+            row.addWidget(w)
+        row.addStretch(1)
+        lay.addLayout(row)
+
+        self.plot = _plot("Margin over the mounting region", "x, forward", "y, left", "m", "m")
+        self.plot.setAspectLocked(True)
+        self.image = pg.ImageItem(axisOrder="col-major")
+        self.image.setZValue(-10)
+        self.plot.addItem(self.image)
+        self.iso = pg.IsocurveItem(level=0.0, pen=pg.mkPen(0, 0, 0, width=2))
+        self.iso.setParentItem(self.image)
+        self.colorbar = self.plot.getPlotItem().addColorBar(
+            self.image, colorMap=margin_colormap(), values=(-20.0, 20.0), label="worst-case margin (dB)",
+            interactive=False, width=14,
+        )
+        self.spots = pg.ScatterPlotItem(size=8, pen=pg.mkPen("k"), brush=pg.mkBrush(255, 255, 255, 230))
+        self.spots.setZValue(5)
+        self.plot.addItem(self.spots)
+        lay.addWidget(self.plot, 1)
+        self.readout = QLabel("Click a cell to add a spot there. Black line: 0 dB margin.")
+        self.readout.setWordWrap(False)
+        lay.addWidget(self.readout)
+
+        self.compute.clicked.connect(self.start)
+        self.cancel_button.clicked.connect(self.cancel)
+        self.step.activated.connect(lambda _i: self.start())
+        self._debounce = QTimer(self)
+        self._debounce.setSingleShot(True)
+        self._debounce.setInterval(400)
+        self._debounce.timeout.connect(self.start)
+        doc.vehicleChanged.connect(self._vehicle_changed)
+        doc.regionSelectionChanged.connect(lambda _i: self._vehicle_changed())
+        self.plot.scene().sigMouseMoved.connect(self._hover)
+        self.plot.scene().sigMouseClicked.connect(self._clicked)
+        self._draw_context()
+
+    # ----- computation -----------------------------------------------------------------
+    def region(self):
+        v = self.doc.vehicle
+        return v.regions[self.doc.region_index] if v.regions else None
+
+    def start(self) -> None:
+        """Start (or restart) the heatmap of the current region in the worker thread."""
+        region = self.region()
+        if region is None:
+            self.readout.setText("This vehicle has no mounting region: add one to the file to get a heatmap.")
+            return
+        self.cancel(wait=True)
+        job = HeatmapJob(self.doc.scene, region, float(self.step.currentData()), parent=self)
+        job.progress.connect(self._progress)
+        job.done.connect(self._done)
+        job.cancelled.connect(lambda: self._ended("Heatmap cancelled."))
+        job.failed.connect(lambda msg: self._ended(f"Heatmap failed: {msg}"))
+        self.job = job
+        self.progress.setValue(0)
+        self.compute.setEnabled(False)
+        self.cancel_button.setEnabled(True)
+        self.readout.setText(f"Computing the margin over '{region.name}'...")
+        job.start()
+
+    def cancel(self, wait: bool = False) -> None:
+        if self.job is not None and self.job.is_running():
+            self.job.cancel()
+            if wait:
+                self.job.wait()
+
+    def is_running(self) -> bool:
+        return self.job is not None and self.job.is_running()
+
+    def _progress(self, done: int, total: int) -> None:
+        self.progress.setValue(int(100 * done / max(1, total)))
+
+    def _ended(self, text: str) -> None:
+        self.compute.setEnabled(True)
+        self.cancel_button.setEnabled(False)
+        self.readout.setText(text)
+
+    def _done(self, hm) -> None:
+        self._ended(self._summary(hm))
+        self.progress.setValue(100)
+        self.result = hm
+        self.show_heatmap(hm)
+        self.heatmapReady.emit(hm)
+
+    def _summary(self, hm) -> str:
+        m = hm.margin_db
+        ok = ~np.isnan(m)
+        share = float(np.mean(m[ok] >= 0.0)) if ok.any() else 0.0
+        best = hm.best_cells(1)
+        fixed = "height z" if hm.view == "top" else "lateral y"
+        text = f"{ok.sum()} cells at {fixed} {hm.fixed_m * 1000:.0f} mm; {100 * share:.0f} % reach 0 dB margin"
+        if best:
+            x, y, z, mb, _w = best[0]
+            text += f"; best {mb:+.1f} dB at x {x * 1000:.0f}, y {y * 1000:.0f}, z {z * 1000:.0f} mm"
+        return text
+
+    def _vehicle_changed(self) -> None:
+        self._draw_context()
+        if self.auto.isChecked():
+            self._debounce.start()
+
+    # ----- drawing ---------------------------------------------------------------------
+    def show_heatmap(self, hm) -> None:
+        m = hm.margin_db  # (nv, nu)
+        nu, nv = len(hm.u_m), len(hm.v_m)
+        du = (hm.u_m[-1] - hm.u_m[0]) / (nu - 1) if nu > 1 else hm.step_m
+        dv = (hm.v_m[-1] - hm.v_m[0]) / (nv - 1) if nv > 1 else hm.step_m
+        finite = m[~np.isnan(m)]
+        span = float(np.ceil(max(5.0, np.abs(finite).max() if finite.size else 5.0) / 5.0) * 5.0)
+        span = min(span, 40.0)
+        self.image.setImage(m.T, autoLevels=False, levels=(-span, span))
+        self.image.setRect(QRectF(hm.u_m[0] - du / 2, hm.v_m[0] - dv / 2, nu * du, nv * dv))
+        self.colorbar.setLevels((-span, span))
+        self.iso.setData(_filled_for_contour(m).T)
+        self.iso.setPos(0.5, 0.5)  # contour points are at cell centres (array indices); pixels span [i, i + 1]
+        self._draw_context(hm)
+
+    def _draw_context(self, hm=None) -> None:
+        """Body outline and spots of the heatmap's view, for orientation."""
+        pi = self.plot.getPlotItem()
+        for it in self._outline_items:
+            pi.removeItem(it)
+        self._outline_items = []
+        region = self.region()
+        view = hm.view if hm is not None else (region.view if region is not None else "top")
+        if self.result is not None and region is not None and (self.result.view != region.view):
+            self.image.clear()
+            self.iso.setData(None)
+        v = self.doc.vehicle
+        pts = v.body.top_outline if view == "top" else v.body.side_outline
+        poly = QGraphicsPolygonItem(QPolygonF([QPointF(*p) for p in pts]))
+        pen = pg.mkPen(BODY_COLOUR, width=1.2)
+        poly.setPen(pen)
+        pi.addItem(poly)
+        self._outline_items.append(poly)
+        self.plot.setLabel("left", "y, left" if view == "top" else "z, up", units="m")
+        pos = self.doc.scores.positions
+        if len(pos):
+            self.spots.setData(pos[:, 0], pos[:, 1] if view == "top" else pos[:, 2])
+        else:
+            self.spots.setData([], [])
+
+    # ----- mouse -----------------------------------------------------------------------
+    def cell_at(self, u: float, w: float):
+        """(margin_db, worst wheel id) of the heatmap cell containing (u, w) m, or None."""
+        hm = self.result
+        if hm is None:
+            return None
+        iu = int(np.argmin(np.abs(hm.u_m - u)))
+        iv = int(np.argmin(np.abs(hm.v_m - w)))
+        if abs(hm.u_m[iu] - u) > hm.step_m or abs(hm.v_m[iv] - w) > hm.step_m:
+            return None
+        m = hm.margin_db[iv, iu]
+        if np.isnan(m):
+            return None
+        return float(m), self.doc.scene.wheel_ids[int(hm.worst_wheel[iv, iu])]
+
+    def _view_point(self, scene_pos):
+        vb = self.plot.getPlotItem().vb
+        if not vb.sceneBoundingRect().contains(scene_pos):
+            return None
+        p = vb.mapSceneToView(scene_pos)
+        return p.x(), p.y()
+
+    def _hover(self, scene_pos) -> None:
+        uv = self._view_point(scene_pos)
+        if uv is None or self.result is None or self.is_running():
+            return
+        cell = self.cell_at(*uv)
+        name = "y" if self.result.view == "top" else "z"
+        where = f"x {uv[0] * 1000:.0f} mm, {name} {uv[1] * 1000:.0f} mm"
+        if cell is None:
+            self.readout.setText(where)
+        else:
+            self.readout.setText(f"{where}: margin {cell[0]:+.1f} dB, worst wheel {cell[1]}")
+
+    def _clicked(self, ev) -> None:
+        if ev.button() != Qt.MouseButton.LeftButton:
+            return
+        uv = self._view_point(ev.scenePos())
+        if uv is None or self.cell_at(*uv) is None:
+            return
+        ev.accept()
+        menu = self.spot_menu(*uv)
+        menu.exec(ev.screenPos().toPoint())
+
+    def spot_menu(self, u: float, w: float) -> QMenu:
+        """The menu offered on a heatmap cell."""
+        menu = QMenu(self)
+        cell = self.cell_at(u, w)
+        title = menu.addAction(f"margin {cell[0]:+.1f} dB, worst wheel {cell[1]}" if cell else "outside the region")
+        title.setEnabled(False)
+        act = menu.addAction("Add a spot here")
+        act.triggered.connect(lambda: self.add_spot_here(u, w))
+        return menu
+
+    def position_of(self, u: float, w: float) -> tuple[float, float, float]:
+        hm = self.result
+        su, sw = edits.snap(u, self.doc.snap_m), edits.snap(w, self.doc.snap_m)
+        return (su, sw, hm.fixed_m) if hm.view == "top" else (su, hm.fixed_m, sw)
+
+    def add_spot_here(self, u: float, w: float) -> str:
+        """Add a receiver spot at the heatmap point (u, w) m; returns its name."""
+        pos = self.position_of(u, w)
+        name = edits.unique_spot_name(self.doc.vehicle)
+        if self.doc.apply(lambda v: edits.add_spot(v, name, pos), f"Add spot '{name}' from the heatmap"):
+            self.doc.select(name)
+        return name
+
+
+class SpotTable(QTableWidget):
+    """The spots best first (``SpotScores.order()``); selecting a row selects the spot everywhere."""
+
+    COLUMNS = ("rank", "no.", "spot", "margin dB", "worst wheel", "at angle deg")
+
+    def __init__(self, doc: Document, parent: QWidget | None = None):
+        super().__init__(0, len(self.COLUMNS), parent)
+        self.doc = doc
+        self._loading = False
+        self.setHorizontalHeaderLabels(list(self.COLUMNS))
+        self.verticalHeader().setVisible(False)
+        self.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.setToolTip("Receiver spots ranked by worst-case margin (worst wheel, worst angle); ties by the worst wheel's median")
+        hh = self.horizontalHeader()
+        hh.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        hh.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
+        self.itemSelectionChanged.connect(self._selected)
+        doc.scoresReady.connect(self.refresh)
+        doc.selectionChanged.connect(self._select_row)
+        self._cmap = margin_colormap()
+        self.refresh()
+
+    def names_in_order(self) -> list[str]:
+        return [self.item(r, 2).text() for r in range(self.rowCount())]
+
+    def refresh(self) -> None:
+        self._loading = True
+        try:
+            sc = self.doc.scores
+            order = sc.order()
+            self.setRowCount(len(order))
+            for rank, i in enumerate(order):
+                w = int(sc.worst_wheel[i])
+                m = float(sc.margin_db[i])
+                cells = (str(rank + 1), str(i + 1), sc.names[i], f"{m:+.1f}", sc.wheel_ids[w], f"{sc.worst_angle_deg[i, w]:.0f}")
+                for c, text in enumerate(cells):
+                    item = QTableWidgetItem(text)
+                    if c in (0, 1, 3, 5):
+                        item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                    if c == 3:
+                        col = self._cmap.map(np.clip((m + 20.0) / 40.0, 0, 1), mode="qcolor")
+                        col.setAlpha(150)
+                        item.setBackground(col)
+                        if sc.near_field is not None and sc.near_field[i]:
+                            item.setToolTip("a sensor comes nearer than lambda/2pi: near field, indicative only")
+                    self.setItem(rank, c, item)
+        finally:
+            self._loading = False
+        self._select_row(self.doc.selected)
+
+    def _select_row(self, name: str) -> None:
+        self._loading = True
+        try:
+            for r in range(self.rowCount()):
+                if self.item(r, 2).text() == name:
+                    self.selectRow(r)
+                    break
+            else:
+                self.clearSelection()
+        finally:
+            self._loading = False
+
+    def _selected(self) -> None:
+        if self._loading:
+            return
+        rows = {i.row() for i in self.selectedItems()}
+        if rows:
+            self.doc.select(self.item(min(rows), 2).text())
+
+
+class SpotFigures(QWidget):
+    """For the selected spot: level over the turn per wheel, burst success vs speed, wheel separation."""
+
+    def __init__(self, doc: Document, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.doc = doc
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        split = QSplitter(Qt.Orientation.Vertical)
+        self.setMinimumWidth(520)
+        self.levels = _plot("Level over the wheel turn", "wheel angle", "received level", "deg", "dBm")
+        self.levels.setXRange(0, 360, padding=0)
+        self.levels.getAxis("bottom").setTicks([[(a, str(a)) for a in range(0, 361, 90)]])
+        self.levels_legend = self.levels.addLegend(offset=(-6, 6), labelTextSize="8pt", colCount=3,
+                                                   brush=pg.mkBrush(255, 255, 255, 200))
+        split.addWidget(self.levels)
+        lower = QSplitter(Qt.Orientation.Horizontal)
+        self.burst = _plot("Burst success vs speed", "vehicle speed", "bursts heard", "km/h", "%")
+        self.burst.setYRange(0, 100, padding=0.03)
+        self.burst_legend = self.burst.addLegend(offset=(-6, -6), labelTextSize="8pt", colCount=3,
+                                                 brush=pg.mkBrush(255, 255, 255, 200))
+        self.separation = _plot("Wheel separation by signal strength", "wheel", "level", None, "dBm")
+        lower.addWidget(self.burst)
+        lower.addWidget(self.separation)
+        split.addWidget(lower)
+        split.setSizes([300, 260])
+        lay.addWidget(split)
+        self.burst_result = None
+        self.distinctness = None
+        doc.scoresReady.connect(self.refresh)
+        doc.selectionChanged.connect(lambda _n: self.refresh())
+        doc.liveScore.connect(self._live)
+        self.refresh()
+
+    def _row(self):
+        sc = self.doc.scores
+        if not self.doc.selected or self.doc.selected not in sc.names:
+            return None
+        return sc.names.index(self.doc.selected)
+
+    def refresh(self) -> None:
+        i = self._row()
+        for p in (self.levels, self.burst, self.separation):
+            p.clear()
+        if i is None:
+            self.levels.setTitle("Level over the wheel turn (select a spot)", size="9pt")
+            return
+        sc = self.doc.scores
+        self._draw_levels(sc, i, self.doc.selected)
+        self._draw_burst(sc, i)
+        self._draw_separation(sc, i)
+
+    def _live(self, name: str, sc) -> None:
+        if name == self.doc.selected:
+            self.levels.clear()
+            self._draw_levels(sc, 0, name + " (moving)")
+
+    def _draw_levels(self, sc, i: int, title: str) -> None:
+        p = self.levels
+        ang = np.append(sc.angles_deg, 360.0)
+        right = {g.id for g in self.doc.scene.wheels if g.outboard_sign < 0}
+        self.levels_legend.setColumnCount(max(1, len(sc.wheel_ids)))
+        for w, wid in enumerate(sc.wheel_ids):
+            lv = np.append(sc.levels_dbm[i, w], sc.levels_dbm[i, w, 0])
+            # right-side wheels dashed: a spot on the centre line hears mirrored wheels alike
+            style = Qt.PenStyle.DashLine if wid in right else Qt.PenStyle.SolidLine
+            p.plot(ang, lv, pen=pg.mkPen(wheel_colour(w), width=1.8, style=style), name=wid)
+        ww = int(sc.worst_wheel[i])
+        p.plot([sc.worst_angle_deg[i, ww]], [sc.worst_dbm[i, ww]], pen=None, symbol="x", symbolSize=11,
+               symbolPen=pg.mkPen(wheel_colour(ww), width=2.5))
+        sens = sc.sensitivity_dbm
+        need = sens + sc.required_margin_db
+        p.addItem(pg.InfiniteLine(sens, angle=0, pen=pg.mkPen(180, 30, 30, width=1.5, style=Qt.PenStyle.DashLine),
+                                  label=f"sensitivity {sens:.0f} dBm", labelOpts={"position": 0.2, "color": (150, 20, 20)}))
+        p.addItem(pg.InfiniteLine(need, angle=0, pen=pg.mkPen(120, 120, 120, width=1, style=Qt.PenStyle.DotLine),
+                                  label=f"+ required margin {sc.required_margin_db:.0f} dB",
+                                  labelOpts={"position": 0.75, "color": (90, 90, 90)}))
+        lo = min(float(sc.levels_dbm[i].min()), sens) - 5
+        hi = max(float(sc.levels_dbm[i].max()), need) + 12
+        p.setYRange(lo, hi, padding=0)
+        p.setXRange(0, 360, padding=0)
+        m = float(sc.margin_db[i])
+        p.setTitle(f"{title}: margin {m:+.1f} dB, worst wheel {sc.wheel_ids[ww]} at {sc.worst_angle_deg[i, ww]:.0f} deg",
+                   size="9pt")
+
+    def _draw_burst(self, sc, i: int) -> None:
+        p = self.burst
+        r = burst_for_spot(self.doc.scene, sc, i)
+        self.burst_result = r
+        kmh = r.speeds_mps * KMH_PER_MPS
+        for w, wid in enumerate(r.wheel_ids):
+            col = wheel_colour(w)
+            p.plot(kmh, 100 * r.success[w], pen=pg.mkPen(col, width=1.8), name=wid)
+            p.plot([0.0], [100 * r.parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
+            for vr in r.resonant_mps[w]:
+                c = QColor(col)
+                c.setAlpha(110)
+                p.addItem(pg.InfiniteLine(vr * KMH_PER_MPS, angle=90, pen=pg.mkPen(c, width=1, style=Qt.PenStyle.DotLine)))
+        wi, vi = r.worst()
+        rad = self.doc.vehicle.radio
+        p.setTitle(f"Burst of {rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
+                   f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
+                   "squares: parked; dotted: frames repeat one angle", size="8pt")
+        p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
+
+    def _draw_separation(self, sc, i: int) -> None:
+        p = self.separation
+        lv = sc.levels_dbm[i]
+        d = wheel_distinctness(lv, sc.wheel_ids)
+        self.distinctness = d
+        x = np.arange(len(sc.wheel_ids))
+        q25, q75 = np.percentile(lv, 25, axis=1), np.percentile(lv, 75, axis=1)
+        brushes = [pg.mkBrush(wheel_colour(w)) for w in x]
+        p.addItem(pg.ErrorBarItem(x=x, y=(lv.min(axis=1) + lv.max(axis=1)) / 2, height=lv.max(axis=1) - lv.min(axis=1),
+                                  beam=0.15, pen=pg.mkPen(80, 80, 80)))
+        p.addItem(pg.BarGraphItem(x=x, y0=q25, y1=q75, width=0.45, brushes=brushes, pen=pg.mkPen(40, 40, 40)))
+        p.plot(x, d.medians_dbm, pen=None, symbol="_", symbolSize=26, symbolPen=pg.mkPen("k", width=2.5))
+        p.getAxis("bottom").setTicks([[(int(k), wid) for k, wid in zip(x, sc.wheel_ids)]])
+        p.setXRange(-0.7, len(x) - 0.3, padding=0)
+        if len(x) > 1:
+            a, b = d.closest_pair
+            p.setTitle(f"Closest wheels {sc.wheel_ids[a]} / {sc.wheel_ids[b]}: {d.min_separation_db:.1f} dB apart, "
+                       f"overlap {100 * d.closest_overlap:.0f} %<br>box: middle half of the turn, bar: range, line: median",
+                       size="8pt")
+
+
+class RankingPanel(QWidget):
+    """Heatmap | spot table | figures of the selected spot."""
+
+    def __init__(self, doc: Document, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.doc = doc
+        self.heatmap = HeatmapPanel(doc)
+        self.table = SpotTable(doc)
+        self.figures = SpotFigures(doc)
+        left = QSplitter(Qt.Orientation.Vertical)
+        left.addWidget(self.heatmap)
+        left.addWidget(self.table)
+        left.setSizes([330, 230])
+        split = QSplitter(Qt.Orientation.Horizontal)
+        split.addWidget(left)
+        split.addWidget(self.figures)
+        split.setSizes([600, 660])
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.addWidget(split)
