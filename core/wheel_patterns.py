@@ -334,7 +334,7 @@ class TableSet:
             size += " from " + ", ".join(near_sizes) + " in"
         if clamp_d or clamp_w:
             size += " (outside the tabulated range: nearest edge used)"
-        note = f", {band / 1e6:.2f} MHz table used for {freq_hz / 1e6:.2f} MHz" if abs(band - freq_hz) > 1e6 else ""
+        note = f", {band / 1e6:.2f} MHz table used for {freq_hz / 1e6:.2f} MHz" if abs(band - freq_hz) > 1e5 else ""
         label = "NEC-2 table" if exact else "NEC-2 tables interpolated"
         prov = (f"{label}: {size}, {band / 1e6:.2f} MHz, {axis} sensor, "
                 f"{'with steel belt' if belt else 'no belt'}{note}")

@@ -90,6 +90,22 @@ def to_f16(a: np.ndarray) -> np.ndarray:
     return np.stack([a.real, a.imag], axis=-1).astype(np.float16)
 
 
+def write_json(npz_path: Path) -> Path:
+    """Write the provenance JSON next to the table file (a readable copy of what the file holds)."""
+    with np.load(npz_path, allow_pickle=False) as z:
+        meta = json.loads(str(z["provenance"]))
+        meta.update(
+            file=npz_path.name, file_bytes=npz_path.stat().st_size,
+            rim_diameter_in=[float(x) for x in z["rim_diameter_in"]],
+            rim_width_in=[float(x) for x in z["rim_width_in"]], freq_hz=[float(x) for x in z["freq_hz"]],
+            axes=[str(a) for a in z["axes"]], belt_variants=[bool(b) for b in z["belt"]],
+            segments_min=int(z["segments"].min()), segments_max=int(z["segments"].max()),
+        )
+    path = npz_path.with_suffix(".json")
+    path.write_text(json.dumps(meta, indent=2) + "\n")
+    return path
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--diameters", default=DEFAULT_DIAMETERS, help="rim diameters, inch (comma list)")
@@ -97,7 +113,11 @@ def main(argv=None) -> int:
     ap.add_argument("--bands", default=DEFAULT_BANDS, help="frequencies, Hz (comma list)")
     ap.add_argument("--out", default=str(ROOT / "core" / "data" / "wheel_patterns.npz"))
     ap.add_argument("--step", type=float, default=5.0, help="far-field grid step, deg (default 5)")
+    ap.add_argument("--rewrite-json", action="store_true", help="only rewrite the JSON next to --out")
     args = ap.parse_args(argv)
+    if args.rewrite_json:
+        print(f"wrote {write_json(Path(args.out))}")
+        return 0
 
     diameters = [float(x) for x in args.diameters.split(",")]
     widths = [float(x) for x in args.widths.split(",")]
@@ -214,10 +234,7 @@ def main(argv=None) -> int:
         provenance=np.array(json.dumps(provenance)),
     )
     tmp.replace(out)
-    meta = dict(provenance, file=out.name, file_bytes=out.stat().st_size,
-                rim_diameter_in=diameters, rim_width_in=widths, freq_hz=bands, axes=list(AXES),
-                belt=belts)
-    out.with_suffix(".json").write_text(json.dumps(meta, indent=2) + "\n")
+    write_json(out)
     print(f"wrote {out} ({out.stat().st_size / 1e6:.2f} MB) in {runtime / 60:.1f} min; "
           f"symmetry residual {worst_sym:.1e}")
     return 0
