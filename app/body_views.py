@@ -8,11 +8,18 @@ they redraw from the document's signals. A spot's x is shared by both views.
 
 from __future__ import annotations
 
-import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
 from PySide6.QtGui import QBrush, QPen, QPolygonF
-from PySide6.QtWidgets import QGraphicsEllipseItem, QGraphicsPolygonItem, QGraphicsRectItem, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (
+    QGraphicsEllipseItem,
+    QGraphicsPolygonItem,
+    QGraphicsRectItem,
+    QHBoxLayout,
+    QLabel,
+    QVBoxLayout,
+    QWidget,
+)
 
 from app import edits
 from app.document import Document
@@ -34,7 +41,7 @@ def _on_white(c, alpha: float):
     """The colour ``c`` painted at opacity ``alpha`` on white (for swatches in labels)."""
     from PySide6.QtGui import QColor
 
-    return QColor(*(int(round(255 + alpha * (ch - 255))) for ch in (c.red(), c.green(), c.blue())))
+    return QColor(*(round(255 + alpha * (ch - 255)) for ch in (c.red(), c.green(), c.blue())))
 
 
 class SpotMarker(pg.TargetItem):
@@ -234,9 +241,14 @@ class BodyView(QWidget):
             roi.setZValue(8)
             what = "drag to move" if self.view == "top" else "drag to move the axle along x"
             roi.setToolTip(f"wheel {'/'.join(ids)}: {what} (tire {2 * r * 1000:.0f} mm, rim {2 * rr * 1000:.0f} mm)")
-            label = pg.TextItem("/".join(ids), color=(60, 60, 60), anchor=(0.5, 0.5))
-            label.setParentItem(roi)
-            label.setPos(r, r if self.view == "side" else 0.5 * w.tire_width_m)
+            if self.view == "side":  # below the tire: several wheels may share the circle
+                label = pg.TextItem("/".join(ids), color=(60, 60, 60), anchor=(0.5, 0.0))
+                label.setParentItem(roi)
+                label.setPos(r, -0.02)
+            else:
+                label = pg.TextItem(w.id, color=(60, 60, 60), anchor=(0.5, 0.5))
+                label.setParentItem(roi)
+                label.setPos(r, 0.5 * w.tire_width_m)
             roi.sigRegionChangeFinished.connect(lambda rr_, ids=tuple(ids): self._wheel_edited(ids, rr_))
             for i in ids:
                 self.wheel_rois[i] = roi

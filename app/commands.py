@@ -5,8 +5,8 @@ Menus and shortcuts are built from ``COMMANDS`` in one place (``MainWindow._buil
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 from PySide6.QtWidgets import QDialog, QFileDialog
 
@@ -101,9 +101,8 @@ def rename_spot(doc: Document, ui) -> None:
     if not old:
         return
     new = dialogs.ask_spot_name(ui, "Rename the receiver spot", old)
-    if new and new != old:
-        if doc.apply(lambda v: edits.rename_spot(v, old, new), f"Rename spot '{old}' to '{new}'"):
-            doc.select(new)
+    if new and new != old and doc.apply(lambda v: edits.rename_spot(v, old, new), f"Rename spot '{old}' to '{new}'"):
+        doc.select(new)
 
 
 def delete_spot(doc: Document, ui) -> None:

@@ -5,8 +5,17 @@ from __future__ import annotations
 from pathlib import Path
 
 from PySide6.QtWidgets import (
-    QComboBox, QDialog, QDialogButtonBox, QDoubleSpinBox, QFormLayout, QHBoxLayout, QInputDialog, QMessageBox,
-    QTextBrowser, QVBoxLayout, QWidget,
+    QComboBox,
+    QDialog,
+    QDialogButtonBox,
+    QDoubleSpinBox,
+    QFormLayout,
+    QHBoxLayout,
+    QInputDialog,
+    QMessageBox,
+    QTextBrowser,
+    QVBoxLayout,
+    QWidget,
 )
 
 from core.vehicle import VehicleFileError

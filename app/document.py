@@ -8,8 +8,8 @@ valid state.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable
 
 import numpy as np
 from PySide6.QtCore import QObject, Signal
@@ -25,7 +25,7 @@ protect_singletons()  # PySide6 6.12.0 loses references to True/False in object-
 class VehicleEdit(QUndoCommand):
     """One finished edit: swaps the document's vehicle between ``before`` and ``after``."""
 
-    def __init__(self, doc: "Document", before: Vehicle, after: Vehicle, text: str):
+    def __init__(self, doc: Document, before: Vehicle, after: Vehicle, text: str):
         super().__init__(text)
         self._doc, self._before, self._after = doc, before, after
 

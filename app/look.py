@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from functools import lru_cache
+from functools import cache
 
 import pyqtgraph as pg
 from PySide6.QtGui import QColor
@@ -15,7 +15,7 @@ PALETTE = "PAL-relaxed_bright"
 BODY_COLOUR = QColor(40, 40, 40)
 
 
-@lru_cache(maxsize=None)
+@cache
 def _palette(name: str) -> tuple[QColor, ...]:
     cols = [QColor(c) for c in pg.colormap.get(name).getColors(mode="qcolor")]
     if len(cols) > 1 and cols[0] == cols[-1]:

@@ -15,7 +15,14 @@ from pathlib import Path
 from PySide6.QtCore import QSettings, QStandardPaths, Qt, QTimer
 from PySide6.QtGui import QAction, QCloseEvent, QKeySequence
 from PySide6.QtWidgets import (
-    QDockWidget, QLabel, QMainWindow, QScrollArea, QSplitter, QTabWidget, QVBoxLayout, QWidget,
+    QDockWidget,
+    QLabel,
+    QMainWindow,
+    QScrollArea,
+    QSplitter,
+    QTabWidget,
+    QVBoxLayout,
+    QWidget,
 )
 
 from app import commands, dialogs
@@ -120,8 +127,8 @@ class MainWindow(QMainWindow):
         dock.setWidget(tabs)
         dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable | QDockWidget.DockWidgetFeature.DockWidgetFloatable)
         self.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock)
-        dock.setMinimumWidth(330)
-        self.resizeDocks([dock], [340], Qt.Orientation.Horizontal)
+        dock.setMinimumWidth(390)
+        self.dock = dock
 
         self.model_label = QLabel()
         self.statusBar().addPermanentWidget(self.model_label)

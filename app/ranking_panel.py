@@ -12,8 +12,21 @@ import pyqtgraph as pg
 from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QPolygonF
 from PySide6.QtWidgets import (
-    QAbstractItemView, QCheckBox, QComboBox, QGraphicsPolygonItem, QHBoxLayout, QHeaderView, QLabel, QMenu,
-    QProgressBar, QPushButton, QSplitter, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget,
+    QAbstractItemView,
+    QCheckBox,
+    QComboBox,
+    QGraphicsPolygonItem,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QMenu,
+    QProgressBar,
+    QPushButton,
+    QSplitter,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
 )
 from scipy import ndimage
 
@@ -189,9 +202,10 @@ class HeatmapPanel(QWidget):
         nu, nv = len(hm.u_m), len(hm.v_m)
         du = (hm.u_m[-1] - hm.u_m[0]) / (nu - 1) if nu > 1 else hm.step_m
         dv = (hm.v_m[-1] - hm.v_m[0]) / (nv - 1) if nv > 1 else hm.step_m
-        finite = m[~np.isnan(m)]
-        span = float(np.ceil(max(5.0, np.abs(finite).max() if finite.size else 5.0) / 5.0) * 5.0)
-        span = min(span, 40.0)
+        finite = np.abs(m[~np.isnan(m)])
+        # symmetric colour range about 0 dB, in 5 dB steps, covering nearly all cells (10..40 dB)
+        span = float(np.ceil(np.percentile(finite, 98) / 5.0) * 5.0) if finite.size else 10.0
+        span = min(max(span, 10.0), 40.0)
         self.image.setImage(m.T, autoLevels=False, levels=(-span, span))
         self.image.setRect(QRectF(hm.u_m[0] - du / 2, hm.v_m[0] - dv / 2, nu * du, nv * dv))
         self.colorbar.setLevels((-span, span))
@@ -308,8 +322,10 @@ class SpotTable(QTableWidget):
         self.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.setToolTip("Receiver spots ranked by worst-case margin (worst wheel, worst angle); ties by the worst wheel's median")
         hh = self.horizontalHeader()
-        hh.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        hh.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         hh.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
+        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92)):
+            self.setColumnWidth(c, wpx)
         self.itemSelectionChanged.connect(self._selected)
         doc.scoresReady.connect(self.refresh)
         doc.selectionChanged.connect(self._select_row)
@@ -373,7 +389,6 @@ class SpotFigures(QWidget):
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
         split = QSplitter(Qt.Orientation.Vertical)
-        self.setMinimumWidth(520)
         self.levels = _plot("Level over the wheel turn", "wheel angle", "received level", "deg", "dBm")
         self.levels.setXRange(0, 360, padding=0)
         self.levels.getAxis("bottom").setTicks([[(a, str(a)) for a in range(0, 361, 90)]])
@@ -383,7 +398,7 @@ class SpotFigures(QWidget):
         lower = QSplitter(Qt.Orientation.Horizontal)
         self.burst = _plot("Burst success vs speed", "vehicle speed", "bursts heard", "km/h", "%")
         self.burst.setYRange(0, 100, padding=0.03)
-        self.burst_legend = self.burst.addLegend(offset=(-6, -6), labelTextSize="8pt", colCount=3,
+        self.burst_legend = self.burst.addLegend(offset=(6, -6), labelTextSize="8pt", colCount=3,
                                                  brush=pg.mkBrush(255, 255, 255, 200))
         self.separation = _plot("Wheel separation by signal strength", "wheel", "level", None, "dBm")
         lower.addWidget(self.burst)
@@ -464,9 +479,9 @@ class SpotFigures(QWidget):
                 p.addItem(pg.InfiniteLine(vr * KMH_PER_MPS, angle=90, pen=pg.mkPen(c, width=1, style=Qt.PenStyle.DotLine)))
         wi, vi = r.worst()
         rad = self.doc.vehicle.radio
-        p.setTitle(f"Burst of {rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
+        p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
                    f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
-                   "squares: parked; dotted: frames repeat one angle", size="8pt")
+                   "squares: parked; dotted: frames repeat", size="8pt")
         p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
 
     def _draw_separation(self, sc, i: int) -> None:
@@ -485,8 +500,8 @@ class SpotFigures(QWidget):
         p.setXRange(-0.7, len(x) - 0.3, padding=0)
         if len(x) > 1:
             a, b = d.closest_pair
-            p.setTitle(f"Closest wheels {sc.wheel_ids[a]} / {sc.wheel_ids[b]}: {d.min_separation_db:.1f} dB apart, "
-                       f"overlap {100 * d.closest_overlap:.0f} %<br>box: middle half of the turn, bar: range, line: median",
+            p.setTitle(f"Closest {sc.wheel_ids[a]} / {sc.wheel_ids[b]}: {d.min_separation_db:.1f} dB apart, "
+                       f"overlap {100 * d.closest_overlap:.0f} %<br>box: middle half, bar: range, line: median",
                        size="8pt")
 
 

@@ -6,12 +6,26 @@ Display units at the edge only: MHz, km/h and ms in the widgets; Hz, m/s and s i
 from __future__ import annotations
 
 import importlib.util
-from typing import Callable
+from collections.abc import Callable
 
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (
-    QAbstractSpinBox, QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGroupBox, QHBoxLayout, QHeaderView,
-    QLabel, QListWidget, QPushButton, QSpinBox, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget,
+    QAbstractSpinBox,
+    QCheckBox,
+    QComboBox,
+    QDoubleSpinBox,
+    QFormLayout,
+    QGroupBox,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QListWidget,
+    QPushButton,
+    QSpinBox,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
 )
 
 from app import edits
@@ -84,6 +98,7 @@ class RadioPanel(QWidget):
         self.freq_preset = _combo([("free entry", None)] + [(t, v) for t, v in FREQUENCY_PRESETS_MHZ],
                                   "Common tire-pressure sensor bands (315 MHz: North America and others; 433.92 MHz: Europe and others)")
         self.freq = _spin(1.0, 10000.0, 3, 0.01, " MHz", "Carrier frequency, MHz (stored in Hz)")
+        self.freq.setMinimumWidth(110)
         row = QHBoxLayout()
         row.addWidget(self.freq, 1)
         row.addWidget(self.freq_preset, 1)

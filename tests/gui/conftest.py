@@ -8,8 +8,8 @@ _TMP = tempfile.mkdtemp(prefix="wheelreach-gui-tests-")
 os.environ["XDG_CONFIG_HOME"] = os.path.join(_TMP, "config")
 os.environ["XDG_DATA_HOME"] = os.path.join(_TMP, "data")
 
-import pytest  # noqa: E402
-from PySide6.QtCore import QSettings, QStandardPaths  # noqa: E402
+import pytest
+from PySide6.QtCore import QSettings, QStandardPaths
 
 QStandardPaths.setTestModeEnabled(True)
 
