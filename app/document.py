@@ -15,11 +15,8 @@ import numpy as np
 from PySide6.QtCore import QObject, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
-from app.qt_workarounds import protect_singletons
 from core.scoring import Scene, SpotScores, score_spots, score_vehicle
 from core.vehicle import Vehicle, VehicleFileError, check_vehicle, load_vehicle, save_vehicle
-
-protect_singletons()  # PySide6 6.12.0 loses references to True/False in object-typed signals
 
 
 class VehicleEdit(QUndoCommand):
