@@ -136,6 +136,20 @@ def cancel_heatmap(doc: Document, ui) -> None:
 
 
 # ----- help --------------------------------------------------------------------------
+def export_report(doc: Document, ui) -> None:
+    """File > Export report: the placement report of the document as it stands (saved file or edits)."""
+    from app.report import export_report_dialog
+
+    export_report_dialog(ui, doc.path if doc.path and doc.undo_stack.isClean() else doc.vehicle)
+
+
+def compare_bodies(doc: Document, ui) -> None:
+    """Tools > Compare bodies: one spot for several body styles, starting with this file."""
+    from app.compare_window import open_compare_window
+
+    ui.compare_window = open_compare_window(ui, [str(doc.path)] if doc.path else None)
+
+
 def help_usage(doc: Document, ui) -> None:
     ui.help_dialog = dialogs.show_help(ui, "Usage")
 
@@ -153,6 +167,7 @@ COMMANDS: tuple[Command, ...] = (
     Command("&File", "&Open...", open_file, "Ctrl+O", "Open a vehicle file"),
     Command("&File", "&Save", save_file, "Ctrl+S", "Save the vehicle file"),
     Command("&File", "Save &as...", save_file_as, "Ctrl+Shift+S", "Save under a new name"),
+    Command("&File", "Export &report...", export_report, "Ctrl+Shift+E", "Write the placement report (PDF, with CSV/JSON data)"),
     Command("&File", "&Quit", quit_program, "Ctrl+Q", "Close the program"),
     Command("&Edit", "&Undo", undo, "Ctrl+Z", "Undo the last edit", enabled_when="undo"),
     Command("&Edit", "&Redo", redo, "Ctrl+Shift+Z", "Redo the edit undone last", enabled_when="redo"),
@@ -166,6 +181,7 @@ COMMANDS: tuple[Command, ...] = (
     Command("&View", "&Fit views", fit_views, "Ctrl+0", "Show the whole body in both views"),
     Command("&View", "&Compute heatmap", compute_heatmap, "F5", "Compute the margin over the mounting region"),
     Command("&View", "Ca&ncel heatmap", cancel_heatmap, "Esc", "Stop the heatmap computation"),
+    Command("&Tools", "&Compare bodies...", compare_bodies, "Ctrl+Shift+C", "Compare spots across several body files"),
     Command("&Help", "&Using the program", help_usage, "F1", "README: set-up, usage and file format pointers"),
     Command("&Help", "&Cautions", help_caution, "", "README: limits of the results"),
     Command("&Help", "&About Wheelreach", about, "", "Version, models and the safety caution"),

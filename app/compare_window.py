@@ -357,10 +357,3 @@ def open_compare_window(parent=None, paths=None) -> CompareWindow:
         w.add_paths(paths)
     w.show()
     return w
-
-
-def export_report_dialog(parent, vehicle_path_or_vehicle):
-    """File > Export report: see app.report.export_report_dialog."""
-    from app.report import export_report_dialog as dialog
-
-    return dialog(parent, vehicle_path_or_vehicle)
