@@ -765,9 +765,10 @@ def wheel_mesh_spacing_m(freq_hz: float) -> float:
     """Coarse mesh spacing of the wheel models: lambda/20, m.
 
     Finer than the lambda/10 rule because the steel belt and the rim are resonant scatterers at
-    these sizes: with the belt at lambda/10 the pattern moved by up to 3-8 dB in some directions
-    against a lambda/20-lambda/30 reference, at lambda/20 by 1.2-2.2 dB at most (0.3-0.4 dB rms);
-    see docs/VALIDATION.md. Next to the sensor the rim mesh is refined further (WheelSpec.refine_m).
+    these sizes: against a finer reference mesh (10 mm cells, lambda/30) a belt at lambda/10 moved
+    the pattern by up to 6-9 dB in some directions, the lambda/20 mesh by 1.0-2.3 dB at most
+    (0.2-0.4 dB rms); validation/nec_sweeps.py mesh, docs/VALIDATION.md. Next to the sensor the rim
+    mesh is refined further (WheelSpec.refine_m).
     """
     return grid_spacing_m(freq_hz, 0.05)
 
