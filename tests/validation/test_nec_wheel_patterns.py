@@ -100,3 +100,23 @@ def test_table_lookups_agree_with_direct_nec_runs_over_a_full_turn(case):
         assert r["max_abs_db"] <= 1.5, msg
         assert r["rotated_max_abs_db"] <= 1.5, msg
         assert r["swing_db"] > 3.0, msg  # the turn really varies: the check is not trivial
+
+
+def test_on_demand_computation_matches_the_tables_and_is_cached(tmp_path, monkeypatch):
+    # core.wheel_patterns.compute_table solves a wheel now (PyNEC) and caches all three axes; for a
+    # tabulated size with the default sensor place and no belt it must give the shipped table.
+    d, w, f = 15 * INCH, 6.5 * INCH, 315e6
+    t = wp.compute_table(d, w, f, "radial", cache_dir=tmp_path)
+    assert t.kind == "computed" and "NEC-2 computed" in t.provenance
+    assert len(list(tmp_path.glob("wheel_*.npz"))) == 1
+    shipped = wp.select_table(d, w, f, "radial", belt=False)
+    peak = math.sqrt(float(np.max(wp.directivity(t))))
+    assert np.max(np.abs(shipped.e_theta - t.e_theta)) < 2e-3 * peak
+    assert np.max(np.abs(shipped.near - t.near)) < 2e-3 * float(np.max(np.abs(t.near)))
+
+    def no_solver():
+        raise AssertionError("the cache should have been used")
+
+    monkeypatch.setattr(wp, "_nec_models", no_solver)
+    again = wp.compute_table(d, w, f, "axial", cache_dir=tmp_path)
+    assert again.axis == "axial" and again.kind == "computed"
