@@ -219,8 +219,10 @@ def test_unfold_half_rebuilds_a_mirror_symmetric_pattern():
 
 def test_table_for_wheel_follows_the_wheel_and_band():
     tire = parse_tire_code("225/50R17")
-    w = WheelGeometry("FL", (1.4, 0.78, tire.outer_radius_m), 1.0, tire.rim_radius_m, 7.5 * INCH,
-                      tire.outer_radius_m, tire.section_width_m, tire.rim_radius_m, 7.5 * INCH / 4)
+    w = WheelGeometry(id="FL", centre=(1.4, 0.78, tire.outer_radius_m), outboard_sign=1.0,
+                      rim_radius_m=tire.rim_radius_m, rim_width_m=7.5 * INCH, tire_radius_m=tire.outer_radius_m,
+                      tire_width_m=tire.section_width_m, sensor_radius_m=tire.rim_radius_m,
+                      sensor_offset_m=7.5 * INCH / 4)
     t = wp.table_for_wheel(w, 433.92e6, "radial")
     assert "17.0 x 7.5 in" in t.provenance and "433.92 MHz" in t.provenance and "steel belt" in t.provenance
     assert t.sensor_radius_m == pytest.approx(tire.rim_radius_m, abs=1e-6)

@@ -150,8 +150,9 @@ def rim_barrel(freq_hz: float = 315e6, receiver_m=(0.5, -1.0, 0.3), n_angles: in
     path = dst - src
     dist = np.linalg.norm(path, axis=1)
     u = path / dist[:, None]
-    wg = WheelGeometry("T", (0.0, 0.0, 0.0), 1.0, r, width_m, tire_radius_m or r + 0.11, width_m + 0.03,
-                       r + height_m, 0.0)
+    wg = WheelGeometry(id="T", centre=(0.0, 0.0, 0.0), outboard_sign=1.0, rim_radius_m=r, rim_width_m=width_m,
+                       tire_radius_m=tire_radius_m or r + 0.11, tire_width_m=width_m + 0.03,
+                       sensor_radius_m=r + height_m, sensor_offset_m=0.0)
     loss = wheel_loss_db(wg, src, dst, freq_hz, 0.0, 0.0)
     pattern = dipole_pattern_rel_db(axes, u, -30.0)
     engine_db = pattern - loss - db20(dist / d0)

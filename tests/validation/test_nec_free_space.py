@@ -6,7 +6,7 @@ import math
 import numpy as np
 import pytest
 
-pytest.importorskip("PyNEC")
+pytest.importorskip("PyNEC", exc_type=ImportError)  # absent or broken install: skip
 
 from core.propagation import SHORT_DIPOLE_DIRECTIVITY, free_space_loss_db, wavelength_m
 from tools import nec_models as nm

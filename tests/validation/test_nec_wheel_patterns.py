@@ -13,7 +13,7 @@ import math
 import numpy as np
 import pytest
 
-pytest.importorskip("PyNEC")
+pytest.importorskip("PyNEC", exc_type=ImportError)  # absent or broken install: skip
 
 from core import wheel_patterns as wp
 from core.tires import parse_tire_code
