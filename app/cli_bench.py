@@ -222,8 +222,9 @@ def _cmd_bench(args) -> int:
     print(f"machine: {os.cpu_count()} logical CPUs, {cpu_model()}; Python {platform.python_version()}, "
           f"numpy {numpy.__version__}")
     print(f"vehicle: {v.name} ({path})")
-    models = [None]
-    if args.wheel_model == "both":
+    # default: both wheel models; the knife-edge figures (which the scalar reference covers) make the summary
+    models = ["knife_edge", "installed_pattern"]
+    if args.wheel_model == "both" or not args.wheel_model:
         try:
             import core.wheel_patterns  # noqa: F401
         except ModuleNotFoundError:
@@ -252,6 +253,7 @@ def _cmd_bench(args) -> int:
         return 1
     for name, fig in figures[1:]:
         print(f"{name}: {summary_line(fig)}")
+    print(f"{figures[0][0]}: see the summary line below")
     print(summary_line(figures[0][1]))
     return 0
 
@@ -262,7 +264,8 @@ def register(sub) -> None:
     b.add_argument("--quick", action="store_true", help="small grids and few repeats (a smoke run, not a measurement)")
     b.add_argument("--repeats", type=int, help="timed repeats of the heatmap (default 5; 1 with --quick)")
     b.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern", "both"],
-                   help="wheel model to bench (default: the file's); 'both' needs the installed wheel patterns")
+                   help="wheel model to bench (default: both; the summary line is the knife-edge model's, "
+                        "which the scalar reference covers)")
     b.add_argument("--progress", action="store_true", help="show progress bars even when not on a terminal")
     b.add_argument("--quiet", action="store_true", help="no progress bars")
     b.set_defaults(func=_cmd_bench)

@@ -56,8 +56,12 @@ def _perp(a, u):
 
 
 def sensor_field(scene, wheel_index: int, theta_idx: np.ndarray, s_axis: np.ndarray, u: np.ndarray,
-                 r_axis: np.ndarray) -> np.ndarray:
-    """Sensor far-field vector toward unit directions u (N, 3), relative to the bare peak; complex (N, 3)."""
+                 r_axis: np.ndarray, distance_m: np.ndarray | None = None) -> np.ndarray:
+    """Sensor field vector toward unit directions u (N, 3), relative to the bare peak; complex (N, 3).
+
+    ``distance_m`` (N,) is the path length to the field point; the installed wheel pattern uses it
+    for its near-field term (for the road-reflected ray: the image path length, i.e. the distance to
+    the receiver's mirror point, which is exact for the image method)."""
     kind = scene.sensor_kind
     if kind == "dipole":
         return _perp(s_axis, u).astype(complex)
@@ -71,7 +75,7 @@ def sensor_field(scene, wheel_index: int, theta_idx: np.ndarray, s_axis: np.ndar
     from core.wheel_patterns import field_vectors
 
     th = scene.angles_rad[theta_idx]
-    return field_vectors(table, u, th, w.outboard_sign) / np.sqrt(1.5)
+    return field_vectors(table, u, th, w.outboard_sign, distance_m=distance_m) / np.sqrt(1.5)
 
 
 def _floor(c: np.ndarray, floor_amp: float) -> np.ndarray:
@@ -99,7 +103,7 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
 
     # direct ray
     u, d = _unit(dst - src)
-    e_d = sensor_field(scene, wheel_index, theta_idx, s_axis, u, r_axis)
+    e_d = sensor_field(scene, wheel_index, theta_idx, s_axis, u, r_axis, d)
     loss_d = body_loss_db(scene.hull, src, dst, scene.freq_hz, bits0)
     if scene.use_wheel_loss:
         loss_d = loss_d + wheel_loss_db(w, src, dst, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
@@ -119,7 +123,7 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
         tg = src[:, 2] / np.maximum(src[:, 2] + dst[:, 2], 1e-9)
         g_pt = img + tg[:, None] * (dst - img)
         g_pt[:, 2] = 0.0
-        e_i = sensor_field(scene, wheel_index, theta_idx, s_axis, u_i, r_axis)
+        e_i = sensor_field(scene, wheel_index, theta_idx, s_axis, u_i, r_axis, d_r)
         n_te, n_len = _unit(np.cross(_Z, u_i))
         vertical = n_len < 1e-9
         if vertical.any():

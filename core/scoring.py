@@ -104,11 +104,15 @@ class Scene:
         if model == "installed_pattern" and r.sensor.pattern == "dipole":
             from core.wheel_patterns import table_for_wheel
 
-            tables = tuple(table_for_wheel(w, f, r.sensor.axis) for w in wheels)
-            sensor_kind = "table"
-            label = "installed pattern: " + "; ".join(sorted({t.provenance for t in tables}))
-        elif r.sensor.pattern == "isotropic":
-            label = "knife edge (isotropic sensor)"
+            try:
+                tables = tuple(table_for_wheel(w, f, r.sensor.axis) for w in wheels)
+            except (FileNotFoundError, ValueError) as e:  # no table for this band or size
+                label = f"knife edge (installed pattern unavailable: {e})"
+            else:
+                sensor_kind = "table"
+                label = "installed pattern: " + "; ".join(sorted({t.provenance for t in tables}))
+        elif model == "installed_pattern":
+            label = "knife edge (installed patterns need a dipole sensor)"
         rx_gain = r.receiver.gain_dbi
         return cls(
             vehicle=v,

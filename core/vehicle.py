@@ -220,7 +220,7 @@ class Radio(_Strict):
     speed_max_mps: float = Field(44.5, ge=0.0, le=100.0)
     ground_reflection: bool = True
     road_surface: str = "dry asphalt/concrete"
-    wheel_model: Literal["knife_edge", "installed_pattern"] = "knife_edge"
+    wheel_model: Literal["knife_edge", "installed_pattern"] = "installed_pattern"
 
     @property
     def sensor_eirp_dbm(self) -> float:

@@ -44,7 +44,7 @@ def test_cabin_loss_from_outside_lies_in_3gpp_car_penetration_band():
     # 433.92 MHz is an extrapolation below 600 MHz, so it is a sanity band only (DESIGN.md sec. 9).
     # "Within two sd" is applied to the mean over the cabin spots and the outside points.
     v = sedan()
-    scene = Scene.from_vehicle(v)
+    scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     names, spots = _cabin_spots(v, scene)
     assert len(names) >= 4, names
     w = scene.wheels[0]
@@ -89,7 +89,7 @@ def test_mirror_symmetric_body_swaps_left_and_right_wheels(ground):
     # axis mirrored, must give the left wheel's result for the right wheel and vice versa.
     v = sedan()
     _assert_sedan_is_mirror_symmetric(v)
-    scene = Scene.from_vehicle(v, ground_reflection=ground)
+    scene = Scene.from_vehicle(v, ground_reflection=ground, wheel_model="knife_edge")
     _, file_pos, file_ax = vehicle_spot_arrays(v)
     extra = np.array([[-0.85, 0.3, 0.7], [-1.75, 0.4, 0.3], [-1.2, 0.6, 1.2], [-2.0, 1.3, 0.4], [0.5, 0.5, 0.5],
                       [-3.5, 0.3, 0.4], [-2.8, 0.55, 0.33]])
@@ -116,7 +116,7 @@ def test_unobstructed_level_falls_as_friis_with_ground_off():
     # P_rx = EIRP + G_r - L_fs - L_wheel for matched, peak-gain short dipoles (Balanis: two
     # dipoles along y, path perpendicular to both -> no pattern or polarization loss).
     v = open_space_vehicle(sensor_axis="axial", receiver_axis=(0.0, 1.0, 0.0), ground=False)
-    scene = Scene.from_vehicle(v)
+    scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     assert scene.angles_rad[FRONT] == pytest.approx(np.pi / 2)
     src = scene.sensor_pos[0, FRONT]
     d = np.array([0.5, 1.0, 2.0, 4.0, 8.0, 16.0, 64.0])
@@ -140,7 +140,7 @@ def test_unobstructed_level_follows_two_ray_model_with_ground_on_horizontal_pola
     # against Rappaport's asymptote in tests/test_propagation.py. Both rays leave the tire through
     # the tread (10 dB, same on both), so the level is EIRP + G_r - L_two_ray - L_tread.
     v = open_space_vehicle(sensor_axis="axial", receiver_axis=(0.0, 1.0, 0.0), ground=True)
-    scene = Scene.from_vehicle(v)
+    scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     src = scene.sensor_pos[0, FRONT]
     h_t = src[2]
     d = np.array([1.0, 2.0, 4.0, 8.0, 16.0, 32.0, 100.0, 200.0, 400.0])
@@ -164,7 +164,7 @@ def test_unobstructed_level_follows_two_ray_model_with_ground_on_vertical_polari
     # so the comparison holds once the two rays' dipole patterns agree (elevations of a few
     # degrees: d >= 8 m gives cos(elevation) > 0.99).
     v = open_space_vehicle(sensor_axis="radial", receiver_axis=(0.0, 0.0, 1.0), ground=True)
-    scene = Scene.from_vehicle(v)
+    scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     src = scene.sensor_pos[0, 0]
     h_t = src[2]
     d = np.array([8.0, 16.0, 32.0, 100.0, 200.0, 400.0])
@@ -187,8 +187,8 @@ P_OUTSIDE = [0.0, BOX_HALF_WIDTH_M + 0.05, 0.9]  # 5 cm outside the left side's 
 def test_closed_metal_cabin_scores_below_a_spot_just_outside_the_window():
     # Common practice: a closed metal body shields the cabin; a spot just outside the window has
     # no body between it and the wheel. Default setup (road reflection on).
-    metal = Scene.from_vehicle(box_cabin(None))
-    glazed = Scene.from_vehicle(box_cabin("glass"))
+    metal = Scene.from_vehicle(box_cabin(None), wheel_model="knife_edge")
+    glazed = Scene.from_vehicle(box_cabin("glass"), wheel_model="knife_edge")
     inside_metal = score_spots(metal, [P_INSIDE])
     outside = score_spots(glazed, [P_OUTSIDE])
     assert inside_metal.margin_db[0] < outside.margin_db[0] - 10.0
@@ -200,13 +200,13 @@ def test_spot_behind_glass_beats_the_same_spot_behind_metal():
     # crossing loss (an engineering default, core.materials): with the road reflection off every
     # direct ray enters through the window panel once, so the levels differ by exactly the two
     # crossing losses at every angle; with it on the glazed cabin still wins on margin and median.
-    metal = Scene.from_vehicle(box_cabin(None), ground_reflection=False)
-    glazed = Scene.from_vehicle(box_cabin("glass"), ground_reflection=False)
+    metal = Scene.from_vehicle(box_cabin(None), ground_reflection=False, wheel_model="knife_edge")
+    glazed = Scene.from_vehicle(box_cabin("glass"), ground_reflection=False, wheel_model="knife_edge")
     expected_db = metal.hull.default_loss_db - (2.0 + 0.2 * glazed.freq_hz / 1e9)
     diff = spot_levels(glazed, [P_INSIDE]) - spot_levels(metal, [P_INSIDE])
     np.testing.assert_allclose(diff, expected_db, atol=0.01)
-    metal_g = score_spots(Scene.from_vehicle(box_cabin(None)), [P_INSIDE])
-    glazed_g = score_spots(Scene.from_vehicle(box_cabin("glass")), [P_INSIDE])
+    metal_g = score_spots(Scene.from_vehicle(box_cabin(None), wheel_model="knife_edge"), [P_INSIDE])
+    glazed_g = score_spots(Scene.from_vehicle(box_cabin("glass"), wheel_model="knife_edge"), [P_INSIDE])
     assert glazed_g.margin_db[0] > metal_g.margin_db[0] + 5.0
     assert glazed_g.median_dbm[0, 0] > metal_g.median_dbm[0, 0] + 5.0
 
@@ -218,7 +218,7 @@ def test_sedan_level_swing_over_a_turn_is_tens_of_db():
     # Common practice (from memory, no published figure found): a wheel sensor's level swings by
     # roughly 20-40 dB over one turn. Loose band of issue 3: mostly within 10-45 dB.
     v = sedan()
-    s = score_vehicle(v, Scene.from_vehicle(v))
+    s = score_vehicle(v, Scene.from_vehicle(v, wheel_model="knife_edge"))
     swing = s.swing_db().ravel()
     in_band = np.mean((swing >= 10.0) & (swing <= 45.0))
     assert in_band >= 0.75, np.round(swing, 1)
@@ -246,7 +246,7 @@ def test_rim_shadow_worst_angle_is_on_the_far_side_of_the_barrel(dx, dz):
     # rim shadows the far side). Isotropic antennas and no road reflection, so only the wheel and
     # the distance shape the level; nothing of the body lies in the way.
     v = open_space_vehicle(sensor_pattern="isotropic", receiver_pattern="isotropic", ground=False)
-    scene = Scene.from_vehicle(v)
+    scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     w = scene.wheels[0]
     cx, cy, cz = w.centre
     spot = np.array([cx + dx, cy - 0.5 * w.outboard_sign, cz + dz])

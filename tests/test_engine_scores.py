@@ -99,7 +99,7 @@ def test_burst_for_sedan_spot_parked_equals_share_of_its_angles():
     # Same definition on the engine's own levels: with 720 angles per turn the start angles are the
     # scored angles, so parked = share of the spot's angles at or above the sensitivity.
     v = sedan(angles_per_turn=START_ANGLES)
-    scene = Scene.from_vehicle(v)
+    scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     s = score_vehicle(v, scene)
     shares = np.mean(s.levels_dbm >= scene.sensitivity_dbm, axis=2)  # (S, W)
     i = int(np.argmin(np.abs(shares.min(axis=1) - 0.5)))  # a spot whose worst wheel is partly heard
@@ -156,7 +156,7 @@ def _hand_levels(scene):
 def test_order_sorts_by_margin_then_worst_wheel_median():
     # Ranking rule of DESIGN.md section 5 (margin = worst wheel's worst case - sensitivity -
     # required margin; ties by the median), worked by hand with the sedan's -105 dBm and 6 dB.
-    scene = Scene.from_vehicle(sedan())
+    scene = Scene.from_vehicle(sedan(), wheel_model="knife_edge")
     assert scene.worst_percentile == 0.0
     s = score_levels(scene, _hand_levels(scene), names=["a", "b", "c", "d"])
     sens, req = scene.sensitivity_dbm, scene.required_margin_db
@@ -170,7 +170,7 @@ def test_percentile_worst_case_is_not_below_the_minimum():
     # Order statistics: a low percentile of a sample is never below its minimum nor above its
     # median; the reported angle carries a level at or below the percentile value.
     v = sedan()
-    base = Scene.from_vehicle(v)
+    base = Scene.from_vehicle(v, wheel_model="knife_edge")
     pct = dataclasses.replace(base, worst_percentile=10.0)
     s_min = score_vehicle(v, base)
     s_pct = score_vehicle(v, pct)
@@ -192,7 +192,7 @@ TRIANGLE = ((-3.5, -0.6), (0.4, -0.6), (-3.5, 0.6))
 
 @pytest.fixture(scope="module")
 def small_scene():
-    return Scene.from_vehicle(sedan(angles_per_turn=24))
+    return Scene.from_vehicle(sedan(angles_per_turn=24), wheel_model="knife_edge")
 
 
 def _triangle_region():

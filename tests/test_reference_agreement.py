@@ -49,7 +49,7 @@ def _random_cases(v, rng, n):
 def _compare(v, ground: bool, seed: int, n: int = CASES):
     rng = np.random.default_rng(seed)
     spots, axes, wheels, angles = _random_cases(v, rng, n)
-    scene = Scene.from_vehicle(v, ground_reflection=ground)
+    scene = Scene.from_vehicle(v, ground_reflection=ground, wheel_model="knife_edge")
     ref = ReferenceModel(v, ground_reflection=ground)
     engine = spot_levels(scene, spots, axes)  # (S, W, A)
     diffs, excluded, inside = [], 0, 0
@@ -128,7 +128,7 @@ def test_end_face_in_both_outlines_takes_the_side_view_zone():
     v = load_vehicle(ROOT / "sample_vehicles" / "sedan.json")
     zones = tuple(z.model_copy(update={"material": "open"}) if z.name == "front bumper fascia" else z for z in v.zones)
     v = v.model_copy(update={"zones": zones})
-    scene = Scene.from_vehicle(v)
+    scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     a = np.array([[1.5, 0.1, 0.45]])
     b = np.array([[0.3, -0.1, 0.50]])
     ref = ReferenceModel(v)
@@ -146,7 +146,7 @@ def test_end_face_in_both_outlines_takes_the_side_view_zone():
 def sedan_scene():
     v = load_vehicle(ROOT / "sample_vehicles" / "sedan.json")
     region = next(r for r in v.regions if r.view == "top")
-    return Scene.from_vehicle(v), region
+    return Scene.from_vehicle(v, wheel_model="knife_edge"), region
 
 
 def test_chunked_and_unchunked_heatmaps_are_identical(sedan_scene):
