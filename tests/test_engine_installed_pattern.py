@@ -40,22 +40,22 @@ def test_mirror_symmetry_with_installed_patterns(ground):
 
 
 def test_free_space_distance_law_with_installed_patterns():
-    # Friis / ITU-R P.525: beyond the wheel's near zone the level falls by 20 log10(d2/d1). The
-    # table's near-field term (F1 / r, sampled by NEC-2 and checked against direct NEC-2 runs at 1.5-3 m
-    # in tests/validation) adds a part falling as 1/r relative to the far field (about 0.26 m / r
-    # here, measured), so the steps must tend to Friis: within 0.05 dB from 32 m on, and the error
-    # must shrink with distance.
+    # Friis / ITU-R P.525: far from the wheel the level falls by 20 log10(d2/d1). The table's
+    # near-field term (F1 / r in the Wilcox expansion, sampled by NEC-2 and checked against direct
+    # NEC-2 runs at 1.5-3 m in tests/validation) is a correction falling as 1/r relative to the far
+    # field, so the deviation of each doubling's step from 6.02 dB must halve from one doubling to
+    # the next, and be under 0.05 dB from 64 m on.
     v = open_space_vehicle(sensor_axis="radial", receiver_axis=(0.0, 0.0, 1.0), ground=False)
     scene = Scene.from_vehicle(v, wheel_model="installed_pattern")
     assert scene.sensor_kind == "table"
-    d = np.array([32.0, 64.0, 128.0, 256.0])
+    d = 8.0 * 2.0 ** np.arange(7)  # 8 .. 512 m
     for direction in ([1.0, 0.0, 0.0], [0.0, -1.0, 0.0], [0.6, 0.0, 0.8]):
         spots = np.asarray(scene.wheels[0].centre) + d[:, None] * np.asarray(direction)
         level = spot_levels(scene, spots)[:, 0, :]  # (D, A)
-        steps = np.diff(level, axis=0)
-        err = np.abs(steps - (-20 * np.log10(d[1:] / d[:-1]))[:, None])
-        assert err.max() <= 0.05
-        assert np.all(err[-1] < err[0])
+        err = np.diff(level, axis=0) + 20 * np.log10(2.0)  # (D-1, A)
+        ratio = err[1:] / err[:-1]
+        np.testing.assert_allclose(ratio, 0.5, atol=0.1)
+        assert np.abs(err[3:]).max() <= 0.05
 
 
 def test_two_ray_distance_law_with_installed_patterns():
