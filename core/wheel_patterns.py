@@ -490,6 +490,16 @@ def _bilinear(grid: np.ndarray, theta_deg: np.ndarray, n_phi: int, t: np.ndarray
 
 #: Below this distance from the wheel centre the near-field term is held at its value there, m.
 NEAR_MIN_RADIUS_M = 0.8
+#: The near-field term is sampled at 1.5 m and checked against NEC-2 at 1.5-3 m; it is used in full
+#: out to NEAR_FULL_M and faded out linearly to NEAR_NONE_M, beyond which the far field is exact
+#: enough (a single sampled 1/r term would otherwise carry folded higher-order terms far out), m.
+NEAR_FULL_M = 3.5
+NEAR_NONE_M = 7.0
+
+
+def near_term_weight(r_m) -> np.ndarray:
+    """Weight of the near-field term at distance r from the wheel centre (1 near, 0 far)."""
+    return np.clip((NEAR_NONE_M - np.asarray(r_m, float)) / (NEAR_NONE_M - NEAR_FULL_M), 0.0, 1.0)
 
 
 def field_vectors(table: PatternTable, directions, theta_rad, outboard_sign=1.0, reference: str = "sensor",
@@ -551,7 +561,7 @@ def field_vectors(table: PatternTable, directions, theta_rad, outboard_sign=1.0,
     else:
         if table._near_grid is not None:
             e1 = _bilinear(table._near_grid, table.near_theta_deg, len(table.near_phi_deg), t, p)
-            e = e + e1 / np.maximum(r, NEAR_MIN_RADIUS_M)[..., None]
+            e = e + (e1 / np.maximum(r, NEAR_MIN_RADIUS_M)[..., None]) * near_term_weight(r)[..., None]
         # (exp(-jkr)/r) / (exp(-jkd)/d)
         dd = np.maximum(dist, 1e-300)
         e = e * (dd / np.maximum(r, 1e-300) * np.exp(-1j * k * (r - dd)))[..., None]

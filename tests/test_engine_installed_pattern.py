@@ -40,23 +40,24 @@ def test_mirror_symmetry_with_installed_patterns(ground):
 
 
 def test_free_space_distance_law_with_installed_patterns():
-    # Friis / ITU-R P.525: far from the wheel the level falls by 20 log10(d2/d1). The table's
-    # near-field term (F1 / r in the Wilcox expansion, sampled by NEC-2 and checked against direct
-    # NEC-2 runs at 1.5-3 m in tests/validation) is a correction falling as 1/r relative to the far
-    # field, so the worst deviation of a doubling's step from 6.02 dB must halve from one doubling to
-    # the next (within 20 %), and be under 0.05 dB far out (256-512 m; measured: 0.6 dB at
-    # 16-32 m and 0.12 dB at 64-128 m in the worst direction tried).
+    # Friis / ITU-R P.525: far from the wheel the level falls as 20 log10(r). The installed pattern's
+    # far field is referred to the wheel centre (core.wheel_patterns), and its near-field term
+    # (checked against direct NEC-2 runs at 1.5-3 m in tests/validation) fades out by 7 m
+    # (NEAR_NONE_M), so from 8 m on level + 20 log10(r), r from the wheel centre, must be the same
+    # at every distance and wheel angle within 0.01 dB, except at angles held up by the null floor
+    # (more than 20 dB below the turn's peak; the floor acts on the ray's coupling, before the 1/d
+    # spreading from the sensor).
     v = open_space_vehicle(sensor_axis="radial", receiver_axis=(0.0, 0.0, 1.0), ground=False)
     scene = Scene.from_vehicle(v, wheel_model="installed_pattern")
     assert scene.sensor_kind == "table"
-    d = 8.0 * 2.0 ** np.arange(7)  # 8 .. 512 m
+    d = 8.0 * 2.0 ** np.arange(6)  # 8 .. 256 m from the wheel centre
     for direction in ([1.0, 0.0, 0.0], [0.0, -1.0, 0.0], [0.6, 0.0, 0.8]):
         spots = np.asarray(scene.wheels[0].centre) + d[:, None] * np.asarray(direction)
         level = spot_levels(scene, spots)[:, 0, :]  # (D, A)
-        err = np.diff(level, axis=0) + 20 * np.log10(2.0)  # (D-1, A)
-        worst = np.abs(err).max(axis=1)  # worst angle per doubling
-        assert np.all(worst[1:] <= 0.6 * worst[:-1])
-        assert worst[-1] <= 0.05  # 256 -> 512 m
+        spread_free = level + 20 * np.log10(d)[:, None]
+        lit = level[-1] > level[-1].max() - 20.0
+        assert lit.sum() >= 36
+        assert np.abs(spread_free - spread_free[-1])[:, lit].max() <= 0.01
 
 
 def test_two_ray_distance_law_with_installed_patterns():
