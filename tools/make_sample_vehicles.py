@@ -63,7 +63,7 @@ def four_wheels(wheelbase, half_track, tire, rim_w):
     ]
 
 
-def radio(freq_hz, eirp_dbm, sensitivity_dbm=-110.0, **kw):
+def radio(freq_hz, eirp_dbm, sensitivity_dbm=-105.0, **kw):
     r = {
         "frequency_hz": freq_hz,
         "sensor": {"eirp_dbm": eirp_dbm, "return_loss_db": 10.0, "pattern": "dipole", "axis": "radial"},
