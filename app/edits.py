@@ -119,20 +119,47 @@ def set_zone_material(v: Vehicle, index: int, material: str) -> Vehicle:
     return _rebuild(d)
 
 
-def add_zone(v: Vehicle, view: str, material: str, name: str | None = None) -> Vehicle:
-    """Add a rectangular zone in the middle of the body's outline of that view (a third of its size)."""
+def _centre_rect(v: Vehicle, view: str, shrink: float) -> list[list[float]]:
+    """A rectangle centred in the body's outline of that view, 1/shrink of its size, m."""
     import numpy as np
 
     pts = np.asarray(v.body.top_outline if view == "top" else v.body.side_outline)
     lo, hi = pts.min(axis=0), pts.max(axis=0)
-    c, h = 0.5 * (lo + hi), (hi - lo) / 6.0
-    names = {z.name for z in v.zones}
-    n = len(v.zones) + 1
-    while (name or f"zone {n}") in names:
+    c, h = 0.5 * (lo + hi), (hi - lo) / (2.0 * shrink)
+    return [[c[0] - h[0], c[1] - h[1]], [c[0] + h[0], c[1] - h[1]], [c[0] + h[0], c[1] + h[1]], [c[0] - h[0], c[1] + h[1]]]
+
+
+def _free_name(taken: set[str], stem: str, n: int) -> str:
+    while f"{stem} {n}" in taken:
         n += 1
-    rect = [[c[0] - h[0], c[1] - h[1]], [c[0] + h[0], c[1] - h[1]], [c[0] + h[0], c[1] + h[1]], [c[0] - h[0], c[1] + h[1]]]
+    return f"{stem} {n}"
+
+
+def add_zone(v: Vehicle, view: str, material: str, name: str | None = None) -> Vehicle:
+    """Add a rectangular zone in the middle of the body's outline of that view (a third of its size)."""
     d = vehicle_to_dict(v)
-    d.setdefault("zones", []).append({"name": name or f"zone {n}", "view": view, "material": material, "outline": rect})
+    name = name or _free_name({z.name for z in v.zones}, "zone", len(v.zones) + 1)
+    d.setdefault("zones", []).append({"name": name, "view": view, "material": material, "outline": _centre_rect(v, view, 3.0)})
+    return _rebuild(d)
+
+
+def add_region(v: Vehicle, view: str) -> Vehicle:
+    """Add a mounting region in the middle of the body's outline of that view (two thirds of its size):
+    a top-view region at the floor height + 0.25 m, a side-view region on the centre line (y = 0)."""
+    d = vehicle_to_dict(v)
+    name = _free_name({r.name for r in v.regions}, f"{view}-view region", len(v.regions) + 1)
+    region = {"name": name, "view": view, "outline": _centre_rect(v, view, 1.5)}
+    if view == "top":
+        region["height_m"] = round(v.floor_height() + 0.25, 3)
+    else:
+        region["lateral_m"] = 0.0
+    d.setdefault("regions", []).append(region)
+    return _rebuild(d)
+
+
+def delete_region(v: Vehicle, index: int) -> Vehicle:
+    d = vehicle_to_dict(v)
+    del d["regions"][index]
     return _rebuild(d)
 
 

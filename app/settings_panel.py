@@ -344,6 +344,15 @@ class ZonesPanel(QWidget):
         self.fixed = _spin(-5000.0, 6000.0, 0, 10.0, " mm", "Height of a top-view region, or lateral position (y) of a side-view region, mm")
         self.fixed_label = QLabel("Height")
         f.addRow(self.fixed_label, self.fixed)
+        row = QHBoxLayout()
+        self.add_region_top = QPushButton("Add top-view region")
+        self.add_region_top.setToolTip("A new mounting region in the top view, at floor height + 250 mm")
+        self.add_region_side = QPushButton("Add side-view region")
+        self.add_region_side.setToolTip("A new mounting region in the side view, on the centre line (y = 0 mm)")
+        self.delete_region = QPushButton("Delete region")
+        for b in (self.add_region_top, self.add_region_side, self.delete_region):
+            row.addWidget(b)
+        f.addRow(row)
         lay.addWidget(g)
         lay.addStretch(1)
 
@@ -353,6 +362,9 @@ class ZonesPanel(QWidget):
         self.add_side.clicked.connect(lambda: self._add("side"))
         self.delete.clicked.connect(self._delete)
         self.region.activated.connect(lambda i: self.doc.select_region(i))
+        self.add_region_top.clicked.connect(lambda: self._add_region("top"))
+        self.add_region_side.clicked.connect(lambda: self._add_region("side"))
+        self.delete_region.clicked.connect(self._delete_region)
         self.fixed.valueChanged.connect(self._fixed_changed)
         doc.vehicleChanged.connect(self.refresh)
         doc.regionSelectionChanged.connect(lambda _i: self.refresh())
@@ -383,6 +395,7 @@ class ZonesPanel(QWidget):
                 self.fixed_label.setText("Height z" if r.view == "top" else "Lateral y")
                 self.fixed.setValue(1000.0 * (r.height_m if r.view == "top" else r.lateral_m))
             self.fixed.setEnabled(bool(v.regions))
+            self.delete_region.setEnabled(bool(v.regions))
         finally:
             self._loading = False
 
@@ -406,6 +419,19 @@ class ZonesPanel(QWidget):
             name = self.doc.vehicle.zones[i].name
             self.doc.select_zone(-1)
             self.doc.apply(lambda v: edits.delete_zone(v, i), f"Delete zone '{name}'")
+
+    def _add_region(self, view: str) -> None:
+        n = len(self.doc.vehicle.regions)
+        if self.doc.apply(lambda v: edits.add_region(v, view), f"Add {view}-view region"):
+            self.doc.select_region(n)
+
+    def _delete_region(self) -> None:
+        if not self.doc.vehicle.regions:
+            return
+        i = self.doc.region_index
+        name = self.doc.vehicle.regions[i].name
+        self.doc.select_region(0)
+        self.doc.apply(lambda v: edits.delete_region(v, i), f"Delete region '{name}'")
 
     def _fixed_changed(self, mm: float) -> None:
         if self._loading or not self.doc.vehicle.regions:
