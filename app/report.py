@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import html
 import os
-import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
@@ -33,7 +32,7 @@ from PySide6.QtGui import (
 
 from app import report_figures as fig
 from app.report_data import CAUTION, MPS_TO_KMH, ReportData, build_report_data, report_csv, report_json_text
-from core.vehicle import atomic_write_text
+from core.vehicle import atomic_path, atomic_write_text
 
 DPI = 300
 S = DPI / 72.0  # device pixels per point
@@ -413,24 +412,12 @@ def render_pdf_atomic(out_pdf: str | os.PathLike, title: str, build: Callable[[F
                       footer: str) -> int:
     """Lay out with ``build(flow)`` and paint to a temporary PDF beside ``out_pdf``; rename when complete."""
     _ensure_app()
-    out = Path(out_pdf)
-    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=out.parent if str(out.parent) else ".")
-    os.close(fd)
-    try:
+    with atomic_path(out_pdf) as tmp:
         writer = new_writer(tmp, title)
         f = Flow(writer)
         build(f)
         n = paint_pages(writer, f, header, footer)
         del writer  # flushes and closes the file
-        with open(tmp, "rb") as fh:
-            os.fsync(fh.fileno())
-        os.replace(tmp, out)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
     return n
 
 

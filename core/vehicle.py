@@ -12,6 +12,7 @@ The model objects are frozen (immutable); an edit makes a new object with
 
 from __future__ import annotations
 
+import contextlib
 import json
 import math
 import os
@@ -565,14 +566,17 @@ def atomic_write_text(path: Path, text: str) -> None:
     atomic_write_bytes(path, text.encode("utf-8"))
 
 
-def atomic_write_bytes(path: Path, data: bytes) -> None:
+@contextlib.contextmanager
+def atomic_path(path: str | os.PathLike):
+    """Yield a temporary path beside ``path`` to write; on success fsync it and rename it over
+    ``path``; on any error remove it, so an existing file at ``path`` is never left half-written."""
     path = Path(path)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
+    os.close(fd)
     try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-            f.flush()
-            os.fsync(f.fileno())
+        yield tmp
+        with open(tmp, "rb+") as fh:
+            os.fsync(fh.fileno())
         os.replace(tmp, path)
     except BaseException:
         try:
@@ -580,6 +584,14 @@ def atomic_write_bytes(path: Path, data: bytes) -> None:
         except OSError:
             pass
         raise
+
+
+def atomic_write_bytes(path: Path, data: bytes) -> None:
+    """Write bytes to path atomically (same-folder temporary file, fsync, os.replace)."""
+    with atomic_path(path) as tmp:
+        with os.fdopen(os.open(tmp, os.O_WRONLY | os.O_TRUNC), "wb") as f:
+            f.write(data)
+            f.flush()
 
 
 def json_schema() -> dict:
