@@ -36,6 +36,10 @@ from core.propagation import knife_edge_loss_db, wavelength_m
 
 DIFFRACTION_SAMPLES = 8
 _EPS = 1e-12
+#: growth of a segment's bounding box in the culling tests, m (covers round-off of the crossing t)
+_BOX_SLACK_M = 1e-9
+_ROOT_SIGNS = np.array([[-1.0], [1.0]])  # the two roots of a quadratic, smaller first
+_LINE_SIGNS = np.array([[1.0], [-1.0]])  # the arch's vertical lines x = xc + r, then x = xc - r
 
 # event kinds
 KIND_TOP = 0  # wall of the top outline -> side-view zones
@@ -78,6 +82,7 @@ class Hull:
     arch_zc: np.ndarray
     arch_r: np.ndarray
     arch_bits: np.ndarray  # (G,) int64: the arch bits of every wheelhouse with that arch
+    arch_members: tuple  # (G,) tuples of the wheelhouse indices with that arch
     box_lo: np.ndarray  # (3,) lower corner of the hull's bounding box
     box_hi: np.ndarray  # (3,) upper corner
 
@@ -164,7 +169,9 @@ def _arch_groups(wh: np.ndarray) -> dict:
         key = (round(float(xc), 9), round(float(zc), 9), round(float(r), 9))
         groups[key] = groups.get(key, 0) | (1 << (2 + 2 * h))
     keys = list(groups)
+    members = tuple(tuple(h for h in range(len(wh)) if groups[k] >> (2 + 2 * h) & 1) for k in keys)
     return {
+        "arch_members": members,
         "arch_xc": np.array([k[0] for k in keys], float),
         "arch_zc": np.array([k[1] for k in keys], float),
         "arch_r": np.array([k[2] for k in keys], float),
@@ -239,60 +246,65 @@ def _edge_hits(au, av, du, dv, poly: np.ndarray, box_lo, box_hi):
     return rows, t[rows, cols]
 
 
-def _wheelhouse_hits(hull: Hull, a: tuple, d: tuple, box_lo, box_hi):
-    """Crossings of segments with wheelhouse arch surfaces and inner walls, as flat
-    (rows, t, event bits) arrays (arch of wheelhouse h: bit 2+2h; inner wall: bit 3+2h). An arch
-    shared by the wheelhouses of one axle is solved once and flips all their arch bits."""
+def _wheelhouse_hits(hull: Hull, a: tuple, d: tuple, lo_s: np.ndarray, hi_s: np.ndarray):
+    """Crossings of segments a + t d (t in 0..1, coordinates as 1-D arrays, m) with the wheelhouse
+    arch surfaces and inner walls, as flat (rows, t, event bits) arrays (arch of wheelhouse h: bit
+    2+2h; inner wall: bit 3+2h). An arch shared by the wheelhouses of one axle is solved once and
+    flips all their arch bits.
+
+    ``lo_s``, ``hi_s`` (3, N) are the segments' own bounding boxes, m. Only the segments whose box
+    (grown by ``_BOX_SLACK_M``) meets an arch's region [xc - r, xc + r] x (-inf, zc + r] in x-z are
+    solved for that arch and its inner walls: a segment that never comes near the arch cannot be
+    inside its wheelhouse, so its wall crossings change no membership that matters. The survivors
+    are solved with the same arithmetic as for all segments (the same t, to the last bit)."""
     empty = (np.empty(0, np.intp), np.empty(0), np.empty(0, np.int64))
     if len(hull.wh_xc) == 0:
         return empty
-    ax, ay, az = (c[:, None] for c in a)
-    dx, dy, dz = (c[:, None] for c in d)
+    ax, ay, az = a
+    dx, dy, dz = d
+    lo_x, lo_y, lo_z = lo_s
+    hi_x, hi_y, hi_z = hi_s
     out_r, out_t, out_b = [], [], []
-
-    def add(t, ok, bits):
-        rows, cols = np.nonzero(ok)
-        out_r.append(rows)
-        out_t.append(t[rows, cols])
-        out_b.append(bits[cols])
-
-    # arches whose x-z box the segments' box reaches
-    g = np.nonzero(
-        (hull.arch_xc + hull.arch_r >= box_lo[0])
-        & (hull.arch_xc - hull.arch_r <= box_hi[0])
-        & (hull.arch_zc + hull.arch_r >= box_lo[2])
-    )[0]
+    slack = _BOX_SLACK_M
     with np.errstate(invalid="ignore", divide="ignore"):
-        if len(g):
-            xc, zc, r, bits = hull.arch_xc[g], hull.arch_zc[g], hull.arch_r[g], hull.arch_bits[g]
-            ox, oz = ax - xc, az - zc
+        for g in range(len(hull.arch_xc)):
+            xc, zc, r = float(hull.arch_xc[g]), float(hull.arch_zc[g]), float(hull.arch_r[g])
+            near = (hi_x >= xc - r - slack) & (lo_x <= xc + r + slack) & (lo_z <= zc + r + slack)
+            rows = np.flatnonzero(near)
+            if len(rows) == 0:
+                continue
+            gdx, gdz = dx[rows], dz[rows]
+            ox, oz = ax[rows] - xc, az[rows] - zc
             # circle in x-z: |o + t dxz|^2 = r^2, only its upper half (z >= zc)
-            qa = dx * dx + dz * dz
-            qb = 2.0 * (ox * dx + oz * dz)
+            qa = gdx * gdx + gdz * gdz
+            qb = 2.0 * (ox * gdx + oz * gdz)
             qc = ox * ox + oz * oz - r * r
             disc = qb * qb - 4.0 * qa * qc
             sq = np.sqrt(disc)
             inv2a = 0.5 / qa
-            for sign in (-1.0, 1.0):
-                t = (-qb + sign * sq) * inv2a
-                add(t, (disc > 0) & (qa > _EPS) & (t > 0) & (t < 1) & (oz + t * dz >= 0), bits)
-            # vertical lines x = xc +- r below the centre
-            inv_dx = 1.0 / dx
-            for edge in (r, -r):
-                t = (edge - ox) * inv_dx
-                add(t, (np.abs(dx) > _EPS) & (t > 0) & (t < 1) & (oz + t * dz < 0), bits)
-        # inner walls sg * y = inner of the wheelhouses whose box and half-space the segments reach
-        idx = np.nonzero(
-            (hull.wh_xc + hull.wh_r >= box_lo[0])
-            & (hull.wh_xc - hull.wh_r <= box_hi[0])
-            & (hull.wh_zc + hull.wh_r >= box_lo[2])
-            & np.where(hull.wh_sign > 0, box_hi[1] > hull.wh_inner, box_lo[1] < -hull.wh_inner)
-        )[0]
-        if len(idx):
-            sg, inner = hull.wh_sign[idx], hull.wh_inner[idx]
-            sdy = sg * dy
-            t = (inner - sg * ay) / sdy
-            add(t, (np.abs(sdy) > _EPS) & (t > 0) & (t < 1), np.left_shift(np.int64(1), 3 + 2 * idx.astype(np.int64)))
+            # both roots at once, (2, n): the smaller root first
+            t = (-qb + _ROOT_SIGNS * sq) * inv2a
+            sel, k = np.nonzero((disc > 0) & (qa > _EPS) & (t > 0) & (t < 1) & (oz + t * gdz >= 0))
+            out_r.append(rows[k])
+            out_t.append(t[sel, k])
+            # vertical lines x = xc +- r below the centre, (2, n)
+            t = (_LINE_SIGNS * r - ox) * (1.0 / gdx)
+            sel, k = np.nonzero((np.abs(gdx) > _EPS) & (t > 0) & (t < 1) & (oz + t * gdz < 0))
+            out_r.append(rows[k])
+            out_t.append(t[sel, k])
+            n_arch = len(out_r[-1]) + len(out_r[-2])
+            out_b.append(np.full(n_arch, hull.arch_bits[g], np.int64))
+            # inner walls sg * y = inner of the wheelhouses with this arch, on the segments that reach them
+            for h in hull.arch_members[g]:
+                sg, inner = float(hull.wh_sign[h]), float(hull.wh_inner[h])
+                reach = hi_y[rows] >= inner - slack if sg > 0 else lo_y[rows] <= -inner + slack
+                wrows = rows[reach]
+                sdy = sg * dy[wrows]
+                t = (inner - sg * ay[wrows]) / sdy
+                ok = np.flatnonzero((np.abs(sdy) > _EPS) & (t > 0) & (t < 1))
+                out_r.append(wrows[ok])
+                out_t.append(t[ok])
+                out_b.append(np.full(len(ok), 1 << (3 + 2 * h), np.int64))
     if not out_r:
         return empty
     return np.concatenate(out_r), np.concatenate(out_t), np.concatenate(out_b)
@@ -395,7 +407,7 @@ def hull_flips(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | Non
     dx, dy, dz = dc
     r_top, t_top = _edge_hits(ax, ay, dx, dy, hull.top, lo[[0, 1]], hi[[0, 1]])
     r_side, t_side = _edge_hits(ax, az, dx, dz, hull.side, lo[[0, 2]], hi[[0, 2]])
-    r_wh, t_wh, b_wh = _wheelhouse_hits(hull, (ax, ay, az), (dx, dy, dz), lo, hi)
+    r_wh, t_wh, b_wh = _wheelhouse_hits(hull, (ax, ay, az), (dx, dy, dz), lo_s, hi_s)
     rows = np.concatenate([r_top, r_side, r_wh])
     if len(rows) == 0:
         return empty
