@@ -346,16 +346,27 @@ class TableSet:
         )
 
 
-def _bracket(grid: np.ndarray, x: float) -> tuple[tuple[int, int, float], bool]:
-    """Neighbouring indices and the weight of the upper one; flag when x is outside the grid."""
+#: sizes this close to a tabulated one (inches) use that table as it is
+SIZE_SNAP_IN = 0.1
+
+
+def _bracket(grid: np.ndarray, x: float, snap: float = SIZE_SNAP_IN) -> tuple[tuple[int, int, float], bool]:
+    """Neighbouring indices and the weight of the upper one; flag when x is outside the grid.
+
+    Sizes within ``snap`` (inches) of a grid point take that point: rim widths and diameters are
+    nominal half-inch sizes, and a width given as 0.19 m (7.48 in) is the 7.5 in rim."""
     g = np.asarray(grid, dtype=float)
+    near = np.nonzero(np.abs(g - x) <= snap)[0]
+    if len(near):
+        k = int(near[np.argmin(np.abs(g[near] - x))])
+        return (k, k, 0.0), False
     if len(g) == 1:
-        return (0, 0, 0.0), not math.isclose(x, g[0], abs_tol=1e-6)
-    if x <= g[0] + 1e-9:
-        return (0, 0, 0.0), x < g[0] - 1e-6
-    if x >= g[-1] - 1e-9:
+        return (0, 0, 0.0), True
+    if x <= g[0]:
+        return (0, 0, 0.0), True
+    if x >= g[-1]:
         n = len(g) - 1
-        return (n, n, 0.0), x > g[-1] + 1e-6
+        return (n, n, 0.0), True
     i = int(np.searchsorted(g, x) - 1)
     w = (x - g[i]) / (g[i + 1] - g[i])
     if w < 1e-9:
