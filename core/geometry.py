@@ -482,7 +482,7 @@ def escape_clearance_m(hull: Hull, x, y, z) -> np.ndarray:
     ymax = np.interp(x, hull.env_x, hull.env_ymax, left=np.nan, right=np.nan)
     ymin = np.interp(x, hull.env_x, hull.env_ymin, left=np.nan, right=np.nan)
     h = np.minimum(np.minimum(ztop - z, z - zbot), np.minimum(ymax - y, y - ymin))
-    return np.where(np.isnan(h), 0.0, np.maximum(h, 0.0))
+    return np.fmax(h, 0.0)  # fmax: nan (outside an envelope) -> 0
 
 
 def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> np.ndarray:
@@ -503,12 +503,14 @@ def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0
     lam = float(wavelength_m(freq_hz))
     rows = f.rows[passage]
     t0, t1 = f.t[passage], f.t[passage + 1]
-    d = b[rows] - a[rows]
+    ar, br = a[rows], b[rows]
+    d = br - ar
     length = np.linalg.norm(d, axis=1)
     frac = (np.arange(DIFFRACTION_SAMPLES) + 0.5) / DIFFRACTION_SAMPLES
     ts = t0[:, None] + frac[None, :] * (t1 - t0)[:, None]  # (R, M)
-    q = a[rows, None, :] + ts[..., None] * d[:, None, :]
-    h = escape_clearance_m(hull, q[..., 0], q[..., 1], q[..., 2])
+    # the M sample points of each passage, one (R, M) array per coordinate
+    qx, qy, qz = (ar[:, i, None] + ts * d[:, i, None] for i in range(3))
+    h = escape_clearance_m(hull, qx, qy, qz)
     d1 = np.maximum(ts * length[:, None], 1e-6)
     d2 = np.maximum((1.0 - ts) * length[:, None], 1e-6)
     v = h * np.sqrt(2.0 / lam * (1.0 / d1 + 1.0 / d2))
