@@ -38,6 +38,8 @@ DIFFRACTION_SAMPLES = 8
 _EPS = 1e-12
 #: growth of a segment's bounding box in the culling tests, m (covers round-off of the crossing t)
 _BOX_SLACK_M = 1e-9
+#: (points x edges) elements per block of the point-in-polygon test
+_PIP_BLOCK = 1 << 16
 _ROOT_SIGNS = np.array([[-1.0], [1.0]])  # the two roots of a quadratic, smaller first
 _LINE_SIGNS = np.array([[1.0], [-1.0]])  # the arch's vertical lines x = xc + r, then x = xc - r
 
@@ -49,6 +51,41 @@ KIND_WH_WALL = 3  # wheelhouse inner wall
 
 
 @dataclass(frozen=True)
+class PolygonEdges:
+    """A polygon's edges prepared once for the crossing-number test and for segment crossings.
+
+    All arrays in the polygon's units (m). ``p0``, ``p1`` (E, 2): start and end of each edge
+    (vertex i to vertex i + 1, closing the ring); ``e = p1 - p0``; ``lo``, ``hi``: each edge's
+    bounding box. The crossing-number test uses the non-horizontal edges only, as (E', 1) columns
+    ``x0``, ``y0``, ``y1``, ``run = x1 - x0`` and ``rise = y1 - y0``.
+    """
+
+    p0: np.ndarray
+    p1: np.ndarray
+    e: np.ndarray
+    lo: np.ndarray
+    hi: np.ndarray
+    x0: np.ndarray
+    y0: np.ndarray
+    y1: np.ndarray
+    run: np.ndarray
+    rise: np.ndarray
+
+
+def polygon_edges(poly) -> PolygonEdges:
+    """Prepare the edges of a closed polygon ((n, 2) vertices, the last joined to the first)."""
+    p0 = np.asarray(poly, float).reshape(-1, 2)
+    p1 = np.concatenate([p0[1:], p0[:1]])
+    slanted = p0[:, 1] != p1[:, 1]
+    x0, y0 = p0[slanted, 0], p0[slanted, 1]
+    x1, y1 = p1[slanted, 0], p1[slanted, 1]
+    return PolygonEdges(
+        p0=p0, p1=p1, e=p1 - p0, lo=np.minimum(p0, p1), hi=np.maximum(p0, p1),
+        x0=x0[:, None], y0=y0[:, None], y1=y1[:, None], run=(x1 - x0)[:, None], rise=(y1 - y0)[:, None],
+    )
+
+
+@dataclass(frozen=True)
 class ZoneTable:
     """Polygons with their crossing loss, dB; optional z limits (top-view zones only), m."""
 
@@ -56,6 +93,7 @@ class ZoneTable:
     loss_db: np.ndarray
     z_min: np.ndarray
     z_max: np.ndarray
+    edges: tuple[PolygonEdges, ...] = ()  # the polygons prepared (polygon_edges)
 
 
 @dataclass(frozen=True)
@@ -85,6 +123,8 @@ class Hull:
     arch_members: tuple  # (G,) tuples of the wheelhouse indices with that arch
     box_lo: np.ndarray  # (3,) lower corner of the hull's bounding box
     box_hi: np.ndarray  # (3,) upper corner
+    top_edges: PolygonEdges  # the outlines prepared (polygon_edges)
+    side_edges: PolygonEdges
 
 
 def _envelope(poly: np.ndarray, xs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -137,7 +177,7 @@ def build_hull(
         loss = np.array([z[1] for z in zs], float)
         zmin = np.array([z[2] if with_z else -np.inf for z in zs], float)
         zmax = np.array([z[3] if with_z else np.inf for z in zs], float)
-        return ZoneTable(polys, loss, zmin, zmax)
+        return ZoneTable(polys, loss, zmin, zmax, tuple(polygon_edges(p) for p in polys))
 
     return Hull(
         top=top,
@@ -159,6 +199,8 @@ def build_hull(
         **_arch_groups(wh),
         box_lo=np.array([min(top[:, 0].min(), side[:, 0].min()), top[:, 1].min(), side[:, 1].min()]),
         box_hi=np.array([max(top[:, 0].max(), side[:, 0].max()), top[:, 1].max(), side[:, 1].max()]),
+        top_edges=polygon_edges(top),
+        side_edges=polygon_edges(side),
     )
 
 
@@ -180,19 +222,30 @@ def _arch_groups(wh: np.ndarray) -> dict:
 
 
 # ----- point tests -----------------------------------------------------------------------
-def points_in_polygon(px: np.ndarray, py: np.ndarray, poly: np.ndarray) -> np.ndarray:
-    """Crossing-number point-in-polygon test, vectorised over points (any shape)."""
-    inside = np.zeros(np.shape(px), bool)
-    n = len(poly)
-    for i in range(n):
-        x0, y0 = poly[i]
-        x1, y1 = poly[(i + 1) % n]
-        if y0 == y1:
-            continue
-        c = (y0 > py) != (y1 > py)
-        xc = x0 + (py - y0) * (x1 - x0) / (y1 - y0)
-        inside ^= c & (px < xc)
-    return inside
+def points_in_polygon(px: np.ndarray, py: np.ndarray, poly) -> np.ndarray:
+    """Crossing-number point-in-polygon test, vectorised over points (any shape) and edges.
+
+    ``poly``: (n, 2) vertices, or the polygon prepared by :func:`polygon_edges`. A point counts
+    the polygon edges (horizontal edges skipped) that cross the horizontal line through it to its
+    right; it is inside when the count is odd. The points are handled in blocks so the (edges,
+    points) work arrays stay small.
+    """
+    ed = poly if isinstance(poly, PolygonEdges) else polygon_edges(poly)
+    px, py = np.broadcast_arrays(np.asarray(px, float), np.asarray(py, float))
+    shape = px.shape
+    fx, fy = px.reshape(-1), py.reshape(-1)
+    inside = np.zeros(fx.shape, bool)
+    n_edges = len(ed.x0)
+    if n_edges == 0:
+        return inside.reshape(shape)
+    step = max(1, _PIP_BLOCK // n_edges)
+    for i in range(0, len(fx), step):
+        bx, by = fx[i : i + step], fy[i : i + step]
+        c = (ed.y0 > by) != (ed.y1 > by)  # (edges, points)
+        xc = ed.x0 + (by - ed.y0) * ed.run / ed.rise
+        c &= bx < xc
+        np.bitwise_xor.reduce(c, axis=0, out=inside[i : i + step])
+    return inside.reshape(shape)
 
 
 def in_wheelhouse_parts(hull: Hull, x, y, z) -> tuple[np.ndarray, np.ndarray]:
@@ -210,24 +263,20 @@ def in_wheelhouse_parts(hull: Hull, x, y, z) -> tuple[np.ndarray, np.ndarray]:
 def inside_hull(hull: Hull, x, y, z) -> np.ndarray:
     """True where (x, y, z) lies inside the 2.5-D hull."""
     x, y, z = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float), np.asarray(z, float))
-    t = points_in_polygon(x, y, hull.top)
-    s = points_in_polygon(x, z, hull.side)
+    t = points_in_polygon(x, y, hull.top_edges)
+    s = points_in_polygon(x, z, hull.side_edges)
     arch, lat = in_wheelhouse_parts(hull, x, y, z)
     return t & s & ~np.any(arch & lat, axis=-1)
 
 
 # ----- crossings ---------------------------------------------------------------------------
-def _edge_hits(au, av, du, dv, poly: np.ndarray, box_lo, box_hi):
+def _edge_hits(au, av, du, dv, poly: PolygonEdges, box_lo, box_hi):
     """Crossings of 2-D segments (au, av) + t (du, dv) (1-D arrays) with the polygon's edges, as flat (rows, t).
 
     Edges whose bounding box misses (box_lo, box_hi) -- the union box of all segments -- are skipped.
     """
-    p0 = poly
-    p1 = np.roll(poly, -1, axis=0)
-    elo = np.minimum(p0, p1)
-    ehi = np.maximum(p0, p1)
-    keep = np.all((ehi >= box_lo) & (elo <= box_hi), axis=1)
-    p0, p1 = p0[keep], p1[keep]
+    keep = np.all((poly.hi >= box_lo) & (poly.lo <= box_hi), axis=1)
+    p0, p1 = poly.p0[keep], poly.p1[keep]
     if len(p0) == 0:
         return np.empty(0, np.intp), np.empty(0)
     e = p1 - p0
@@ -313,8 +362,9 @@ def _wheelhouse_hits(hull: Hull, a: tuple, d: tuple, lo_s: np.ndarray, hi_s: np.
 def _zone_loss(table: ZoneTable, u: np.ndarray, v: np.ndarray, z: np.ndarray | None, default: float) -> np.ndarray:
     """Loss of the zone containing each point (u, v) (later zones win); default elsewhere."""
     loss = np.full(u.shape, default)
-    for poly, l_db, zmin, zmax in zip(table.polygons, table.loss_db, table.z_min, table.z_max):
-        hit = points_in_polygon(u, v, poly)
+    edges = table.edges or tuple(polygon_edges(p) for p in table.polygons)
+    for ed, l_db, zmin, zmax in zip(edges, table.loss_db, table.z_min, table.z_max):
+        hit = points_in_polygon(u, v, ed)
         if z is not None:
             hit &= (z >= zmin) & (z <= zmax)
         loss = np.where(hit, l_db, loss)
@@ -354,8 +404,8 @@ def start_bits(hull: Hull, x, y, z) -> np.ndarray:
     """Packed membership bits of points: bit 0 top outline, bit 1 side outline, and per wheelhouse h
     bit 2+2h its arch, bit 3+2h its lateral half-space (int64, any shape)."""
     x, y, z = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float), np.asarray(z, float))
-    bits = points_in_polygon(x, y, hull.top).astype(np.int64)
-    bits |= points_in_polygon(x, z, hull.side).astype(np.int64) << 1
+    bits = points_in_polygon(x, y, hull.top_edges).astype(np.int64)
+    bits |= points_in_polygon(x, z, hull.side_edges).astype(np.int64) << 1
     if len(hull.wh_xc):
         arch, lat = in_wheelhouse_parts(hull, x, y, z)
         shifts = 2 + 2 * np.arange(len(hull.wh_xc), dtype=np.int64)
@@ -405,8 +455,8 @@ def hull_flips(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | Non
     hi = hi_s.max(axis=1)
     ax, ay, az = ac
     dx, dy, dz = dc
-    r_top, t_top = _edge_hits(ax, ay, dx, dy, hull.top, lo[[0, 1]], hi[[0, 1]])
-    r_side, t_side = _edge_hits(ax, az, dx, dz, hull.side, lo[[0, 2]], hi[[0, 2]])
+    r_top, t_top = _edge_hits(ax, ay, dx, dy, hull.top_edges, lo[[0, 1]], hi[[0, 1]])
+    r_side, t_side = _edge_hits(ax, az, dx, dz, hull.side_edges, lo[[0, 2]], hi[[0, 2]])
     r_wh, t_wh, b_wh = _wheelhouse_hits(hull, (ax, ay, az), (dx, dy, dz), lo_s, hi_s)
     rows = np.concatenate([r_top, r_side, r_wh])
     if len(rows) == 0:
