@@ -114,7 +114,11 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
         ref = e_d / np.maximum(norm_d, 1e-12)[:, None]  # the direct ray's polarization
         c_d = norm_d.astype(complex)
     c_d = _floor(c_d, floor_amp)
-    field = c_d * 10.0 ** (-loss_d / 20.0) * np.exp(-1j * k * d) / d
+    # The ray sum in real arithmetic, relative to the direct ray's phase e^{-jkd} (which drops out
+    # of the magnitude): field = c_d g_d + c_r g_r e^{-jk (d_r - d)}, g = 10^(-L/20) / d.
+    g_d = 10.0 ** (-loss_d / 20.0) / d
+    field_re = c_d.real * g_d
+    field_im = c_d.imag * g_d
 
     if scene.ground_reflection:
         img = src * _MIRROR
@@ -144,9 +148,13 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
             c_r = _dot(e_r, r_axis)
         else:
             c_r = _dot(e_r, np.conj(ref))
-        field = field + _floor(c_r, floor_amp) * 10.0 ** (-loss_r / 20.0) * np.exp(-1j * k * d_r) / d_r
+        b = _floor(c_r, floor_amp) * (10.0 ** (-loss_r / 20.0) / d_r)
+        phase = k * (d_r - d)  # the reflected ray's lag behind the direct ray, rad
+        cos, sin = np.cos(phase), np.sin(phase)
+        field_re += b.real * cos + b.imag * sin  # b e^{-j phase}
+        field_im += b.imag * cos - b.real * sin
 
-    amp = np.abs(field) * lam / (4.0 * np.pi)
+    amp = np.hypot(field_re, field_im) * lam / (4.0 * np.pi)
     level = scene.eirp_dbm + scene.receiver_gain_dbi + 20.0 * np.log10(np.maximum(amp, 1e-30))
     return level.reshape(S, A)
 
