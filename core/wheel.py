@@ -138,18 +138,22 @@ def wheel_loss_db(
     qb = 2.0 * (sx * ux + sz * uz)
     qa_safe = np.where(qa > 1e-12, qa, 1.0)
     half_w = 0.5 * w.rim_width_m
+    # terms of the discriminant and the roots shared by the barrel and the tire circle
+    rho2 = sx * sx + sz * sz
+    qb2 = qb * qb
+    qa4 = 4.0 * qa
+    two_qa = 2.0 * qa_safe
+    solvable = qa > 1e-12
 
-    def first_root(radius):
-        qc = sx * sx + sz * sz - radius * radius
-        disc = qb * qb - 4.0 * qa * qc
-        ok = (disc > 0) & (qa > 1e-12)
+    def root(radius, sign):
+        """(discriminant > 0, the smaller (sign -1) or larger (sign +1) root) of the radial quadratic."""
+        disc = qb2 - qa4 * (rho2 - radius * radius)
+        ok = (disc > 0) & solvable
         sq = np.sqrt(np.where(ok, disc, 0.0))
-        t1 = (-qb - sq) / (2.0 * qa_safe)
-        t2 = (-qb + sq) / (2.0 * qa_safe)
-        return ok, t1, t2
+        return ok, ((-qb - sq) if sign < 0 else (-qb + sq)) / two_qa
 
     # 1. does the path enter the rim barrel?
-    ok_b, tb1, _ = first_root(w.barrel_radius_m)
+    ok_b, tb1 = root(w.barrel_radius_m, -1)
     wb = sw + tb1 * uw
     enters = ok_b & (tb1 > 1e-9) & (tb1 < length) & (np.abs(wb) <= half_w)
 
@@ -159,22 +163,26 @@ def wheel_loss_db(
     tf = (flange_w - sw) / uw_safe
     crosses = (np.abs(uw) > 1e-12) & (tf > 0.0) & (tf < length)
     rho_f = np.hypot(sx + tf * ux, sz + tf * uz)
-    h_flange = w.rim_radius_m - rho_f
-    d1 = np.where(crosses, tf, 1.0)
-    d2 = np.where(crosses, length - tf, 1.0)
-    # a shadowed path that never reaches a flange plane (receiver within the wheel's width):
-    # clearance = axial distance from the barrel entry point to the nearer flange
-    h_axial = half_w - np.abs(np.clip(wb, -half_w, half_w))
-    use_axial = enters & ~crosses
-    h = np.where(use_axial, h_axial, h_flange)
-    d1 = np.where(use_axial, np.maximum(tb1, 1e-6), np.maximum(d1, 1e-6))
-    d2 = np.where(use_axial, np.maximum(length - tb1, 1e-6), np.maximum(d2, 1e-6))
-    v = knife_edge_v(h, d1, d2, freq_hz)
     lit_edge = crosses & (rho_f < w.tire_radius_m)  # passes by the flange within the tire's extent
-    rim_db = np.where(enters | lit_edge, knife_edge_loss_db(v), 0.0)
+    # the knife edge only on the paths it acts on (shadowed, or lit within the tire's extent)
+    m = np.flatnonzero(enters | lit_edge)
+    rim_db = np.zeros(np.shape(length))
+    if len(m):
+        tfm, lm, tbm = tf[m], length[m], tb1[m]
+        cm = crosses[m]
+        d1 = np.where(cm, tfm, 1.0)
+        d2 = np.where(cm, lm - tfm, 1.0)
+        # a shadowed path that never reaches a flange plane (receiver within the wheel's width):
+        # clearance = axial distance from the barrel entry point to the nearer flange
+        h_axial = half_w - np.abs(np.clip(wb[m], -half_w, half_w))
+        use_axial = enters[m] & ~cm
+        h = np.where(use_axial, h_axial, w.rim_radius_m - rho_f[m])
+        d1 = np.where(use_axial, np.maximum(tbm, 1e-6), np.maximum(d1, 1e-6))
+        d2 = np.where(use_axial, np.maximum(lm - tbm, 1e-6), np.maximum(d2, 1e-6))
+        rim_db[m] = knife_edge_loss_db(knife_edge_v(h, d1, d2, freq_hz))
 
     # 3. where the path leaves the tire: tread (steel belt) or sidewall
-    ok_t, _, tt2 = first_root(w.tire_radius_m)
+    ok_t, tt2 = root(w.tire_radius_m, +1)
     t_tread = np.where(ok_t & (tt2 > 0), tt2, np.inf)
     half_tw = 0.5 * w.tire_width_m
     side_w = np.where(uw >= 0.0, half_tw, -half_tw)
