@@ -490,13 +490,20 @@ def _bilinear(grid: np.ndarray, theta_deg: np.ndarray, n_phi: int, t: np.ndarray
     step_t = math.radians(theta_deg[1] - theta_deg[0])
     step_p = 2.0 * math.pi / n_phi
     ft = t / step_t
-    i0 = np.clip(np.floor(ft).astype(int), 0, len(theta_deg) - 2)
-    ft = np.clip(ft - i0, 0.0, 1.0)[..., None]
+    i0 = np.clip(np.floor(ft).astype(np.intp), 0, len(theta_deg) - 2)
+    ft = np.clip(ft - i0, 0.0, 1.0)
     fp = p / step_p
-    j0 = np.clip(np.floor(fp).astype(int), 0, n_phi - 1)
-    fp = np.clip(fp - j0, 0.0, 1.0)[..., None]
-    return ((1 - ft) * (1 - fp)) * grid[i0, j0] + ((1 - ft) * fp) * grid[i0, j0 + 1] \
-        + (ft * (1 - fp)) * grid[i0 + 1, j0] + (ft * fp) * grid[i0 + 1, j0 + 1]
+    j0 = np.clip(np.floor(fp).astype(np.intp), 0, n_phi - 1)
+    fp = np.clip(fp - j0, 0.0, 1.0)
+    # one flat gather per corner (cheaper than 2-D fancy indexing)
+    cols = grid.shape[1]
+    flat = grid.reshape(-1, grid.shape[2])
+    k00 = i0 * cols + j0
+    out = flat.take(k00, axis=0) * ((1 - ft) * (1 - fp))[..., None]
+    out += flat.take(k00 + 1, axis=0) * ((1 - ft) * fp)[..., None]
+    out += flat.take(k00 + cols, axis=0) * (ft * (1 - fp))[..., None]
+    out += flat.take(k00 + cols + 1, axis=0) * (ft * fp)[..., None]
+    return out
 
 
 #: Below this distance from the wheel centre the near-field term is held at its value there, m.
