@@ -25,7 +25,7 @@ from core.vehicle import Region, Vehicle
 from core.wheel import WheelGeometry, sensor_axes, sensor_positions
 
 #: links per work chunk: bounds memory (about 2 kB per link in flight) and sets cancel latency
-CHUNK_LINKS = 20_000
+CHUNK_LINKS = 12_000
 
 
 @dataclass(frozen=True, eq=False)
