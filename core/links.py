@@ -84,7 +84,8 @@ def _floor(c: np.ndarray, floor_amp: float) -> np.ndarray:
     return phase * np.maximum(mag, floor_amp)
 
 
-def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray) -> np.ndarray:
+def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
+                          spot_bits: np.ndarray | None = None) -> np.ndarray:
     """Received level, dBm, for spots (S, 3) with receiver axes (S, 3) from one wheel: (S, A)."""
     S = len(spots)
     A = len(scene.angles_rad)
@@ -139,7 +140,8 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
         loss_r = body_loss_db(scene.hull, src, g_pt, scene.freq_hz, bits0)
         # the road point -> receiver leg, traced from the receiver end (same panels and passages),
         # so the start membership is the spot's, shared by every angle
-        spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2])
+        if spot_bits is None:  # hull membership of the spots (core.geometry.start_bits), shared by all wheels
+            spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2])
         bits_p = np.broadcast_to(spot_bits[:, None], (S, A)).reshape(-1)
         loss_r = loss_r + body_loss_db(scene.hull, dst, g_pt, scene.freq_hz, bits_p)
         if scene.use_wheel_loss:

@@ -152,8 +152,9 @@ def spot_levels(scene: Scene, spots, axes=None) -> np.ndarray:
     axes = np.atleast_2d(np.asarray(axes, float))
     axes = axes / np.linalg.norm(axes, axis=1, keepdims=True)
     out = np.empty((len(spots), len(scene.wheels), len(scene.angles_rad)))
+    bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2]) if scene.ground_reflection else None
     for wi in range(len(scene.wheels)):
-        out[:, wi, :] = link_levels_for_wheel(scene, wi, spots, axes)
+        out[:, wi, :] = link_levels_for_wheel(scene, wi, spots, axes, bits)
     return out
 
 
