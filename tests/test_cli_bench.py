@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import re
 
-from app.cli import main
+from app.cli.main import main
 
 SUMMARY = re.compile(
     r"^heatmap_s=(\S+) spot_ms=(\S+) speedup=(\S+) links_per_s=(\S+) peak_mib=(\S+)$"
@@ -28,9 +28,9 @@ def test_bench_quick_prints_the_summary_line_with_positive_figures(capsys):
 def test_step_for_spots_gives_at_least_the_asked_number_of_spots():
     """The grid helper of the benchmark: the largest spacing whose grid holds >= n spots; on the
     sedan's 4.3 m x 1.4 m rectangular region 2,400 spots need 5 cm (86 x 28 = 2,408 cells, by hand)."""
-    from app.cli_bench import _count, step_for_spots
+    from app.cli.bench import _count, step_for_spots
     from core.vehicle import load_vehicle
-    from app.cli import DEFAULT_SAMPLE
+    from core.samples import DEFAULT_SAMPLE
 
     region = next(r for r in load_vehicle(DEFAULT_SAMPLE).regions if r.view == "top")
     step = step_for_spots(region, 2400)

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from app.cli import main
+from app.cli.main import main
 from core.vehicle import json_schema
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -67,7 +67,7 @@ def test_check_missing_and_garbage_files(tmp_path, capsys):
 def _run_cli(*args: str) -> subprocess.CompletedProcess:
     env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
     return subprocess.run(
-        [sys.executable, "-m", "app.cli", *args], cwd=ROOT, capture_output=True, text=True, timeout=120, env=env
+        [sys.executable, "-m", "app.cli.main", *args], cwd=ROOT, capture_output=True, text=True, timeout=120, env=env
     )
 
 

@@ -117,7 +117,7 @@ def test_search_finds_the_best_grid_point_and_its_margins_are_the_engine_s(bodie
 
 def test_cli_compare_names_the_common_spot_and_writes_the_table(tmp_path, capsys, comparison):
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-    from app.cli import main
+    from app.cli.main import main
 
     out_csv = tmp_path / "cmp.csv"
     out_pdf = tmp_path / "cmp.pdf"
@@ -139,7 +139,7 @@ def test_cli_compare_names_the_common_spot_and_writes_the_table(tmp_path, capsys
 
 
 def test_cli_compare_bad_file_names_the_field(tmp_path, capsys):
-    from app.cli import main
+    from app.cli.main import main
 
     d = json.loads((ROOT / "sample_vehicles" / "suv.json").read_text())
     d["spots"][0]["x_from"] = "rear_bumper"

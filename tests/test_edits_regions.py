@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from app import edits
+from app.gui import edits
 from core.vehicle import VehicleFileError, load_vehicle
 
 SEDAN = Path(__file__).resolve().parents[1] / "sample_vehicles" / "sedan.json"

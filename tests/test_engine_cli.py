@@ -14,7 +14,7 @@ import sys
 import numpy as np
 import pytest
 
-from app.cli import main
+from app.cli.main import main
 from core.scoring import Scene, heatmap, score_spots, score_vehicle
 from core.vehicle import load_vehicle
 from engine_vehicles import REPO, SEDAN_PATH, sedan
@@ -88,7 +88,7 @@ def test_rank_table_names_the_spots_and_carries_the_caution(capsys):
 @pytest.mark.parametrize("bad", ["console", "console=-1.3,0", "console=-1.3,0,0.5,1", "console=a,b,c", "=1,0,0.5",
                                  "console=nan,0,0.5", "console=1000,0,0.5"])
 def test_bad_spot_gives_a_clear_message_and_nonzero_exit(bad):
-    r = subprocess.run([sys.executable, "-m", "app.cli", "rank", str(SEDAN_PATH), "--spot", bad],
+    r = subprocess.run([sys.executable, "-m", "app.cli.main", "rank", str(SEDAN_PATH), "--spot", bad],
                        capture_output=True, text=True, cwd=REPO, timeout=120)
     assert r.returncode != 0
     assert "Traceback" not in r.stderr

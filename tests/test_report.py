@@ -22,8 +22,8 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 pypdf = pytest.importorskip("pypdf")
 
-from app.cli import main
-from app.report_data import CAUTION
+from app.cli.main import main
+from app.report.data import CAUTION
 from core.scoring import Scene, heatmap, score_vehicle
 from core.vehicle import load_vehicle
 
@@ -134,7 +134,7 @@ def test_bad_file_fails_with_the_located_message_and_leaves_no_pdf(tmp_path, cap
 
 def test_failure_while_painting_keeps_an_existing_pdf(tmp_path, monkeypatch):
     """An error after the PDF was started leaves the previous report untouched and no temporary file."""
-    from app import report
+    from app.report import pdf as report
 
     out = tmp_path / "old.pdf"
     out.write_bytes(b"previous report")
@@ -150,7 +150,7 @@ def test_failure_while_painting_keeps_an_existing_pdf(tmp_path, monkeypatch):
 
 
 def test_report_of_an_unsaved_document_hashes_its_canonical_json(tmp_path):
-    from app.report import write_report
+    from app.report.pdf import write_report
     from core.vehicle import vehicle_to_json
 
     v = load_vehicle(ROOT / "sample_vehicles" / "hatchback.json")

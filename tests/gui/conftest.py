@@ -22,9 +22,9 @@ def settings(tmp_path):
 @pytest.fixture
 def window(qtbot, settings):
     """The main window on the sample sedan, heatmap auto-update off (tests start it when needed)."""
-    from app.cli import DEFAULT_SAMPLE
-    from app.document import Document
-    from app.main_window import MainWindow
+    from core.samples import DEFAULT_SAMPLE
+    from app.gui.document import Document
+    from app.gui.window import MainWindow
     from core.vehicle import load_vehicle
 
     doc = Document(load_vehicle(DEFAULT_SAMPLE), DEFAULT_SAMPLE)

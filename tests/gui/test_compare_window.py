@@ -10,7 +10,7 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 from PySide6.QtCore import Qt
 
-from app.compare_window import COMMON_ROW, CompareWindow, open_compare_window
+from app.gui.compare_window import COMMON_ROW, CompareWindow, open_compare_window
 
 ROOT = Path(__file__).resolve().parents[2]
 

@@ -13,7 +13,7 @@ from PySide6.QtCore import QEvent, QPoint, QPointF, Qt
 from PySide6.QtGui import QImage, QMouseEvent
 from PySide6.QtWidgets import QApplication
 
-from app.cli import DEFAULT_SAMPLE
+from core.samples import DEFAULT_SAMPLE
 from core.scoring import Scene, heatmap, score_spots, score_vehicle
 from core.vehicle import check_vehicle, load_vehicle
 
@@ -160,10 +160,10 @@ def test_add_spot_from_heatmap_cell(window, qtbot):
 
 
 def test_broken_file_shows_dialog_and_keeps_document(window, tmp_path, monkeypatch):
-    import app.dialogs
+    import app.gui.dialogs
 
     shown = []
-    monkeypatch.setattr(app.dialogs.QMessageBox, "critical", lambda parent, title, text, *a: shown.append((title, text)))
+    monkeypatch.setattr(app.gui.dialogs.QMessageBox, "critical", lambda parent, title, text, *a: shown.append((title, text)))
     d = json.loads(DEFAULT_SAMPLE.read_text())
     d["wheels"][1]["tire"] = "225/50X17"
     bad = tmp_path / "bad.json"
@@ -180,7 +180,7 @@ def test_broken_file_shows_dialog_and_keeps_document(window, tmp_path, monkeypat
 
 
 def test_open_good_file_goes_to_recent_files(window, tmp_path):
-    from app.cli import SAMPLES_DIR
+    from core.samples import SAMPLES_DIR
 
     p = SAMPLES_DIR / "cargo_van.json"
     assert window.open_path(p)
@@ -190,8 +190,8 @@ def test_open_good_file_goes_to_recent_files(window, tmp_path):
 
 
 def test_recovery_copy_round_trip(window, qtbot, monkeypatch):
-    import app.dialogs
-    from app import edits
+    import app.gui.dialogs
+    from app.gui import edits
 
     doc = window.doc
     name = doc.vehicle.spots[0].name
@@ -200,7 +200,7 @@ def test_recovery_copy_round_trip(window, qtbot, monkeypatch):
     assert f is not None and f.exists()
     edited = doc.vehicle
     doc.undo_stack.undo()
-    monkeypatch.setattr(app.dialogs, "ask_recover", lambda *a: True)
+    monkeypatch.setattr(app.gui.dialogs, "ask_recover", lambda *a: True)
     assert window.offer_recovery()
     assert doc.vehicle == edited and doc.modified
     window.remove_recovery()
@@ -208,7 +208,7 @@ def test_recovery_copy_round_trip(window, qtbot, monkeypatch):
 
 
 def test_screenshot_writes_png(tmp_path):
-    from app.cli import main
+    from app.cli.main import main
 
     out = tmp_path / "shot.png"
     assert main([str(DEFAULT_SAMPLE), "--screenshot", str(out)]) == 0

@@ -30,10 +30,10 @@ from PySide6.QtWidgets import (
 )
 from scipy import ndimage
 
-from app import edits
-from app.document import Document
-from app.heatmap_worker import HeatmapJob
-from app.look import BODY_COLOUR, margin_colormap, wheel_colour
+from app.gui import edits
+from app.gui.document import Document
+from app.gui.heatmap_worker import HeatmapJob
+from app.gui.look import BODY_COLOUR, margin_colormap, wheel_colour
 from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
 

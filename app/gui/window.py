@@ -1,6 +1,6 @@
 """The main window: body views side by side, the ranking panel below, settings at the right.
 
-Menus and shortcuts come from ``app.commands.COMMANDS``. Files: recent list in QSettings, samples
+Menus and shortcuts come from ``app.gui.commands.COMMANDS``. Files: recent list in QSettings, samples
 submenu, a clear dialog for a bad file (the document is left untouched), a prompt before closing
 with unsaved changes, and a recovery copy written every two minutes while there are unsaved
 changes, offered on the next start when the program did not close normally.
@@ -25,11 +25,11 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from app import commands, dialogs
-from app.body_views import BodyView
-from app.document import Document
-from app.ranking_panel import RankingPanel
-from app.settings_panel import RadioPanel, ZonesPanel
+from app.gui import commands, dialogs
+from app.gui.body_views import BodyView
+from app.gui.document import Document
+from app.gui.ranking_panel import RankingPanel
+from app.gui.settings_panel import RadioPanel, ZonesPanel
 from core.vehicle import VehicleFileError, atomic_write_text, vehicle_from_dict, vehicle_to_dict
 
 AUTOSAVE_MS = 120_000
@@ -179,7 +179,7 @@ class MainWindow(QMainWindow):
         self.addActions(list(self.actions.values()))
 
     def _fill_samples(self) -> None:
-        from app.cli import SAMPLES_DIR
+        from core.samples import SAMPLES_DIR
 
         self.samples_menu.clear()
         for p in sorted(SAMPLES_DIR.glob("*.json")):

@@ -1,4 +1,4 @@
-"""Start the desktop program (the window lives in app.main_window)."""
+"""Start the desktop program (the window lives in app.gui.window)."""
 
 from __future__ import annotations
 
@@ -20,9 +20,9 @@ def run_gui(file: str | None = None, screenshot: str | None = None) -> int:
     from PySide6.QtCore import QCoreApplication, QEventLoop, QTimer
     from PySide6.QtWidgets import QApplication
 
-    from app.cli import DEFAULT_SAMPLE
-    from app.document import Document
-    from app.main_window import MainWindow
+    from core.samples import DEFAULT_SAMPLE
+    from app.gui.document import Document
+    from app.gui.window import MainWindow
     from core.vehicle import load_vehicle
 
     QCoreApplication.setOrganizationName("Wheelreach")

@@ -21,9 +21,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from app import edits
-from app.document import Document
-from app.look import BODY_COLOUR, material_colour
+from app.gui import edits
+from app.gui.document import Document
+from app.gui.look import BODY_COLOUR, material_colour
 
 SPOT_BRUSH = pg.mkBrush(255, 255, 255, 220)
 SPOT_PEN = pg.mkPen(20, 20, 20, width=1.5)

@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-from app.cli_engine import rank_document
+from app.report.rank_json import rank_document
 from core.burst import BurstResult, burst_for_spot
 from core.distinctness import Distinctness, wheel_distinctness
 from core.materials import BUILTIN_MATERIALS, ROAD_SURFACES, material_loss_db

@@ -12,9 +12,6 @@ from pathlib import Path
 
 from core.vehicle import VehicleFileError, json_schema, load_vehicle
 
-REPO_ROOT = Path(__file__).resolve().parents[1]
-SAMPLES_DIR = REPO_ROOT / "sample_vehicles"
-DEFAULT_SAMPLE = SAMPLES_DIR / "sedan.json"
 
 
 def _cmd_check(args) -> int:
@@ -39,7 +36,7 @@ def _cmd_schema(args) -> int:
 
 
 def _cmd_gui(args) -> int:
-    from app.gui_main import run_gui
+    from app.gui.main import run_gui
 
     return run_gui(args.file, screenshot=getattr(args, "screenshot", None))
 
@@ -67,7 +64,7 @@ def _register_more(sub) -> None:
     """Commands of the engine, benchmark and report modules (registered when present)."""
     import importlib
 
-    for mod in ("app.cli_engine", "app.cli_bench", "app.cli_report"):
+    for mod in ("app.cli.engine", "app.cli.bench", "app.cli.report"):
         try:
             m = importlib.import_module(mod)
         except ModuleNotFoundError as e:

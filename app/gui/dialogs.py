@@ -146,7 +146,7 @@ def about(parent: QWidget | None) -> None:
 
 
 def readme_path() -> Path:
-    return Path(__file__).resolve().parents[1] / "README.md"
+    return Path(__file__).resolve().parents[2] / "README.md"
 
 
 def show_help(parent: QWidget | None, section: str | None = None) -> QDialog:

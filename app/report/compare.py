@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from app.report_data import CAUTION, file_sha256, program_version
+from app.report.data import CAUTION, file_sha256, program_version
 from core.compare import CommonSearch, Comparison
 
 
@@ -104,8 +104,8 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
     """The comparison as a PDF: inputs with hashes, small top views, the table, the search, the caution."""
     from PySide6.QtCore import QRectF
 
-    from app import report_figures as fig
-    from app.report import S, esc, render_pdf_atomic
+    from app.report import figures as fig
+    from app.report.pdf import S, esc, render_pdf_atomic
 
     now = datetime.now(UTC).astimezone()
     hashes = [file_sha256(Path(p).read_bytes()) if p else "" for p in paths]

@@ -31,18 +31,18 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from app import report_figures as fig
-from app.compare_report import body_labels, describe_position
+from app.report import figures as fig
+from app.report.compare import body_labels, describe_position
 from core.compare import LANDMARKS, CommonSearch, Comparison, NoSharedRegion, compare_bodies, search_common_position
+from core.samples import SAMPLES_DIR
 from core.scoring import Scene
 from core.vehicle import Vehicle, VehicleFileError, load_vehicle
 
-SAMPLES_DIR = Path(__file__).resolve().parents[1] / "sample_vehicles"
 COMMON_ROW = QColor(255, 236, 160)
 
 
 class BodyThumb(QWidget):
-    """A small top view of one body with its spots (drawn by app.report_figures)."""
+    """A small top view of one body with its spots (drawn by app.report.figures)."""
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -337,7 +337,7 @@ class CompareWindow(QMainWindow):
             self.export_pdf(path)
 
     def export_pdf(self, path) -> int:
-        from app.compare_report import write_comparison_pdf
+        from app.report.compare import write_comparison_pdf
 
         n = write_comparison_pdf(path, self.vehicles, self.paths, self.comparison, self.search,
                                  self._search_error)

@@ -28,8 +28,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from app import edits
-from app.document import Document
+from app.gui import edits
+from app.gui.document import Document
 from core.materials import BUILTIN_MATERIALS, ROAD_SURFACES, material_loss_db
 from core.regulatory import EIRP_PRESETS
 

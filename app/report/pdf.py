@@ -1,11 +1,11 @@
 """The placement report: a PDF drawn with Qt (QPdfWriter, QTextDocument, QPainter), no browser.
 
-``write_report(path_or_vehicle, out_pdf, ...)`` runs the engine (app.report_data), lays the report
+``write_report(path_or_vehicle, out_pdf, ...)`` runs the engine (app.report.data), lays the report
 out on A4 pages and writes it atomically: the PDF goes to a temporary file beside the target and is
 renamed only when complete, so a bad vehicle file (VehicleFileError with its located message) or
 any failure leaves no partial PDF. ``--csv`` / ``--json`` exports with the same numbers go beside it.
 
-Text is drawn as text (selectable); figures are vector drawings (app.report_figures) except the
+Text is drawn as text (selectable); figures are vector drawings (app.report.figures) except the
 heatmap cells, which are an image. Pages are numbered "page i of N".
 """
 
@@ -30,8 +30,8 @@ from PySide6.QtGui import (
     QTextDocument,
 )
 
-from app import report_figures as fig
-from app.report_data import CAUTION, MPS_TO_KMH, ReportData, build_report_data, report_csv, report_json_text
+from app.report import figures as fig
+from app.report.data import CAUTION, MPS_TO_KMH, ReportData, build_report_data, report_csv, report_json_text
 from core.vehicle import atomic_path, atomic_write_text
 
 DPI = 300

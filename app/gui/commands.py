@@ -10,8 +10,8 @@ from dataclasses import dataclass
 
 from PySide6.QtWidgets import QDialog, QFileDialog
 
-from app import dialogs, edits
-from app.document import Document
+from app.gui import dialogs, edits
+from app.gui.document import Document
 
 FILE_FILTER = "Wheelreach vehicle (*.json);;All files (*)"
 SNAP_GRID_M = 0.025
@@ -138,14 +138,14 @@ def cancel_heatmap(doc: Document, ui) -> None:
 # ----- help --------------------------------------------------------------------------
 def export_report(doc: Document, ui) -> None:
     """File > Export report: the placement report of the document as it stands (saved file or edits)."""
-    from app.report import export_report_dialog
+    from app.report.pdf import export_report_dialog
 
     export_report_dialog(ui, doc.path if doc.path and doc.undo_stack.isClean() else doc.vehicle)
 
 
 def compare_bodies(doc: Document, ui) -> None:
     """Tools > Compare bodies: one spot for several body styles, starting with this file."""
-    from app.compare_window import open_compare_window
+    from app.gui.compare_window import open_compare_window
 
     ui.compare_window = open_compare_window(ui, [str(doc.path)] if doc.path else None)
 

@@ -28,7 +28,7 @@ import tracemalloc
 
 import numpy as np
 
-from app.cli_engine import _Progress
+from app.cli.engine import _Progress
 from core.vehicle import load_vehicle
 
 MAIN_STEP_M = 0.05
@@ -213,7 +213,7 @@ def summary_line(fig: dict) -> str:
 
 
 def _cmd_bench(args) -> int:
-    from app.cli import DEFAULT_SAMPLE
+    from core.samples import DEFAULT_SAMPLE
 
     path = args.file or DEFAULT_SAMPLE
     v = load_vehicle(path)

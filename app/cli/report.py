@@ -12,7 +12,7 @@ def _cmd_report(args) -> int:
     import os
 
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-    from app.report import write_report
+    from app.report.pdf import write_report
 
     if not args.step > 0:
         print("error: --step must be positive", file=sys.stderr)
@@ -29,7 +29,7 @@ def _cmd_report(args) -> int:
 
 
 def _cmd_compare(args) -> int:
-    from app.compare_report import comparison_csv, comparison_text
+    from app.report.compare import comparison_csv, comparison_text
     from core.compare import NoSharedRegion, compare_bodies, search_common_position
     from core.scoring import Scene
     from core.vehicle import atomic_write_text, load_vehicle
@@ -51,7 +51,7 @@ def _cmd_compare(args) -> int:
         import os
 
         os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-        from app.compare_report import write_comparison_pdf
+        from app.report.compare import write_comparison_pdf
 
         n = write_comparison_pdf(args.output, vehicles, list(args.files), c, search, err)
         print(f"wrote {args.output}: {n} pages")
