@@ -62,6 +62,14 @@ class Scene:
     def wheel_ids(self) -> tuple[str, ...]:
         return tuple(w.id for w in self.wheels)
 
+    @property
+    def score_method(self) -> str:
+        """How the worst case over a turn is taken (statistic and angle method), for every output."""
+        n = len(self.angles_rad)
+        if self.worst_percentile > 0:
+            return f"{self.worst_percentile:g}th percentile of the level over {n} sampled angles"
+        return f"minimum of the level over {n} sampled angles"
+
     @classmethod
     def from_vehicle(cls, v: Vehicle, wheel_model: str | None = None, ground_reflection: bool | None = None) -> "Scene":
         """Prepare a scene; ``wheel_model`` and ``ground_reflection`` override the file's radio setup."""
