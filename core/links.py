@@ -32,6 +32,8 @@ ITU-R P.2040 (road permittivity and conductivity).
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from core.geometry import body_loss_db, start_bits
@@ -55,13 +57,14 @@ def _perp(a, u):
     return a - _dot(a, u)[..., None] * u
 
 
-def sensor_field(scene, wheel_index: int, theta_idx: np.ndarray, s_axis: np.ndarray, u: np.ndarray,
+def sensor_field(scene, wheel_index: int, theta: np.ndarray, s_axis: np.ndarray, u: np.ndarray,
                  r_axis: np.ndarray, distance_m: np.ndarray | None = None) -> np.ndarray:
     """Sensor field vector toward unit directions u (N, 3), relative to the bare peak; complex (N, 3).
 
-    ``distance_m`` (N,) is the path length to the field point; the installed wheel pattern uses it
-    for its near-field term (for the road-reflected ray: the image path length, i.e. the distance to
-    the receiver's mirror point, which is exact for the image method)."""
+    ``theta`` (N,) is the wheel angle of each link, rad. ``distance_m`` (N,) is the path length to
+    the field point; the installed wheel pattern uses it for its near-field term (for the
+    road-reflected ray: the image path length, i.e. the distance to the receiver's mirror point,
+    which is exact for the image method)."""
     kind = scene.sensor_kind
     if kind == "dipole":
         return _perp(s_axis, u).astype(complex)
@@ -74,61 +77,120 @@ def sensor_field(scene, wheel_index: int, theta_idx: np.ndarray, s_axis: np.ndar
     table = scene.wheel_tables[wheel_index]
     from core.wheel_patterns import field_vectors
 
-    th = scene.angles_rad[theta_idx]
-    return field_vectors(table, u, th, w.outboard_sign, distance_m=distance_m) / np.sqrt(1.5)
+    return field_vectors(table, u, theta, w.outboard_sign, distance_m=distance_m) / np.sqrt(1.5)
 
 
-def _floor(c: np.ndarray, floor_amp: float) -> np.ndarray:
-    mag = np.abs(c)
-    phase = np.where(mag > 0, c / np.maximum(mag, 1e-300), 1.0)
-    return phase * np.maximum(mag, floor_amp)
+#: shortest path length the link model evaluates, m: a receiver closer than this to the sensor is
+#: held at this distance (such a spot lies inside the wheel and is flagged near field anyway)
+MIN_PATH_M = 1e-3
 
 
-def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
-                          spot_bits: np.ndarray | None = None) -> np.ndarray:
-    """Received level, dBm, for spots (S, 3) with receiver axes (S, 3) from one wheel: (S, A)."""
-    S = len(spots)
-    A = len(scene.angles_rad)
-    w = scene.wheels[wheel_index]
-    src_all = scene.sensor_pos[wheel_index]  # (A, 3)
-    s_axis_all = scene.sensor_axis[wheel_index]
-    src = np.broadcast_to(src_all[None, :, :], (S, A, 3)).reshape(-1, 3)
-    s_axis = np.broadcast_to(s_axis_all[None, :, :], (S, A, 3)).reshape(-1, 3)
-    dst = np.broadcast_to(spots[:, None, :], (S, A, 3)).reshape(-1, 3)
-    r_axis = np.broadcast_to(axes[:, None, :], (S, A, 3)).reshape(-1, 3)
-    theta_idx = np.broadcast_to(np.arange(A)[None, :], (S, A)).reshape(-1)
-    bits0 = np.broadcast_to(scene.sensor_bits[wheel_index][None, :], (S, A)).reshape(-1)
+@dataclass(frozen=True)
+class LinkField:
+    """The received field of N links, before the antenna gains and EIRP are applied.
+
+    ``re``, ``im`` (N,): the coherent sum over the rays of c_ray 10^(-L_ray/20) / d_ray, phase
+    referred to the direct ray, 1/m; ``floor2`` (N,): the null floor's power, f^2 times the sum over
+    the rays of 10^(-L_ray/10) / d_ray^2 (1/m^2), f = 10^(null_floor_db/20).
+    """
+
+    re: np.ndarray
+    im: np.ndarray
+    floor2: np.ndarray
+
+    def power(self) -> np.ndarray:
+        """|field|^2 held at the null floor, 1/m^2."""
+        return np.maximum(self.re * self.re + self.im * self.im, self.floor2)
+
+
+def level_dbm(scene, power: np.ndarray) -> np.ndarray:
+    """Received level, dBm, from the floored field power of :class:`LinkField` (1/m^2)."""
     lam = scene.wavelength_m
-    k = 2.0 * np.pi / lam
-    floor_amp = 10.0 ** (scene.null_floor_db / 20.0)
+    return (scene.eirp_dbm + scene.receiver_gain_dbi + 20.0 * np.log10(lam / (4.0 * np.pi))
+            + 10.0 * np.log10(np.maximum(power, 1e-60)))
+
+
+def _wheel_groups(wheel_index, n: int) -> list[tuple[int, slice | np.ndarray]]:
+    """(wheel, link selection) pairs for a wheel index given per link (N,) or once for all links."""
+    if np.ndim(wheel_index) == 0:
+        return [(int(wheel_index), slice(None))]
+    wi = np.asarray(wheel_index)
+    return [(int(k), np.flatnonzero(wi == k)) for k in np.unique(wi)]
+
+
+def _sensor_fields(scene, groups, theta, s_axis, u, r_axis, dist) -> np.ndarray:
+    """sensor_field over links of several wheels (the installed pattern is looked up per wheel)."""
+    if scene.sensor_kind != "table" or len(groups) == 1:
+        return sensor_field(scene, groups[0][0], theta, s_axis, u, r_axis, dist)
+    out = np.empty(u.shape, complex)
+    for wi, g in groups:
+        out[g] = sensor_field(scene, wi, theta[g], s_axis[g], u[g], r_axis[g], dist[g])
+    return out
+
+
+def _wheel_losses(scene, groups, src, dst) -> np.ndarray:
+    """Knife-edge wheel loss (core.wheel.wheel_loss_db) over links of several wheels, dB."""
+    if len(groups) == 1:
+        w = scene.wheels[groups[0][0]]
+        return wheel_loss_db(w, src, dst, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
+    out = np.empty(len(src))
+    for wi, g in groups:
+        out[g] = wheel_loss_db(scene.wheels[wi], src[g], dst[g], scene.freq_hz, scene.sidewall_loss_db,
+                               scene.tread_loss_db)
+    return out
+
+
+def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: np.ndarray,
+               bits0: np.ndarray, dst: np.ndarray, r_axis: np.ndarray,
+               spot_bits: np.ndarray | None = None) -> LinkField:
+    """The received field of N links (arrays of N links).
+
+    wheel_index : the wheel whose sensor sends, an int for all links or (N,) per link (the body
+    loss, most of the work, is then computed for the links of every wheel at once);
+    theta : (N,) wheel angle, rad; src, s_axis : (N, 3) sensor position (m) and unit antenna axis;
+    bits0 : (N,) the sensor positions' hull membership bits (core.geometry.start_bits); dst, r_axis :
+    (N, 3) receiver position (m) and unit antenna axis; spot_bits : (N,) the receivers' membership
+    bits (computed when None and the road ray is on).
+
+    Null floor: exact nulls are not physical (antennas have finite cross-polar discrimination, and
+    the road's roughness and the surroundings scatter some power into a two-ray null), so the
+    received power is held at or above the null floor f^2 times the incoherent, polarization-matched
+    sum of the rays' powers. With one ray this is the pattern-and-polarization floor
+    max(|c|, f) of the design; with the road ray it also bounds the two-ray nulls. The depth f is
+    the radio setup's ``null_floor_db`` (engineering default -30 dB).
+    """
+    groups = _wheel_groups(wheel_index, len(src))
+    floor2_amp = 10.0 ** (scene.null_floor_db / 10.0)
 
     # direct ray
     u, d = _unit(dst - src)
-    e_d = sensor_field(scene, wheel_index, theta_idx, s_axis, u, r_axis, d)
+    d = np.maximum(d, MIN_PATH_M)
+    e_d = _sensor_fields(scene, groups, theta, s_axis, u, r_axis, d)
     loss_d = body_loss_db(scene.hull, src, dst, scene.freq_hz, bits0)
     if scene.use_wheel_loss:
-        loss_d = loss_d + wheel_loss_db(w, src, dst, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
+        loss_d = loss_d + _wheel_losses(scene, groups, src, dst)
     if scene.receiver_pattern == "dipole":
         c_d = _dot(e_d, r_axis)
     else:
         norm_d = np.linalg.norm(e_d, axis=-1)
         ref = e_d / np.maximum(norm_d, 1e-12)[:, None]  # the direct ray's polarization
         c_d = norm_d.astype(complex)
-    c_d = _floor(c_d, floor_amp)
     # The ray sum in real arithmetic, relative to the direct ray's phase e^{-jkd} (which drops out
     # of the magnitude): field = c_d g_d + c_r g_r e^{-jk (d_r - d)}, g = 10^(-L/20) / d.
     g_d = 10.0 ** (-loss_d / 20.0) / d
     field_re = c_d.real * g_d
     field_im = c_d.imag * g_d
+    floor2 = g_d * g_d
 
     if scene.ground_reflection:
         img = src * _MIRROR
         u_r, d_r = _unit(dst - img)
+        d_r = np.maximum(d_r, MIN_PATH_M)
         u_i = u_r * _MIRROR  # direction leaving the sensor toward the road
         tg = src[:, 2] / np.maximum(src[:, 2] + dst[:, 2], 1e-9)
         g_pt = img + tg[:, None] * (dst - img)
         g_pt[:, 2] = 0.0
-        e_i = sensor_field(scene, wheel_index, theta_idx, s_axis, u_i, r_axis, d_r)
+        e_i = _sensor_fields(scene, groups, theta, s_axis, u_i, r_axis, d_r)
         n_te, n_len = _unit(np.cross(_Z, u_i))
         vertical = n_len < 1e-9
         if vertical.any():
@@ -140,23 +202,48 @@ def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.n
         loss_r = body_loss_db(scene.hull, src, g_pt, scene.freq_hz, bits0)
         # the road point -> receiver leg, traced from the receiver end (same panels and passages),
         # so the start membership is the spot's, shared by every angle
-        if spot_bits is None:  # hull membership of the spots (core.geometry.start_bits), shared by all wheels
-            spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2])
-        bits_p = np.broadcast_to(spot_bits[:, None], (S, A)).reshape(-1)
-        loss_r = loss_r + body_loss_db(scene.hull, dst, g_pt, scene.freq_hz, bits_p)
+        if spot_bits is None:
+            spot_bits = start_bits(scene.hull, dst[:, 0], dst[:, 1], dst[:, 2])
+        loss_r = loss_r + body_loss_db(scene.hull, dst, g_pt, scene.freq_hz, spot_bits)
         if scene.use_wheel_loss:
-            loss_r = loss_r + wheel_loss_db(w, src, g_pt, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
+            loss_r = loss_r + _wheel_losses(scene, groups, src, g_pt)
         if scene.receiver_pattern == "dipole":
             c_r = _dot(e_r, r_axis)
         else:
             c_r = _dot(e_r, np.conj(ref))
-        b = _floor(c_r, floor_amp) * (10.0 ** (-loss_r / 20.0) / d_r)
-        phase = k * (d_r - d)  # the reflected ray's lag behind the direct ray, rad
+        g_r = 10.0 ** (-loss_r / 20.0) / d_r
+        b = c_r * g_r
+        phase = scene.wavenumber * (d_r - d)  # the reflected ray's lag behind the direct ray, rad
         cos, sin = np.cos(phase), np.sin(phase)
-        field_re += b.real * cos + b.imag * sin  # b e^{-j phase}
-        field_im += b.imag * cos - b.real * sin
+        field_re = field_re + (b.real * cos + b.imag * sin)  # b e^{-j phase}
+        field_im = field_im + (b.imag * cos - b.real * sin)
+        floor2 = floor2 + g_r * g_r
 
-    amp = np.hypot(field_re, field_im) * lam / (4.0 * np.pi)
-    level = scene.eirp_dbm + scene.receiver_gain_dbi + 20.0 * np.log10(np.maximum(amp, 1e-30))
-    return level.reshape(S, A)
+    return LinkField(field_re, field_im, floor2_amp * floor2)
 
+
+def turn_field(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
+               spot_bits: np.ndarray | None = None) -> LinkField:
+    """The received field for spots (S, 3) with receiver axes (S, 3) from one wheel at the scene's
+    sampled angles; arrays (S, A)."""
+    S = len(spots)
+    A = len(scene.angles_rad)
+    src = np.broadcast_to(scene.sensor_pos[wheel_index][None, :, :], (S, A, 3)).reshape(-1, 3)
+    s_axis = np.broadcast_to(scene.sensor_axis[wheel_index][None, :, :], (S, A, 3)).reshape(-1, 3)
+    dst = np.broadcast_to(spots[:, None, :], (S, A, 3)).reshape(-1, 3)
+    r_axis = np.broadcast_to(axes[:, None, :], (S, A, 3)).reshape(-1, 3)
+    theta = np.broadcast_to(scene.angles_rad[None, :], (S, A)).reshape(-1)
+    bits0 = np.broadcast_to(scene.sensor_bits[wheel_index][None, :], (S, A)).reshape(-1)
+    bits_p = None
+    if scene.ground_reflection:
+        if spot_bits is None:
+            spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2])
+        bits_p = np.broadcast_to(spot_bits[:, None], (S, A)).reshape(-1)
+    f = link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, bits_p)
+    return LinkField(f.re.reshape(S, A), f.im.reshape(S, A), f.floor2.reshape(S, A))
+
+
+def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
+                          spot_bits: np.ndarray | None = None) -> np.ndarray:
+    """Received level, dBm, for spots (S, 3) with receiver axes (S, 3) from one wheel: (S, A)."""
+    return level_dbm(scene, turn_field(scene, wheel_index, spots, axes, spot_bits).power())

@@ -18,10 +18,11 @@ from typing import Callable
 import numpy as np
 
 from core.geometry import Hull, build_hull, inside_hull, start_bits
-from core.links import link_levels_for_wheel
+from core.links import LinkField, level_dbm, turn_field
 from core.materials import material_loss_db, road_permittivity
 from core.propagation import SHORT_DIPOLE_GAIN_DBI, near_field_limit_m, wavelength_m
 from core.vehicle import Region, Vehicle
+from core.turn_minimum import REFINE_INTERVALS, refine_minimum
 from core.wheel import WheelGeometry, sensor_axes, sensor_positions
 
 #: links per work chunk: bounds memory (about 2 kB per link in flight) and sets cancel latency
@@ -63,12 +64,19 @@ class Scene:
         return tuple(w.id for w in self.wheels)
 
     @property
+    def wavenumber(self) -> float:
+        """Free-space wavenumber 2 pi / lambda, rad/m."""
+        return 2.0 * np.pi / self.wavelength_m
+
+    @property
     def score_method(self) -> str:
         """How the worst case over a turn is taken (statistic and angle method), for every output."""
         n = len(self.angles_rad)
+        floor = f"nulls held at {self.null_floor_db:g} dB below the rays' matched power sum"
         if self.worst_percentile > 0:
-            return f"{self.worst_percentile:g}th percentile of the level over {n} sampled angles"
-        return f"minimum of the level over {n} sampled angles"
+            return f"{self.worst_percentile:g}th percentile of the level over {n} sampled angles; {floor}"
+        return (f"minimum over the continuous turn: {n} sampled angles, the {REFINE_INTERVALS} lowest intervals "
+                f"refined by complex-field interpolation (core.turn_minimum); {floor}")
 
     @classmethod
     def from_vehicle(cls, v: Vehicle, wheel_model: str | None = None, ground_reflection: bool | None = None) -> "Scene":
@@ -151,19 +159,53 @@ class Scene:
         )
 
 
-def spot_levels(scene: Scene, spots, axes=None) -> np.ndarray:
-    """Received level, dBm, for spots (S, 3) m and receiver axes (S, 3): array (S, W, A)."""
+def _spot_inputs(scene: Scene, spots, axes):
     spots = np.atleast_2d(np.asarray(spots, float))
     if axes is None:
         a = np.asarray(scene.vehicle.radio.receiver.axis, float)
         axes = np.broadcast_to(a / np.linalg.norm(a), spots.shape)
     axes = np.atleast_2d(np.asarray(axes, float))
     axes = axes / np.linalg.norm(axes, axis=1, keepdims=True)
-    out = np.empty((len(spots), len(scene.wheels), len(scene.angles_rad)))
     bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2]) if scene.ground_reflection else None
-    for wi in range(len(scene.wheels)):
-        out[:, wi, :] = link_levels_for_wheel(scene, wi, spots, axes, bits)
-    return out
+    return spots, axes, bits
+
+
+def spot_levels(scene: Scene, spots, axes=None) -> np.ndarray:
+    """Received level, dBm, for spots (S, 3) m and receiver axes (S, 3) at the sampled angles: (S, W, A)."""
+    return spot_turns(scene, spots, axes, refine=False).levels_dbm
+
+
+@dataclass(frozen=True)
+class TurnLevels:
+    """Levels of S spots from W wheels over the turn (dBm) and each (spot, wheel)'s worst case.
+
+    ``worst_dbm`` / ``worst_angle_rad`` (S, W): the minimum over the continuous turn
+    (core.turn_minimum) when refined; otherwise None.
+    """
+
+    levels_dbm: np.ndarray  # (S, W, A) at the sampled angles
+    worst_dbm: np.ndarray | None = None  # (S, W)
+    worst_angle_rad: np.ndarray | None = None  # (S, W)
+
+
+def spot_turns(scene: Scene, spots, axes=None, refine: bool = True) -> TurnLevels:
+    """Levels over the turn for spots (S, 3) m with receiver axes (S, 3), and (with ``refine`` and
+    no percentile score) the minimum of each (spot, wheel) over the continuous turn."""
+    spots, axes, bits = _spot_inputs(scene, spots, axes)
+    S, W, A = len(spots), len(scene.wheels), len(scene.angles_rad)
+    refine = refine and scene.worst_percentile <= 0
+    re = np.empty((S, W, A))
+    im = np.empty((S, W, A))
+    floor2 = np.empty((S, W, A))
+    for wi in range(W):
+        f = turn_field(scene, wi, spots, axes, bits)
+        re[:, wi], im[:, wi], floor2[:, wi] = f.re, f.im, f.floor2
+    field = LinkField(re, im, floor2)
+    levels = level_dbm(scene, field.power())
+    if not refine:
+        return TurnLevels(levels)
+    p, th = refine_minimum(scene, spots, axes, field, bits)
+    return TurnLevels(levels, level_dbm(scene, p), th)
 
 
 def vehicle_spot_arrays(v: Vehicle) -> tuple[list[str], np.ndarray, np.ndarray]:
@@ -212,16 +254,25 @@ def worst_case(levels: np.ndarray, percentile: float) -> tuple[np.ndarray, np.nd
     return value, np.argmax(below, axis=-1)
 
 
-def score_levels(scene: Scene, levels: np.ndarray, names=None, positions=None) -> SpotScores:
-    """Turn levels (S, W, A) into worst cases, margins and worst wheels."""
-    worst, widx = worst_case(levels, scene.worst_percentile)
+def score_levels(scene: Scene, levels, names=None, positions=None) -> SpotScores:
+    """Turn levels into worst cases, margins and worst wheels.
+
+    ``levels``: a :class:`TurnLevels` (its refined worst cases are used when present) or a plain
+    (S, W, A) array of levels at the sampled angles, dBm (worst case = the scene's statistic of the
+    samples)."""
+    turns = levels if isinstance(levels, TurnLevels) else TurnLevels(np.asarray(levels, float))
+    levels = turns.levels_dbm
+    if turns.worst_dbm is not None:
+        worst, worst_angle = turns.worst_dbm, np.degrees(turns.worst_angle_rad)
+    else:
+        worst, widx = worst_case(levels, scene.worst_percentile)
+        worst_angle = np.degrees(scene.angles_rad)[widx]
     med = np.median(levels, axis=2)
     margin_w = worst - scene.sensitivity_dbm - scene.required_margin_db
     worst_wheel = np.argmin(margin_w, axis=1)
     margin = margin_w[np.arange(len(levels)), worst_wheel]
     s = len(levels)
     positions = np.zeros((s, 3)) if positions is None else np.asarray(positions, float)
-    d_min = np.linalg.norm(positions[:, None, None, :] - scene.sensor_pos[None], axis=-1).min(axis=(1, 2))
     return SpotScores(
         names=tuple(names) if names is not None else tuple(f"spot {i + 1}" for i in range(s)),
         positions=positions,
@@ -229,20 +280,37 @@ def score_levels(scene: Scene, levels: np.ndarray, names=None, positions=None) -
         angles_deg=np.degrees(scene.angles_rad),
         levels_dbm=levels,
         worst_dbm=worst,
-        worst_angle_deg=np.degrees(scene.angles_rad)[widx],
+        worst_angle_deg=worst_angle,
         median_dbm=med,
         margin_db=margin,
         worst_wheel=worst_wheel,
         sensitivity_dbm=scene.sensitivity_dbm,
         required_margin_db=scene.required_margin_db,
-        near_field=d_min < float(near_field_limit_m(scene.freq_hz)),
+        near_field=near_field_flags(scene, positions),
     )
+
+
+def near_field_flags(scene: Scene, positions: np.ndarray) -> np.ndarray:
+    """(S,) True where the link model is indicative only: a sensor comes nearer than lambda / 2 pi
+    (core.propagation.near_field_limit_m), or, with the installed wheel patterns, the spot lies
+    within the radius below which the pattern's near-field term is held
+    (core.wheel_patterns.NEAR_MIN_RADIUS_M) of a wheel centre."""
+    positions = np.atleast_2d(np.asarray(positions, float))
+    d_min = np.linalg.norm(positions[:, None, None, :] - scene.sensor_pos[None], axis=-1).min(axis=(1, 2))
+    near = d_min < float(near_field_limit_m(scene.freq_hz))
+    if scene.sensor_kind == "table":
+        from core.wheel_patterns import NEAR_MIN_RADIUS_M
+
+        centres = np.array([w.centre for w in scene.wheels], float)
+        d_c = np.linalg.norm(positions[:, None, :] - centres[None], axis=-1).min(axis=1)
+        near |= d_c < NEAR_MIN_RADIUS_M
+    return near
 
 
 def score_spots(scene: Scene, positions, axes=None, names=None) -> SpotScores:
     """Levels and scores for spots at positions (S, 3) m (the single-spot path when S = 1)."""
     positions = np.atleast_2d(np.asarray(positions, float))
-    return score_levels(scene, spot_levels(scene, positions, axes), names, positions)
+    return score_levels(scene, spot_turns(scene, positions, axes), names, positions)
 
 
 def score_vehicle(v: Vehicle, scene: Scene | None = None) -> SpotScores:
@@ -337,7 +405,7 @@ def heatmap(
             raise Cancelled()
         sl = slice(start, min(total, start + per_chunk))
         ax = None if axis is None else axis[: sl.stop - sl.start]
-        sc = score_levels(scene, spot_levels(scene, pts[sl], ax), positions=pts[sl])
+        sc = score_levels(scene, spot_turns(scene, pts[sl], ax), positions=pts[sl])
         m_flat[sl] = sc.margin_db
         w_flat[sl] = sc.worst_wheel
         if progress is not None:
@@ -348,6 +416,7 @@ def heatmap(
 
 
 __all__ = [
-    "Scene", "SpotScores", "Heatmap", "Cancelled", "spot_levels", "score_levels", "score_spots",
+    "Scene", "SpotScores", "TurnLevels", "Heatmap", "Cancelled", "spot_levels", "spot_turns", "score_levels",
+    "score_spots", "near_field_flags",
     "score_vehicle", "heatmap", "grid_for_region", "worst_case", "vehicle_spot_arrays", "SHORT_DIPOLE_GAIN_DBI",
 ]
