@@ -45,7 +45,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from core.geometry import Hull, start_bits
+from core.geometry import Hull, PolygonEdges, start_bits
 
 #: engineering default: the least distance from a receiver position to any hull surface, m
 MOUNTING_CLEARANCE_M = 0.020
@@ -57,7 +57,7 @@ OUTSIDE_BODY = "outside_body"
 STATUSES = (INSIDE, NEAR_SURFACE, IN_WHEELHOUSE, OUTSIDE_BODY)
 
 #: short labels for table columns
-FLAG_LABELS = {INSIDE: "", NEAR_SURFACE: "near panel", IN_WHEELHOUSE: "in wheelhouse", OUTSIDE_BODY: "OUTSIDE"}
+FLAG_LABELS = {INSIDE: "", NEAR_SURFACE: "near panel", IN_WHEELHOUSE: "in wheelhouse", OUTSIDE_BODY: "OUTSIDE BODY"}
 
 #: (points x edges) elements per block of the distance computation
 _BLOCK = 1 << 16
@@ -73,17 +73,16 @@ class _Outline:
     normal: np.ndarray  # (E, 2) outward
 
 
-def _outline(poly: np.ndarray) -> _Outline:
-    p0 = np.asarray(poly, float)
-    p1 = np.roll(p0, -1, axis=0)
-    e = p1 - p0
-    keep = np.einsum("ij,ij->i", e, e) > 0.0
-    p0, e = p0[keep], e[keep]
+def _outline(ed: PolygonEdges) -> _Outline:
+    """The edges of an outline prepared by core.geometry.polygon_edges, with outward normals."""
+    len2 = np.einsum("ij,ij->i", ed.e, ed.e)
+    keep = len2 > 0.0
+    p0, e = ed.p0[keep], ed.e[keep]
     area2 = float(np.sum(p0[:, 0] * (p0[:, 1] + e[:, 1]) - (p0[:, 0] + e[:, 0]) * p0[:, 1]))
     # counter-clockwise ring (area > 0): the outward normal of edge e is (e_v, -e_u)
     n = np.column_stack([e[:, 1], -e[:, 0]]) * (1.0 if area2 > 0 else -1.0)
-    n /= np.linalg.norm(n, axis=1, keepdims=True)
-    return _Outline(p0, e, np.einsum("ij,ij->i", e, e), n)
+    n /= np.sqrt(len2[keep])[:, None]
+    return _Outline(p0, e, len2[keep], n)
 
 
 def _edge_distance(ol: _Outline, u: np.ndarray, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -287,8 +286,8 @@ def classify(body, positions, wheel_ids=None, clearance_m: float = MOUNTING_CLEA
     arch = ((bits[:, None] >> (2 + 2 * h_idx)) & 1) != 0
     lateral = ((bits[:, None] >> (3 + 2 * h_idx)) & 1) != 0
     in_wh = arch & lateral
-    top = _outline(hull.top)
-    side = _outline(hull.side)
+    top = _outline(hull.top_edges)
+    side = _outline(hull.side_edges)
     d_top, k_top = _edge_distance(top, x, y)
     d_side, k_side = _edge_distance(side, x, z)
     # wheelhouses: distance to A_h x Y_h from outside, and depth inside it

@@ -306,18 +306,6 @@ class Heatmap:
         ok = self.computed
         return int((self.margin_db[ok] >= threshold_db).sum()), int(ok.sum())
 
-    def computed_at(self, u, v) -> np.ndarray:
-        """True where the point (u, v) m of the view lies in (nearest to the centre of) a computed cell."""
-        u = np.asarray(u, float)
-        v = np.asarray(v, float)
-        du = (self.u_m[-1] - self.u_m[0]) / (len(self.u_m) - 1) if len(self.u_m) > 1 else self.step_m
-        dv = (self.v_m[-1] - self.v_m[0]) / (len(self.v_m) - 1) if len(self.v_m) > 1 else self.step_m
-        iu = np.rint((u - self.u_m[0]) / du).astype(int)
-        iv = np.rint((v - self.v_m[0]) / dv).astype(int)
-        inside = (iu >= 0) & (iu < len(self.u_m)) & (iv >= 0) & (iv < len(self.v_m))
-        ok = self.computed
-        return inside & ok[np.clip(iv, 0, len(self.v_m) - 1), np.clip(iu, 0, len(self.u_m) - 1)]
-
     def best_cells(self, n: int = 10) -> list[tuple[float, float, float, float, int]]:
         """The n best computed cells as (x, y, z, margin_db, worst_wheel), best first."""
         pts = self.points().reshape(-1, 3)
