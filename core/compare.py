@@ -16,7 +16,8 @@ best spot: the spot, present on all bodies, with the highest minimum margin.
 
 :func:`search_common_position` searches the shared mounting region, expressed relative to a
 landmark, for the position whose smallest margin over all bodies is largest (a grid search with
-one local refinement).
+one local refinement). Only positions inside every body, outside the wheelhouses, are scored
+(core.placement.candidate_mask).
 
 All lengths in m, margins in dB. No Qt.
 """
@@ -30,6 +31,7 @@ import numpy as np
 from shapely.geometry import Polygon
 from shapely.ops import unary_union
 
+from core.placement import candidate_mask
 from core.scoring import Scene, score_spots
 from core.vehicle import Spot, Vehicle
 
@@ -184,7 +186,8 @@ class CommonSearch:
     step_m : grid spacing of the coarse search, m
     shared_outline : (N, 2) outline of the shared region, (x - landmark x, y), m
     offsets_m : (P, 2) searched points (dx from the landmark, y), m
-    margin_db : (B, P) margin of every point on every body, dB
+    margin_db : (B, P) margin of every point on every body, dB; nan where the point is not a candidate
+        on that body (outside the body or inside a wheelhouse: not scored, never the best)
     best_offset_m : (dx, y) of the best position (after refinement), m
     best_positions_m : (B, 3) the best position resolved on each body, m
     best_margins_db : (B,) margin there per body, dB
@@ -207,7 +210,8 @@ class CommonSearch:
     limiting_body: int
 
     def min_margin_db(self) -> np.ndarray:
-        """(P,) smallest margin over the bodies at each searched point, dB."""
+        """(P,) smallest margin over the bodies at each searched point, dB; nan where the point is not
+        a candidate position on some body (outside it or in a wheelhouse; core.placement)."""
         return self.margin_db.min(axis=0)
 
     def as_spot(self, name: str = "shared best position") -> Spot | None:
@@ -252,9 +256,11 @@ def shared_region(vehicles: list[Vehicle], landmark: str = "rear_axle") -> Polyg
 
 
 def _heights(v: Vehicle, landmark: str, offsets: np.ndarray, above_floor: float | None) -> np.ndarray:
-    """z per point on body v: floor + above_floor, or the height of the first top region containing it."""
+    """z per point on body v: the floor under the point + above_floor (Vehicle.floor_height_at, the
+    rule of ``z_from = "floor"`` spots), or the height of the first top region containing it."""
     if above_floor is not None:
-        return np.full(len(offsets), v.floor_height() + above_floor)
+        x0 = v.landmark_x(landmark)
+        return np.array([v.floor_height_at(float(dx) + x0) + above_floor for dx in offsets[:, 0]])
     from shapely import contains_xy
 
     z = np.full(len(offsets), np.nan)
@@ -267,17 +273,32 @@ def _heights(v: Vehicle, landmark: str, offsets: np.ndarray, above_floor: float 
 
 
 def _score_offsets(vehicles, scenes, landmark, offsets, above_floor):
-    """(B, P) margins, (B, P) worst-wheel ids and (B, P, 3) positions of offset points."""
+    """(B, P) margins, (B, P) worst-wheel ids and (B, P, 3) positions of offset points.
+
+    A point that is not a candidate on a body (outside it or in a wheelhouse: core.placement) is not
+    scored there: its margin is nan and its wheel ""."""
     margins, wheels, positions = [], [], []
     for v, sc in zip(vehicles, scenes):
         x0 = v.landmark_x(landmark)
         z = _heights(v, landmark, offsets, above_floor)
         p = np.column_stack([offsets[:, 0] + x0, offsets[:, 1], z])
-        s = score_spots(sc, p)
-        margins.append(s.margin_db)
-        wheels.append([s.wheel_ids[w] for w in s.worst_wheel])
+        ok = candidate_mask(sc, p[:, 0], p[:, 1], p[:, 2])
+        m = np.full(len(p), np.nan)
+        w = [""] * len(p)
+        if ok.any():
+            s = score_spots(sc, p[ok])
+            m[ok] = s.margin_db
+            for k, i in enumerate(np.flatnonzero(ok)):
+                w[i] = s.wheel_ids[s.worst_wheel[k]]
+        margins.append(m)
+        wheels.append(w)
         positions.append(p)
-    return np.array(margins), wheels, np.array(positions)
+    return np.array(margins).reshape(len(vehicles), len(offsets)), wheels, np.array(positions)
+
+
+def _smallest_over_bodies(margins: np.ndarray) -> np.ndarray:
+    """(P,) smallest margin over the bodies; -inf where the point is not a candidate on some body."""
+    return np.where(np.isnan(margins), -np.inf, margins).min(axis=0)
 
 
 def search_common_position(
@@ -322,7 +343,10 @@ def search_common_position(
     margins, _, _ = _score_offsets(vehicles, scenes, landmark, offsets, height_above_floor_m)
     if progress:
         progress(len(vehicles), total)
-    mins = margins.min(axis=0)
+    mins = _smallest_over_bodies(margins)
+    if not np.isfinite(mins).any():
+        raise NoSharedRegion("no point of the shared mounting region lies inside every body (outside the "
+                             "wheelhouses) at the search height")
     best = offsets[int(np.argmax(mins))]
     cand = best[None, :]
     if refine:
@@ -334,7 +358,7 @@ def search_common_position(
     cm, cw, cp = _score_offsets(vehicles, scenes, landmark, cand, height_above_floor_m)
     if progress:
         progress(total, total)
-    k = int(np.argmax(cm.min(axis=0)))
+    k = int(np.argmax(_smallest_over_bodies(cm)))  # the coarse best (index 0) is a candidate on every body
     per_body = cm[:, k]
     lim = int(np.argmin(per_body))
     return CommonSearch(

@@ -321,18 +321,34 @@ def score_vehicle(v: Vehicle, scene: Scene | None = None) -> SpotScores:
 
 
 # ----- heatmaps ------------------------------------------------------------------------
+#: states of a heatmap cell (``Heatmap.cell_state``)
+CELL_OUTSIDE_REGION = 0  # not in the mounting region: not part of the map
+CELL_COMPUTED = 1  # a candidate position: computed, coloured and counted
+CELL_OUTSIDE_BODY = 2  # in the region but outside the body: not computed (core.placement)
+CELL_IN_WHEELHOUSE = 3  # in the region but inside a wheelhouse clearance: not computed
+
+#: what the excluded states are called in outputs
+EXCLUDED_CELL_NAMES = {CELL_OUTSIDE_BODY: "outside the body", CELL_IN_WHEELHOUSE: "inside a wheelhouse"}
+
+
 @dataclass(frozen=True)
 class Heatmap:
-    """Margin over a grid: view 'top' (u = x, v = y at height ``fixed_m``) or 'side' (u = x, v = z at y = fixed_m)."""
+    """Margin over a grid: view 'top' (u = x, v = y at height ``fixed_m``) or 'side' (u = x, v = z at y = fixed_m).
+
+    Only candidate positions (inside the body, outside the wheelhouses: core.placement) are
+    computed; the margin is nan everywhere else, and ``cell_state`` says why (CELL_* codes).
+    "% meeting the margin" is over the computed cells (:meth:`meeting`); best cells are computed ones.
+    """
 
     view: str
     fixed_m: float
     u_m: np.ndarray  # (nu,) cell centres
     v_m: np.ndarray  # (nv,)
     step_m: float
-    margin_db: np.ndarray  # (nv, nu), nan outside the region
-    worst_wheel: np.ndarray  # (nv, nu) int, -1 outside
+    margin_db: np.ndarray  # (nv, nu), nan where not computed (outside the region, outside the body, in a wheelhouse)
+    worst_wheel: np.ndarray  # (nv, nu) int, -1 where not computed
     complete: bool = True
+    cell_state: np.ndarray | None = None  # (nv, nu) int8 CELL_* codes; None: every finite cell was computed
 
     def points(self) -> np.ndarray:
         """(nv, nu, 3) positions of the cells, m."""
@@ -340,11 +356,29 @@ class Heatmap:
         ff = np.full_like(uu, self.fixed_m)
         return np.stack([uu, vv, ff] if self.view == "top" else [uu, ff, vv], axis=-1)
 
+    @property
+    def computed(self) -> np.ndarray:
+        """(nv, nu) True where the cell was computed (a candidate position inside the region)."""
+        if self.cell_state is None:
+            return np.isfinite(self.margin_db)
+        return self.cell_state == CELL_COMPUTED
+
+    def excluded(self) -> dict[str, int]:
+        """Cells of the region left out, by reason ("outside the body", "inside a wheelhouse")."""
+        if self.cell_state is None:
+            return {name: 0 for name in EXCLUDED_CELL_NAMES.values()}
+        return {name: int((self.cell_state == code).sum()) for code, name in EXCLUDED_CELL_NAMES.items()}
+
+    def meeting(self, threshold_db: float = 0.0) -> tuple[int, int]:
+        """(cells with margin >= threshold, computed cells): the share meeting the margin is over computed cells."""
+        ok = self.computed
+        return int((self.margin_db[ok] >= threshold_db).sum()), int(ok.sum())
+
     def best_cells(self, n: int = 10) -> list[tuple[float, float, float, float, int]]:
-        """The n best cells as (x, y, z, margin_db, worst_wheel), best first."""
+        """The n best computed cells as (x, y, z, margin_db, worst_wheel), best first."""
         pts = self.points().reshape(-1, 3)
         m = self.margin_db.reshape(-1)
-        ok = np.nonzero(~np.isnan(m))[0]
+        ok = np.nonzero(self.computed.reshape(-1) & ~np.isnan(m))[0]
         best = ok[np.argsort(-m[ok], kind="stable")][:n]
         ww = self.worst_wheel.reshape(-1)
         return [(*pts[i], float(m[i]), int(ww[i])) for i in best]
@@ -354,8 +388,20 @@ class Cancelled(Exception):
     """Raised inside a long computation when its cancel flag was set."""
 
 
-def grid_for_region(region: Region, step_m: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
-    """Cell centres covering the region's bounding box, a mask of cells inside it, and the fixed coordinate."""
+def _cell_points(view: str, u: np.ndarray, v: np.ndarray, fixed: float) -> np.ndarray:
+    """(nv, nu, 3) positions of the grid's cell centres, m."""
+    uu, vv = np.meshgrid(u, v)
+    ff = np.full_like(uu, fixed)
+    return np.stack([uu, vv, ff] if view == "top" else [uu, ff, vv], axis=-1)
+
+
+def grid_for_region(
+    region: Region, step_m: float, hull: Hull | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
+    """Cell centres covering the region's bounding box, a mask of the cells to compute, and the fixed coordinate.
+
+    The mask holds the cells inside the region; with ``hull`` given, only those that are candidate
+    positions as well (inside the body, outside the wheelhouses: core.placement.candidate_mask)."""
     from core.geometry import points_in_polygon
 
     poly = np.asarray(region.outline, float)
@@ -366,8 +412,13 @@ def grid_for_region(region: Region, step_m: float) -> tuple[np.ndarray, np.ndarr
     v = lo[1] + (np.arange(nv) + 0.5) * (hi[1] - lo[1]) / nv
     uu, vv = np.meshgrid(u, v)
     mask = points_in_polygon(uu, vv, poly)
-    fixed = region.height_m if region.view == "top" else region.lateral_m
-    return u, v, mask, float(fixed)
+    fixed = float(region.height_m if region.view == "top" else region.lateral_m)
+    if hull is not None:
+        from core.placement import candidate_mask
+
+        pts = _cell_points(region.view, u, v, fixed)
+        mask &= candidate_mask(hull, pts[..., 0], pts[..., 1], pts[..., 2])
+    return u, v, mask, fixed
 
 
 def heatmap(
@@ -381,18 +432,27 @@ def heatmap(
 ) -> Heatmap:
     """Spot margin over a mounting region's grid (cell spacing ``step_m``, m).
 
-    Work is split into chunks of about ``chunk_links`` links; ``progress(done, total)`` is called
-    after each chunk (spots), and when ``cancel()`` returns True the computation raises Cancelled
-    before the next chunk.
+    Only the cells that are candidate receiver positions are computed (inside the body, outside
+    the wheelhouses: core.placement); the others of the region are nan with their reason in
+    ``Heatmap.cell_state``. Work is split into chunks of about ``chunk_links`` links;
+    ``progress(done, total)`` is called after each chunk (computed cells), and when ``cancel()``
+    returns True the computation raises Cancelled before the next chunk.
     """
     if not step_m > 0:
         raise ValueError("step_m must be positive")
-    u, v, mask, fixed = grid_for_region(region, step_m)
-    uu, vv = np.meshgrid(u, v)
-    ff = np.full_like(uu, fixed)
-    pts = np.stack([uu, vv, ff] if region.view == "top" else [uu, ff, vv], axis=-1)[mask]
-    margin = np.full(uu.shape, np.nan)
-    worst = np.full(uu.shape, -1, int)
+    from core.placement import EXCLUDED_IN_WHEELHOUSE, EXCLUDED_OUTSIDE_BODY, exclusion
+
+    u, v, in_region, fixed = grid_for_region(region, step_m)
+    grid = _cell_points(region.view, u, v, fixed)
+    why = exclusion(scene.hull, grid[..., 0], grid[..., 1], grid[..., 2])
+    state = np.full(in_region.shape, CELL_OUTSIDE_REGION, np.int8)
+    state[in_region & (why == EXCLUDED_OUTSIDE_BODY)] = CELL_OUTSIDE_BODY
+    state[in_region & (why == EXCLUDED_IN_WHEELHOUSE)] = CELL_IN_WHEELHOUSE
+    mask = in_region & (why == 0)
+    state[mask] = CELL_COMPUTED
+    pts = grid[mask]
+    margin = np.full(in_region.shape, np.nan)
+    worst = np.full(in_region.shape, -1, int)
     m_flat = np.full(len(pts), np.nan)
     w_flat = np.full(len(pts), -1, int)
     links_per_spot = len(scene.wheels) * len(scene.angles_rad)
@@ -412,7 +472,7 @@ def heatmap(
             progress(sl.stop, total)
     margin[mask] = m_flat
     worst[mask] = w_flat
-    return Heatmap(region.view, fixed, u, v, step_m, margin, worst)
+    return Heatmap(region.view, fixed, u, v, step_m, margin, worst, cell_state=state)
 
 
 __all__ = [

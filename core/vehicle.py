@@ -273,6 +273,17 @@ class Vehicle(_Strict):
         side = np.asarray(self.body.side_outline)
         return float(_lower_envelope(side, x_mid))
 
+    def floor_height_at(self, x: float) -> float:
+        """Floor height under x, m: the body's floor height (:meth:`floor_height`), or the underside of
+        the side outline at x where that is higher (a pickup bed, a raised load floor, a kicked-up
+        overhang: a floor never lies below the body's underside). Beyond the side outline's x range,
+        the floor height. ``z_from = "floor"`` spots are measured from here."""
+        base = self.floor_height()
+        side = np.asarray(self.body.side_outline)
+        if not side[:, 0].min() <= x <= side[:, 0].max():
+            return base
+        return max(base, float(_lower_envelope(side, x)))
+
     def landmark_x(self, name: str) -> float:
         top = np.asarray(self.body.top_outline)
         axles = self.axle_xs()
@@ -287,7 +298,7 @@ class Vehicle(_Strict):
     def resolve_spot(self, spot: Spot) -> tuple[float, float, float]:
         """The spot's position in this body's vehicle axes, m."""
         x = spot.x_m + self.landmark_x(spot.x_from)
-        z = spot.z_m + (self.floor_height() if spot.z_from == "floor" else 0.0)
+        z = spot.z_m + (self.floor_height_at(x) if spot.z_from == "floor" else 0.0)
         return (x, spot.y_m, z)
 
     def spot_axis(self, spot: Spot) -> np.ndarray:

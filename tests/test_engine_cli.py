@@ -20,7 +20,9 @@ from core.vehicle import load_vehicle
 from engine_vehicles import REPO, SEDAN_PATH, sedan
 
 WHEEL_KEYS = {"wheel", "worst_dbm", "worst_angle_deg", "median_dbm", "levels_dbm"}
-SPOT_KEYS = {"rank", "name", "position_m", "margin_db", "worst_wheel", "worst_angle_deg", "near_field", "wheels"}
+SPOT_KEYS = {"rank", "name", "position_m", "margin_db", "worst_wheel", "worst_angle_deg", "near_field", "placement",
+             "wheels"}
+PLACEMENT_KEYS = {"status", "distance_to_surface_m", "wheelhouse_of", "message"}
 TOP_KEYS = {"vehicle", "body_style", "frequency_hz", "sensitivity_dbm", "required_margin_db", "angles_deg", "spots"}
 
 
@@ -130,7 +132,7 @@ def test_cli_json_doc_describes_every_key(capsys):
     # docs/cli-json.md documents the rank document: every key the command prints has a table row.
     text = (REPO / "docs" / "cli-json.md").read_text(encoding="utf-8")
     doc = _rank_json(capsys, "--angles", "8")
-    keys = set(doc) | set(doc["spots"][0]) | set(doc["spots"][0]["wheels"][0])
-    assert keys == TOP_KEYS | SPOT_KEYS | WHEEL_KEYS
+    keys = set(doc) | set(doc["spots"][0]) | set(doc["spots"][0]["wheels"][0]) | set(doc["spots"][0]["placement"])
+    assert keys == TOP_KEYS | SPOT_KEYS | WHEEL_KEYS | PLACEMENT_KEYS
     missing = [k for k in sorted(keys) if f"| `{k}` |" not in text]
     assert not missing, missing

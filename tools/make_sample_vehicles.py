@@ -46,7 +46,8 @@ def spot(name, x, y, z, axis=None):
 #: Spots placed relative to landmarks every body has (the axles and the floor), so that the same
 #: spot exists on all five bodies and a platform comparison is meaningful (see
 #: docs/vehicle-format.md, "Same spot on several bodies"). Each body resolves them to its own
-#: coordinates: x = offset + the landmark's x, z = offset + the body's floor height.
+#: coordinates: x = offset + the landmark's x, z = offset + the floor under that x (the body's floor
+#: height, or the side outline's underside where that is higher, e.g. over the pickup's bed).
 PLATFORM_SPOTS = [
     {"name": "platform console", "x_from": "rear_axle", "x_m": 1.40, "y_m": 0.0, "z_from": "floor", "z_m": 0.35},
     {"name": "platform dash", "x_from": "front_axle", "x_m": -0.80, "y_m": 0.0, "z_from": "floor", "z_m": 0.55},

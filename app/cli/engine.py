@@ -53,21 +53,29 @@ def _cmd_rank(args) -> int:
     if not v.spots:
         print("error: the file has no receiver spots; add some with --spot NAME=X,Y,Z", file=sys.stderr)
         return 1
+    from core.placement import classify
+
     scene = Scene.from_vehicle(v)
     scores = score_vehicle(v, scene)
+    placement = classify(scene, scores.positions)
     if args.json:
-        print(json.dumps(rank_document(v, scores), indent=1))
+        print(json.dumps(rank_document(v, scores, placement), indent=1))
         return 0
     print(f"{v.name} ({v.body_style}), {v.radio.frequency_hz / 1e6:.2f} MHz, sensitivity "
           f"{scores.sensitivity_dbm:.1f} dBm, required margin {scores.required_margin_db:.1f} dB, "
           f"{len(scores.angles_deg)} angles per turn, wheel model: {scene.wheel_model_label}")
-    print(f"{'rank':>4}  {'spot':<24} {'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}  {'worst wheel':<11} {'at deg':>6}")
+    print(f"{'rank':>4}  {'spot':<24} {'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}  {'worst wheel':<11} "
+          f"{'at deg':>6}  placement")
     for rank, i in enumerate(scores.order(), 1):
         x, y, z = scores.positions[i]
         w = scores.worst_wheel[i]
-        flag = "  (near field)" if scores.near_field[i] else ""
+        flag = placement.flag(i) or "ok"
+        if scores.near_field[i]:
+            flag += ", near field"
         print(f"{rank:>4}  {scores.names[i]:<24} {x:7.3f} {y:7.3f} {z:7.3f} {scores.margin_db[i]:10.1f}  "
-              f"{scores.wheel_ids[w]:<11} {scores.worst_angle_deg[i, w]:6.0f}{flag}")
+              f"{scores.wheel_ids[w]:<11} {scores.worst_angle_deg[i, w]:6.0f}  {flag}")
+    for i, msg in placement.messages():
+        print(f"warning: spots[{i}] {scores.names[i]!r}: {msg}")
     print("Results are approximate: confirm by detailed simulation and vehicle measurement.")
     return 0
 
@@ -110,10 +118,12 @@ def _cmd_heatmap(args) -> int:
     show = args.progress or (sys.stderr.isatty() and not args.quiet)
     hm = heatmap(scene, region, args.step, progress=_Progress(show))
     fixed = "z" if hm.view == "top" else "y"
-    cells = int(np.isfinite(hm.margin_db).sum())
-    ok = int((hm.margin_db >= 0).sum())
+    ok, cells = hm.meeting(0.0)
+    excluded = ", ".join(f"{n} {why}" for why, n in hm.excluded().items() if n)
     print(f"{v.name}: {region.name!r}, {hm.view} view at {fixed} = {hm.fixed_m:.3f} m, step {args.step * 1000:.0f} mm, "
-          f"{cells} cells, {ok} with margin >= 0 dB ({100.0 * ok / max(cells, 1):.0f} %)")
+          f"{cells} cells computed, {ok} with margin >= 0 dB ({100.0 * ok / max(cells, 1):.0f} % of the computed cells)")
+    if excluded:
+        print(f"not computed (not a receiver position): {excluded}")
     print(f"{'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}  worst wheel")
     for x, y, z, m, w in hm.best_cells(args.top):
         print(f"{x:7.3f} {y:7.3f} {z:7.3f} {m:10.1f}  {scene.wheel_ids[w]}")

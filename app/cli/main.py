@@ -15,6 +15,12 @@ from core.vehicle import VehicleFileError, json_schema, load_vehicle
 
 
 def _cmd_check(args) -> int:
+    """One line per file, then one ``warn`` line per spot that is not a clean candidate position
+    (core.placement: outside the body, in a wheelhouse, or nearer a panel than the mounting
+    clearance). Warnings leave the exit status alone: the file is valid, the spot is the user's call."""
+    from core.placement import classify
+    from core.scoring import Scene, vehicle_spot_arrays
+
     bad = 0
     for f in args.files:
         try:
@@ -27,6 +33,11 @@ def _cmd_check(args) -> int:
             f"ok   {f}: {v.name} ({v.body_style}), {len(v.wheels)} wheels, {len(v.spots)} spots, "
             f"{len(v.zones)} zones, {v.radio.frequency_hz / 1e6:.2f} MHz"
         )
+        if v.spots:
+            names, pos, _ = vehicle_spot_arrays(v)
+            placement = classify(Scene.from_vehicle(v), pos)
+            for i, msg in placement.messages():
+                print(f"warn {f}: spots[{i}] {names[i]!r}: {msg}")
     return 1 if bad else 0
 
 
@@ -51,7 +62,8 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("file", nargs="?", default=None, help="vehicle file to open (default: the sample sedan)")
     g.add_argument("--screenshot", metavar="OUT.png", help="render the main window offscreen to a PNG and exit")
     g.set_defaults(func=_cmd_gui)
-    c = sub.add_parser("check", help="validate vehicle files; one line per file; exit 1 if any is bad")
+    c = sub.add_parser("check", help="validate vehicle files; one line per file, a warning line per spot outside "
+                                     "the body, in a wheelhouse or on a panel; exit 1 if any file is bad")
     c.add_argument("files", nargs="+")
     c.set_defaults(func=_cmd_check)
     s = sub.add_parser("schema", help="print the JSON Schema of the vehicle file format")

@@ -19,7 +19,7 @@ def _cmd_report(args) -> int:
         return 1
     d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step)
     s = d.scores
-    b = int(s.order()[0])
+    b = d.best_index()  # the best-ranked spot that is a receiver position (core.placement)
     print(f"wrote {args.output}: {n} pages; {d.vehicle.name}; best spot '{s.names[b]}' at {s.margin_db[b]:+.1f} dB "
           f"(worst wheel {s.wheel_ids[s.worst_wheel[b]]})")
     for p in (args.csv, args.json):

@@ -24,11 +24,16 @@ from PySide6.QtWidgets import (
 from app.gui import edits
 from app.gui.document import Document
 from app.gui.look import BODY_COLOUR, material_colour
+from core.placement import INSIDE, NEAR_SURFACE, classify
 
 SPOT_BRUSH = pg.mkBrush(255, 255, 255, 220)
 SPOT_PEN = pg.mkPen(20, 20, 20, width=1.5)
 SELECTED_BRUSH = pg.mkBrush(250, 200, 40, 255)
 SELECTED_PEN = pg.mkPen(0, 0, 0, width=2.5)
+#: spots that are not a receiver position (outside the body, in a wheelhouse) and spots too near a panel
+OUTSIDE_BRUSH = pg.mkBrush(215, 30, 30, 255)
+OUTSIDE_PEN = pg.mkPen(120, 0, 0, width=2.0)
+NEAR_BRUSH = pg.mkBrush(255, 150, 40, 255)
 
 
 def _cosmetic(pen: QPen) -> QPen:
@@ -80,6 +85,7 @@ class BodyView(QWidget):
         self._sync = False  # True while the view moves its own items (no edits, no live scoring)
         self._rebuild_pending = False
         self.markers: dict[str, SpotMarker] = {}
+        self.placement: dict[str, tuple[str, str]] = {}  # spot name -> (core.placement status, warning)
         self.body_roi: pg.PolyLineROI | None = None
         self.zone_roi: pg.PolyLineROI | None = None
         self.region_roi: pg.PolyLineROI | None = None
@@ -256,6 +262,8 @@ class BodyView(QWidget):
 
     def _draw_spots(self) -> None:
         sc = self.doc.scores
+        pl = classify(self.doc.scene, sc.positions)
+        self.placement = {name: (pl.status[i], pl.message(i)) for i, name in enumerate(sc.names)}
         for i, name in enumerate(sc.names):
             m = SpotMarker(self.to_view(sc.positions[i]), size=11, symbol="o", movable=True,
                            label=str(i + 1), labelOpts={"offset": (7, -7), "color": (20, 20, 20), "anchor": (0, 1)})
@@ -263,18 +271,27 @@ class BodyView(QWidget):
             m.sigPositionChanged.connect(lambda mk, n=name: self._spot_dragging(n, mk))
             m.sigPositionChangeFinished.connect(lambda mk, n=name: self._spot_dropped(n, mk))
             m.sigClicked.connect(lambda _mk, n=name: self.doc.select(n))
-            m.setToolTip(f"receiver spot '{name}': drag to move, click to select")
             self.markers[name] = self._add(m)
         self._restyle_markers(self.doc.selected)
 
     def _restyle_markers(self, selected: str) -> None:
         for i, (name, m) in enumerate(self.markers.items()):
-            sel = name == selected
-            m.setLabel(f"{i + 1} {name}" if sel else str(i + 1),
-                       {"offset": (7, -7), "color": (0, 0, 0) if sel else (40, 40, 40), "anchor": (0, 1)})
-            m.setBrush(SELECTED_BRUSH if sel else SPOT_BRUSH)
-            m.setPen(SELECTED_PEN if sel else SPOT_PEN)
-            m.setZValue(21 if sel else 20)
+            self._style_marker(i, name, m, name == selected)
+
+    def _style_marker(self, i: int, name: str, m: SpotMarker, sel: bool) -> None:
+        """Selected: thick black ring. Outside the body or in a wheelhouse: red with '!'; near a panel: orange."""
+        status, warning = self.placement.get(name, (INSIDE, ""))
+        bad = status not in (INSIDE, NEAR_SURFACE)
+        mark = " !" if status != INSIDE else ""
+        m.setLabel(f"{i + 1}{mark} {name}" if sel else f"{i + 1}{mark}",
+                   {"offset": (7, -7), "color": (160, 0, 0) if bad else (0, 0, 0) if sel else (40, 40, 40),
+                    "anchor": (0, 1)})
+        brush = OUTSIDE_BRUSH if bad else NEAR_BRUSH if status == NEAR_SURFACE else SELECTED_BRUSH if sel else SPOT_BRUSH
+        m.setBrush(brush)
+        m.setPen(SELECTED_PEN if sel else OUTSIDE_PEN if bad else SPOT_PEN)
+        m.setZValue(21 if sel else 20)
+        tip = f"receiver spot '{name}': drag to move, click to select"
+        m.setToolTip(f"{tip}\nWarning: {warning}" if warning else tip)
 
     def _place_markers(self) -> None:
         """Move the markers to the document's spot positions (no rebuild)."""
@@ -316,6 +333,11 @@ class BodyView(QWidget):
         m = self.markers.get(name)
         if m is None:
             return
+        # the dragged spot's placement, for its marker style (one point: well under a millisecond)
+        pl = classify(self.doc.scene, sc.positions[:1])
+        if self.placement.get(name, (None,))[0] != pl.status[0] or self.placement[name][1] != pl.message(0):
+            self.placement[name] = (pl.status[0], pl.message(0))
+            self._style_marker(list(self.markers).index(name), name, m, name == self.doc.selected)
         target = self.to_view(sc.positions[0])
         cur = m.pos()
         if (cur.x(), cur.y()) != target:

@@ -40,7 +40,7 @@ def move_spot(v: Vehicle, name: str, pos: tuple[float, float, float]) -> Vehicle
     x, y, z = (float(c) for c in pos)
     d["spots"][i]["x_m"] = x - v.landmark_x(s.x_from)
     d["spots"][i]["y_m"] = y
-    d["spots"][i]["z_m"] = z - (v.floor_height() if s.z_from == "floor" else 0.0)
+    d["spots"][i]["z_m"] = z - (v.floor_height_at(x) if s.z_from == "floor" else 0.0)
     return _rebuild(d)
 
 

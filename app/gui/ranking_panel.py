@@ -28,14 +28,16 @@ from PySide6.QtWidgets import (
     QVBoxLayout,
     QWidget,
 )
-from scipy import ndimage
 
 from app.gui import edits
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
 from app.gui.look import BODY_COLOUR, margin_colormap, wheel_colour
+from app.heatmap_contour import polylines_for_plot, zero_contour
 from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
+from core.placement import INSIDE, NEAR_SURFACE, classify
+from core.scoring import EXCLUDED_CELL_NAMES
 
 KMH_PER_MPS = 3.6
 STEPS_MM = (25, 50, 100, 200)
@@ -50,16 +52,6 @@ def _plot(title: str, bottom: str, left: str, bottom_units: str | None = None, l
     p.showGrid(x=True, y=True, alpha=0.25)
     p.setMenuEnabled(False)
     return p
-
-
-def _filled_for_contour(margin_db: np.ndarray) -> np.ndarray:
-    """Margin with the cells outside the region set to their nearest inside value, so the 0 dB
-    contour follows the data and not the region's edge."""
-    bad = np.isnan(margin_db)
-    if not bad.any() or bad.all():
-        return np.nan_to_num(margin_db, nan=-1.0)
-    idx = ndimage.distance_transform_edt(bad, return_distances=False, return_indices=True)
-    return margin_db[tuple(idx)]
 
 
 class HeatmapPanel(QWidget):
@@ -104,8 +96,10 @@ class HeatmapPanel(QWidget):
         self.image = pg.ImageItem(axisOrder="col-major")
         self.image.setZValue(-10)
         self.plot.addItem(self.image)
-        self.iso = pg.IsocurveItem(level=0.0, pen=pg.mkPen(0, 0, 0, width=2))
-        self.iso.setParentItem(self.image)
+        # the 0 dB contour, drawn only between computed cells (app.heatmap_contour)
+        self.iso = pg.PlotCurveItem(pen=pg.mkPen(0, 0, 0, width=2), connect="finite")
+        self.iso.setZValue(-5)
+        self.plot.addItem(self.iso)
         self.colorbar = self.plot.getPlotItem().addColorBar(
             self.image, colorMap=margin_colormap(), values=(-20.0, 20.0), label="worst-case margin (dB)",
             interactive=False, width=14,
@@ -180,12 +174,14 @@ class HeatmapPanel(QWidget):
         self.heatmapReady.emit(hm)
 
     def _summary(self, hm) -> str:
-        m = hm.margin_db
-        ok = ~np.isnan(m)
-        share = float(np.mean(m[ok] >= 0.0)) if ok.any() else 0.0
+        n_ok, cells = hm.meeting(0.0)
+        share = n_ok / cells if cells else 0.0
         best = hm.best_cells(1)
         fixed = "height z" if hm.view == "top" else "lateral y"
-        text = f"{ok.sum()} cells at {fixed} {hm.fixed_m * 1000:.0f} mm; {100 * share:.0f} % reach 0 dB margin"
+        text = f"{cells} cells at {fixed} {hm.fixed_m * 1000:.0f} mm; {100 * share:.0f} % reach 0 dB margin"
+        left_out = ", ".join(f"{n} {why}" for why, n in hm.excluded().items() if n)
+        if left_out:
+            text += f" (not computed: {left_out})"
         if best:
             x, y, z, mb, _w = best[0]
             text += f"; best {mb:+.1f} dB at x {x * 1000:.0f}, y {y * 1000:.0f}, z {z * 1000:.0f} mm"
@@ -209,8 +205,7 @@ class HeatmapPanel(QWidget):
         self.image.setImage(m.T, autoLevels=False, levels=(-span, span))
         self.image.setRect(QRectF(hm.u_m[0] - du / 2, hm.v_m[0] - dv / 2, nu * du, nv * dv))
         self.colorbar.setLevels((-span, span))
-        self.iso.setData(_filled_for_contour(m).T)
-        self.iso.setPos(0.5, 0.5)  # contour points are at cell centres (array indices); pixels span [i, i + 1]
+        self.iso.setData(*polylines_for_plot(zero_contour(hm)))
         self._draw_context(hm)
 
     def _draw_context(self, hm=None) -> None:
@@ -223,7 +218,7 @@ class HeatmapPanel(QWidget):
         view = hm.view if hm is not None else (region.view if region is not None else "top")
         if self.result is not None and region is not None and (self.result.view != region.view):
             self.image.clear()
-            self.iso.setData(None)
+            self.iso.setData([], [])
         v = self.doc.vehicle
         pts = v.body.top_outline if view == "top" else v.body.side_outline
         poly = QGraphicsPolygonItem(QPolygonF([QPointF(*p) for p in pts]))
@@ -260,6 +255,17 @@ class HeatmapPanel(QWidget):
         p = vb.mapSceneToView(scene_pos)
         return p.x(), p.y()
 
+    def excluded_reason(self, u: float, w: float) -> str:
+        """Why the heatmap cell at (u, w) m was not computed ("outside the body", ...), or ""."""
+        hm = self.result
+        if hm is None or hm.cell_state is None:
+            return ""
+        iu = int(np.argmin(np.abs(hm.u_m - u)))
+        iv = int(np.argmin(np.abs(hm.v_m - w)))
+        if abs(hm.u_m[iu] - u) > hm.step_m or abs(hm.v_m[iv] - w) > hm.step_m:
+            return ""
+        return EXCLUDED_CELL_NAMES.get(int(hm.cell_state[iv, iu]), "")
+
     def _hover(self, scene_pos) -> None:
         uv = self._view_point(scene_pos)
         if uv is None or self.result is None or self.is_running():
@@ -268,7 +274,8 @@ class HeatmapPanel(QWidget):
         name = "y" if self.result.view == "top" else "z"
         where = f"x {uv[0] * 1000:.0f} mm, {name} {uv[1] * 1000:.0f} mm"
         if cell is None:
-            self.readout.setText(where)
+            why = self.excluded_reason(*uv)
+            self.readout.setText(f"{where}: not computed, {why}" if why else where)
         else:
             self.readout.setText(f"{where}: margin {cell[0]:+.1f} dB, worst wheel {cell[1]}")
 
@@ -309,7 +316,8 @@ class HeatmapPanel(QWidget):
 class SpotTable(QTableWidget):
     """The spots best first (``SpotScores.order()``); selecting a row selects the spot everywhere."""
 
-    COLUMNS = ("rank", "no.", "spot", "margin dB", "worst wheel", "at angle deg")
+    COLUMNS = ("rank", "no.", "spot", "margin dB", "worst wheel", "at angle deg", "placement")
+    PLACEMENT_COLUMN = 6
 
     def __init__(self, doc: Document, parent: QWidget | None = None):
         super().__init__(0, len(self.COLUMNS), parent)
@@ -324,10 +332,11 @@ class SpotTable(QTableWidget):
         hh = self.horizontalHeader()
         hh.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         hh.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
-        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92)):
+        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92), (6, 110)):
             self.setColumnWidth(c, wpx)
         self.itemSelectionChanged.connect(self._selected)
         doc.scoresReady.connect(self.refresh)
+        doc.liveScore.connect(self._live)
         doc.selectionChanged.connect(self._select_row)
         self._cmap = margin_colormap()
         self.refresh()
@@ -340,6 +349,7 @@ class SpotTable(QTableWidget):
         try:
             sc = self.doc.scores
             order = sc.order()
+            pl = classify(self.doc.scene, sc.positions)
             self.setRowCount(len(order))
             for rank, i in enumerate(order):
                 w = int(sc.worst_wheel[i])
@@ -356,9 +366,29 @@ class SpotTable(QTableWidget):
                         if sc.near_field is not None and sc.near_field[i]:
                             item.setToolTip("a sensor comes nearer than lambda/2pi: near field, indicative only")
                     self.setItem(rank, c, item)
+                self._set_placement(rank, pl.status[i], pl.flag(i), pl.message(i))
         finally:
             self._loading = False
         self._select_row(self.doc.selected)
+
+    def _set_placement(self, row: int, status: str, flag: str, message: str) -> None:
+        """The placement cell (core.placement): red for a spot that is not a receiver position, orange near a panel."""
+        item = QTableWidgetItem(flag or "ok")
+        if status != INSIDE:
+            item.setForeground(QColor(170, 0, 0) if status != NEAR_SURFACE else QColor(170, 90, 0))
+            font = item.font()
+            font.setBold(True)
+            item.setFont(font)
+            item.setToolTip(message)
+        self.setItem(row, self.PLACEMENT_COLUMN, item)
+
+    def _live(self, name: str, sc) -> None:
+        """A spot is being dragged: update its placement cell (one point; cheap)."""
+        for r in range(self.rowCount()):
+            if self.item(r, 2) is not None and self.item(r, 2).text() == name:
+                pl = classify(self.doc.scene, sc.positions[:1])
+                self._set_placement(r, pl.status[0], pl.flag(0), pl.message(0))
+                return
 
     def _select_row(self, name: str) -> None:
         self._loading = True

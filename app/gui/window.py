@@ -75,6 +75,11 @@ class SpotReadout(QLabel):
         colour = "#0a6b2a" if self.margin_db >= 0 else "#a3141e"
         state = " (moving)" if moving else ""
         near = "  near field: indicative only" if sc.near_field is not None and sc.near_field[i] else ""
+        from core.placement import INSIDE, classify
+
+        pl = classify(self.doc.scene, sc.positions[i : i + 1])  # one point, well under a millisecond
+        if pl.status[0] != INSIDE:
+            near += f" &nbsp; <b style='color:#a3141e'>{pl.flag(0)}</b>"  # the warning: marker and table tooltips
         self.setText(
             f"<b>{name}</b>{state} &nbsp; x {x:.0f} mm, y {y:.0f} mm, z {z:.0f} mm &nbsp;&nbsp; "
             f"worst-case margin <b style='color:{colour}'>{self.margin_db:+.2f} dB</b> &nbsp; "

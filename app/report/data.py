@@ -23,6 +23,7 @@ from app.report.rank_json import rank_document
 from core.burst import BurstResult, burst_for_spot
 from core.distinctness import Distinctness, wheel_distinctness
 from core.materials import BUILTIN_MATERIALS, ROAD_SURFACES, material_loss_db
+from core.placement import Placement, classify
 from core.propagation import near_field_limit_m
 from core.regulatory import eirp_ceiling_dbm
 from core.scoring import Heatmap, Scene, SpotScores, heatmap, score_vehicle
@@ -80,6 +81,20 @@ class ReportData:
     eirp_note: str = ""
     near_field_limit_m: float = 0.0
     extra: dict = field(default_factory=dict)
+    placement: Placement | None = None  # core.placement.classify of the spots (scores order)
+
+    def best_index(self) -> int:
+        """Index (into scores) of the best-ranked spot that is a receiver position (inside the body,
+        outside the wheelhouses); the best-ranked spot when none is."""
+        return best_candidate(self.scores, self.placement)
+
+
+def best_candidate(scores: SpotScores, placement: Placement | None) -> int:
+    """The best-ranked spot that is a candidate position (core.placement); order()[0] when none is."""
+    order = [int(i) for i in scores.order()]
+    if placement is None:
+        return order[0]
+    return next((i for i in order if placement.candidate[i]), order[0])
 
 
 def file_sha256(raw: bytes) -> str:
@@ -174,12 +189,32 @@ def _kmh_list(values) -> str:
     return ", ".join(f"{v * MPS_TO_KMH:.0f}" for v in values)
 
 
-def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, regions, eirp_note: str) -> str:
-    order = scores.order()
+def _placement_findings(scores: SpotScores, placement: Placement) -> list[str]:
+    """Sentences on the spots that are not clean receiver positions (core.placement), loudest first."""
+    out = []
+    bad = [i for i in scores.order() if not placement.candidate[i]]
+    if bad:
+        what = "; ".join(f"'{scores.names[i]}' {placement.message(i)}" for i in bad)
+        out.append(f"PLACEMENT WARNING: {len(bad)} of the {len(scores.names)} spots are not receiver positions: {what}. "
+                   f"Their margins are not results; they are marked in the tables and left out of the findings below.")
+    near = [i for i in scores.order() if placement.status[i] == "near_surface"]
+    if near:
+        what = "; ".join(f"'{scores.names[i]}' {placement.message(i)}" for i in near)
+        out.append(f"Mounting check: {what}. The model takes the receiver antenna in free space; that close to a "
+                   f"panel the installation decides (marked in the tables).")
+    return out
+
+
+def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, regions, eirp_note: str,
+              placement: Placement) -> str:
+    cand = placement.candidate
+    order = [int(i) for i in scores.order() if cand[i]] or [int(i) for i in scores.order()]
     b = int(order[0])
     w = int(scores.worst_wheel[b])
     m = float(scores.margin_db[b])
-    n_ok = int((scores.margin_db >= 0).sum())
+    n_ok = int((scores.margin_db[order] >= 0).sum())
+    lead = _placement_findings(scores, placement)
+    paras = [lead] if lead else []
     parts = [
         (f"The best of the {len(order)} candidate spots is '{scores.names[b]}' with a worst-case margin of "
         f"{m:+.1f} dB (the required margin of {scores.required_margin_db:.1f} dB over the sensitivity of "
@@ -196,7 +231,7 @@ def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, r
     if len(order) > 1:
         s2 = int(order[1])
         parts.append(f"The runner-up is '{scores.names[s2]}' at {scores.margin_db[s2]:+.1f} dB.")
-    paras = [parts]
+    paras.append(parts)
     parts = []
     paras.append(parts)
     d0 = details[0]
@@ -231,13 +266,15 @@ def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, r
     else:
         parts.append(f"No spot comes within the near field (lambda/2pi = {lim:.3f} m) of a sensor.")
     for r, hm in zip(regions, heatmaps):
-        cells = int(np.isfinite(hm.margin_db).sum())
+        ok, cells = hm.meeting(0.0)
+        left_out = excluded_text(hm)
         if not cells:
+            parts.append(f"Region '{r.name}' holds no receiver position ({left_out}).")
             continue
-        ok = int((hm.margin_db >= 0).sum())
         x, y, z, mm, ww = hm.best_cells(1)[0]
-        parts.append(f"In region '{r.name}' {ok} of {cells} cells ({100 * ok / cells:.0f} %) meet the margin; the best "
-                     f"cell, at ({x:.2f}, {y:.2f}, {z:.2f}) m, reaches {mm:+.1f} dB (limited by {scene.wheel_ids[ww]}).")
+        parts.append(f"In region '{r.name}' {ok} of the {cells} computed cells ({100 * ok / cells:.0f} %) meet the "
+                     f"margin" + (f" ({left_out}, not computed)" if left_out else "") + f"; the best cell, at "
+                     f"({x:.2f}, {y:.2f}, {z:.2f}) m, reaches {mm:+.1f} dB (limited by {scene.wheel_ids[ww]}).")
     paras.append([eirp_note])
     return "\n\n".join(" ".join(p) for p in paras if p)
 
@@ -258,11 +295,12 @@ def build_report_data(
                                source if source != "unsaved document" else None)
     scene = Scene.from_vehicle(v)
     scores = score_vehicle(v, scene)
-    ranking = rank_document(v, scores)
+    placement = classify(scene, scores.positions)
+    ranking = rank_document(v, scores, placement)
     regions = tuple(v.regions)
     from core.scoring import grid_for_region
 
-    sizes = [int(grid_for_region(r, step_m)[2].sum()) for r in regions]
+    sizes = [int(grid_for_region(r, step_m, scene.hull)[2].sum()) for r in regions]  # the cells computed
     total = max(1, sum(sizes))
     done = [0]
     maps = []
@@ -275,11 +313,12 @@ def build_report_data(
 
         maps.append(heatmap(scene, r, step_m, progress=sub, cancel=cancel))
         done[0] += n
-    order = scores.order()
+    # detail pages for the best spots that are receiver positions (rank as in the ranking table)
+    rank_of = {int(i): k + 1 for k, i in enumerate(scores.order())}
+    shown = [int(i) for i in scores.order() if placement.candidate[i]] or [int(i) for i in scores.order()]
     details = tuple(
-        SpotDetail(int(i), k + 1, burst_for_spot(scene, scores, int(i)),
-                   wheel_distinctness(scores.levels_dbm[int(i)], scores.wheel_ids))
-        for k, i in enumerate(order[:DETAIL_SPOTS])
+        SpotDetail(i, rank_of[i], burst_for_spot(scene, scores, i), wheel_distinctness(scores.levels_dbm[i], scores.wheel_ids))
+        for i in shown[:DETAIL_SPOTS]
     )
     radio_rows, eirp_note = _radio_rows(v, scene)
     data = ReportData(
@@ -288,13 +327,22 @@ def build_report_data(
         program_version=program_version(), scene=scene, scores=scores, ranking=ranking,
         regions=regions, heatmaps=tuple(maps), step_m=step_m, details=details,
         materials=_materials_in_use(v), radio_rows=radio_rows, eirp_note=eirp_note,
-        near_field_limit_m=float(near_field_limit_m(scene.freq_hz)),
+        near_field_limit_m=float(near_field_limit_m(scene.freq_hz)), placement=placement,
     )
-    findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note)
+    findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note, placement)
     return ReportData(**{**data.__dict__, "findings": findings})
 
 
+def excluded_text(hm: Heatmap) -> str:
+    """"12 cells outside the body, 3 inside a wheelhouse" ("" when none was left out)."""
+    return ", ".join(f"{n} cell{'s' if n != 1 else ''} {why}" for why, n in hm.excluded().items() if n)
+
+
 # ----- data export ---------------------------------------------------------------------------
+#: JSON keys of the reasons a heatmap cell was not computed (core.scoring.EXCLUDED_CELL_NAMES)
+_JSON_EXCLUDED = {"outside the body": "outside_body", "inside a wheelhouse": "in_wheelhouse"}
+
+
 def _r(x, nd=3):
     x = float(x)
     return None if not np.isfinite(x) else round(x, nd)
@@ -313,6 +361,8 @@ def report_json(d: ReportData) -> dict:
             "u_m": [_r(u, 4) for u in hm.u_m],
             "v_m": [_r(x, 4) for x in hm.v_m],
             "margin_db": [[_r(m) for m in row] for row in hm.margin_db],
+            "cells_computed": hm.meeting(0.0)[1],
+            "cells_not_computed": {_JSON_EXCLUDED[why]: n for why, n in hm.excluded().items()},
             "worst_wheel": [[d.scene.wheel_ids[w] if w >= 0 else None for w in row] for row in hm.worst_wheel],
         })
     details = []
@@ -356,16 +406,18 @@ def report_json(d: ReportData) -> dict:
 
 
 CSV_COLUMNS = ("record", "rank", "spot", "region", "wheel", "x_m", "y_m", "z_m", "angle_deg", "level_dbm",
-               "worst_dbm", "median_dbm", "margin_db", "worst_wheel", "near_field")
+               "worst_dbm", "median_dbm", "margin_db", "worst_wheel", "near_field", "placement")
 
 
 def report_csv(d: ReportData) -> str:
     """One flat CSV; the ``record`` column says what a row is:
 
-    - ``spot``: rank, spot, x/y/z, margin_db, worst_wheel, angle_deg (of that worst case), near_field
+    - ``spot``: rank, spot, x/y/z, margin_db, worst_wheel, angle_deg (of that worst case), near_field,
+      placement (core.placement status: inside, near_surface, in_wheelhouse, outside_body)
     - ``wheel``: spot, wheel, worst_dbm, angle_deg (of the worst case), median_dbm
     - ``level``: spot, wheel, angle_deg, level_dbm (every angle of the turn)
-    - ``cell``: region, x/y/z, margin_db, worst_wheel (every heatmap cell inside the region)
+    - ``cell``: region, x/y/z, margin_db, worst_wheel (every computed heatmap cell: inside the region and
+      a receiver position)
     """
     buf = io.StringIO()
     wr = csv.DictWriter(buf, fieldnames=CSV_COLUMNS, lineterminator="\n")
@@ -374,7 +426,8 @@ def report_csv(d: ReportData) -> str:
         x, y, z = s["position_m"]
         wr.writerow({"record": "spot", "rank": s["rank"], "spot": s["name"], "x_m": x, "y_m": y, "z_m": z,
                      "margin_db": s["margin_db"], "worst_wheel": s["worst_wheel"],
-                     "angle_deg": s["worst_angle_deg"], "near_field": int(s["near_field"])})
+                     "angle_deg": s["worst_angle_deg"], "near_field": int(s["near_field"]),
+                     "placement": s["placement"]["status"]})
     for s in d.ranking["spots"]:
         for w in s["wheels"]:
             wr.writerow({"record": "wheel", "rank": s["rank"], "spot": s["name"], "wheel": w["wheel"],

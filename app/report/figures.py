@@ -396,32 +396,11 @@ def margin_image(hm: Heatmap, lo: float, hi: float, upscale: int = 6) -> QImage:
 
 
 def zero_contour(hm: Heatmap) -> list[np.ndarray]:
-    """The 0 dB margin contour as polylines in (u, v) metres (pyqtgraph's isocurve).
+    """The 0 dB margin contour as polylines in (u, v) metres, only between computed cells
+    (app.heatmap_contour, shared with the desktop program)."""
+    from app.heatmap_contour import zero_contour as contour
 
-    Cells outside the region are filled from their nearest inside cell first, so the region's
-    border does not show up as a false contour."""
-    m = hm.margin_db
-    ok = np.isfinite(m)
-    if not ok.any() or (m[ok] >= 0).all() or (m[ok] < 0).all():
-        return []
-    if not ok.all():
-        from scipy.ndimage import distance_transform_edt
-
-        _, (ii, jj) = distance_transform_edt(~ok, return_indices=True)
-        m = m[ii, jj]
-    du = hm.u_m[1] - hm.u_m[0] if len(hm.u_m) > 1 else hm.step_m
-    dv = hm.v_m[1] - hm.v_m[0] if len(hm.v_m) > 1 else hm.step_m
-    lines = pg.functions.isocurve(m.T, 0.0, connected=True, extendToEdge=True)
-    out = []
-    for ln in lines:
-        a = np.asarray(ln, float)
-        if len(a) < 2:
-            continue
-        # pixel centre of cell (i, j) is at (i + 0.5, j + 0.5) in isocurve's coordinates
-        u = hm.u_m[0] + (a[:, 0] - 0.5) * du
-        v = hm.v_m[0] + (a[:, 1] - 0.5) * dv
-        out.append(np.column_stack([u, v]))
-    return out
+    return contour(hm)
 
 
 def draw_heatmap(p: QPainter, rect: QRectF, s: float, v: Vehicle, hm: Heatmap, region: Region, positions, labels,

@@ -31,7 +31,15 @@ from PySide6.QtGui import (
 )
 
 from app.report import figures as fig
-from app.report.data import CAUTION, MPS_TO_KMH, ReportData, build_report_data, report_csv, report_json_text
+from app.report.data import (
+    CAUTION,
+    MPS_TO_KMH,
+    ReportData,
+    build_report_data,
+    excluded_text,
+    report_csv,
+    report_json_text,
+)
 from core.vehicle import atomic_path, atomic_write_text
 
 DPI = 300
@@ -214,6 +222,28 @@ def _ranked(d: ReportData) -> tuple[list[int], dict[int, int]]:
     return order, {i: k + 1 for k, i in enumerate(order)}
 
 
+def _placement_mark(d: ReportData, i: int) -> str:
+    """HTML mark of a spot that is not a clean receiver position (core.placement), "" otherwise."""
+    pl = d.placement
+    if pl is None or not pl.flagged[i]:
+        return ""
+    colour = "#b00000" if not pl.candidate[i] else "#a05a00"
+    return f" <b style='color:{colour}'>[{esc(pl.flag(i))}]</b>"
+
+
+def _placement_notes(d: ReportData, order: list[int]) -> str:
+    """Paragraph listing the located warnings of the flagged spots ("" when none)."""
+    pl = d.placement
+    if pl is None:
+        return ""
+    items = [f"<b>{esc(d.scores.names[i])}</b>: {esc(pl.message(i))}" for i in order if pl.flagged[i]]
+    if not items:
+        return ""
+    return ("<p class='small'><b style='color:#b00000'>Placement warnings</b> (marked in the table; a spot outside "
+            "the body or in a wheelhouse is not a receiver position and its margin is not a result; the mounting "
+            f"clearance of {1000 * pl.clearance_m:.0f} mm is an engineering default): " + "; ".join(items) + ".</p>")
+
+
 def _drawings(f: Flow, d: ReportData) -> None:
     v, sc = d.vehicle, d.scores
     order, rank = _ranked(d)
@@ -226,16 +256,20 @@ def _drawings(f: Flow, d: ReportData) -> None:
     max_h = f.room - (75 + 15 * len(sc.names)) * S
     max_h = max(max_h, 300 * S)
     h = fig.body_views_height(v, f.width, S, max_h)
-    f.add(h, lambda p, r: fig.draw_body_views(p, r, S, v, sc.positions, labels, highlight=order[0], max_height=max_h))
+    best = d.best_index()
+    f.add(h, lambda p, r: fig.draw_body_views(p, r, S, v, sc.positions, labels, highlight=best, max_height=max_h))
     mats = sorted({z.material for z in v.zones})
     key = " &nbsp; ".join(f"<span style='background-color:{fig.material_colour(m, 255).name()}'>&nbsp;&nbsp;&nbsp;"
                           f"</span> {esc(m)}" for m in mats)
     f.html(f"<p class='small'>Zones: {key} &nbsp; (body panels outside any zone: metal). The ringed spot is the "
            f"best ranked.</p>", 2)
-    rows = [[str(rank[i]), esc(sc.names[i]), *(f"{c:.3f}" for c in sc.positions[i]), _spot_def(v, sc.names[i])]
-            for i in order]
+    rows = [[str(rank[i]), esc(sc.names[i]) + _placement_mark(d, i), *(f"{c:.3f}" for c in sc.positions[i]),
+             _spot_def(v, sc.names[i])] for i in order]
     f.table(["#", "Spot", "x m", "y m", "z m", "Defined as"], rows, [5, 30, 9, 9, 9, 38], numeric={0, 2, 3, 4},
             caption="Spot key")
+    notes = _placement_notes(d, order)
+    if notes:
+        f.html(notes, 4)
 
 
 def _spot_def(v, name: str) -> str:
@@ -263,10 +297,12 @@ def _heatmaps(f: Flow, d: ReportData) -> None:
         h = fig.heatmap_height(v, hm, f.width, S)
         f.add(h, lambda p, r, hm=hm, region=region: fig.draw_heatmap(p, r, S, v, hm, region, sc.positions, labels,
                                                                      sc.wheel_ids), gap_pt=2)
-        cells = int(np.isfinite(hm.margin_db).sum())
-        ok = int((hm.margin_db >= 0).sum())
+        ok, cells = hm.meeting(0.0)
         best = hm.best_cells(1)
-        txt = f"{cells} cells, {ok} ({100 * ok / max(cells, 1):.0f} %) with margin &ge; 0 dB"
+        txt = f"{cells} cells computed, {ok} ({100 * ok / max(cells, 1):.0f} %) with margin &ge; 0 dB"
+        left_out = excluded_text(hm)
+        if left_out:
+            txt += f"; not computed and left blank (not a receiver position): {left_out}"
         if best:
             x, y, z, m, w = best[0]
             txt += (f"; best cell ({x:.2f}, {y:.2f}, {z:.2f}) m at {m:+.1f} dB, limited by {d.scene.wheel_ids[w]}; "
@@ -288,13 +324,17 @@ def _ranking(f: Flow, d: ReportData) -> None:
     for k, i in enumerate(order, 1):
         w = int(sc.worst_wheel[i])
         x, y, z = sc.positions[i]
-        rows.append([str(k), esc(sc.names[i]) + (" <i>(near field)</i>" if sc.near_field[i] else ""),
+        rows.append([str(k), esc(sc.names[i]) + (" <i>(near field)</i>" if sc.near_field[i] else "")
+                     + _placement_mark(d, i),
                      f"{x:.3f}", f"{y:.3f}", f"{z:.3f}", f"<b>{sc.margin_db[i]:+.1f}</b>", esc(sc.wheel_ids[w]),
                      f"{sc.worst_angle_deg[i, w]:.0f}", f"{sc.worst_dbm[i, w]:.1f}", f"{sc.median_dbm[i, w]:.1f}",
                      f"{sc.swing_db()[i].max():.1f}"])
     f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "Worst wheel", "at deg", "Worst dBm", "Median dBm",
              "Swing dB"], rows, [4, 26, 7, 7, 7, 9, 8, 7, 9, 9, 7], numeric={0, 2, 3, 4, 5, 7, 8, 9, 10},
-            highlight={0})
+            highlight={order.index(d.best_index())})
+    notes = _placement_notes(d, order)
+    if notes:
+        f.html(notes, 4)
     head = ["Spot"] + [esc(w) for w in sc.wheel_ids]
     rows = [[esc(sc.names[i])] + [f"{sc.worst_dbm[i, w]:.1f} @ {sc.worst_angle_deg[i, w]:.0f}&deg;"
                                   + ("*" if w == sc.worst_wheel[i] else "") for w in range(len(sc.wheel_ids))]
@@ -315,7 +355,9 @@ def _details(f: Flow, d: ReportData) -> None:
                f" m; margin <b>{sc.margin_db[i]:+.1f} dB</b>, limited by wheel {esc(sc.wheel_ids[w])} at "
                f"{sc.worst_dbm[i, w]:.1f} dBm, wheel angle {sc.worst_angle_deg[i, w]:.0f}&deg;."
                + (" <b>Near field:</b> a sensor comes within lambda/2pi; the result is indicative only." if
-                  sc.near_field[i] else "") + "</p>", 2)
+                  sc.near_field[i] else "")
+               + (f" <b>Placement:</b> {esc(d.placement.message(i))}." if d.placement is not None
+                  and d.placement.flagged[i] else "") + "</p>", 2)
         f.add(230 * S, lambda p, r, i=i: fig.draw_levels(p, r, S, sc, i))
         half = (f.width - 12 * S) / 2
         b, dd = det.burst, det.distinctness

@@ -3,8 +3,15 @@
 from __future__ import annotations
 
 
-def rank_document(v, scores) -> dict:
-    """The documented JSON of ``wheelreach rank --json`` (see docs/cli-json.md)."""
+def rank_document(v, scores, placement=None) -> dict:
+    """The documented JSON of ``wheelreach rank --json`` (see docs/cli-json.md).
+
+    ``placement``: core.placement.classify of the scores' positions (computed when not given)."""
+    if placement is None:
+        from core.placement import classify
+        from core.scoring import Scene
+
+        placement = classify(Scene.from_vehicle(v), scores.positions)
     order = scores.order()
     spots = []
     for rank, i in enumerate(order, 1):
@@ -28,6 +35,7 @@ def rank_document(v, scores) -> dict:
                 "worst_wheel": scores.wheel_ids[scores.worst_wheel[i]],
                 "worst_angle_deg": round(float(scores.worst_angle_deg[i, scores.worst_wheel[i]]), 3),
                 "near_field": bool(scores.near_field[i]),
+                "placement": placement.record(i),
                 "wheels": wheels,
             }
         )
