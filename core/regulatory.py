@@ -385,6 +385,21 @@ class EirpCheck:
                 f"the {self.allowed_peak_dbm:.2f} dBm allowed by {p.label} ({self.averaging}); margins at the "
                 f"ceiling are {self.excess_db:.2f} dB lower than the margins shown.")
 
+    def short(self) -> str:
+        """A short status for a settings panel or status bar."""
+        p = self.preset
+        if p is None:
+            return "No built-in radio limit covers this frequency: check the market's rules."
+        if self.over_ceiling:
+            return (f"ABOVE the {p.label} ceiling of {self.allowed_peak_dbm:.1f} dBm peak by {self.excess_db:.1f} dB: "
+                    f"margins at the ceiling are {self.excess_db:.1f} dB lower.")
+        if p.market == "US":
+            return (f"Within {p.label}: up to {self.allowed_peak_dbm:.1f} dBm peak allowed (averaging factor "
+                    f"{self.averaging_factor_db:+.1f} dB" + ("" if self.averaging_factor_db else ", none taken") + ").")
+        duty = "" if self.duty_cycle is None else f", duty cycle {100 * self.duty_cycle:.2g} %"
+        return (f"Within {p.label}: up to {self.limit_dbm:.1f} dBm during transmission{duty}."
+                + (" DUTY CYCLE OVER THE LIMIT." if self.duty_cycle_over else ""))
+
     def summary(self) -> str:
         """One sentence: the comparison and how averaging was treated."""
         p = self.preset
