@@ -101,7 +101,7 @@ def test_report_into_a_missing_folder_is_one_line_and_exit_1():
 
 
 def test_an_unusable_json_path_fails_before_the_pdf_is_written(tmp_path, capsys, monkeypatch):
-    import app.report.data as data
+    from app.report import data
 
     def must_not_run(*a, **k):
         raise AssertionError("the engine ran before the output paths were checked")
@@ -196,7 +196,7 @@ def test_new_files_follow_the_umask(tmp_path, umask, mode):
 
 def test_a_report_from_the_command_line_follows_the_umask(car):
     out = car.parent / "r"
-    r = subprocess.run(["sh", "-c", f'umask 027 && exec "$@"', "sh", *CLI, "report", str(car), "-o", f"{out}.pdf",
+    r = subprocess.run(["sh", "-c", 'umask 027 && exec "$@"', "sh", *CLI, "report", str(car), "-o", f"{out}.pdf",
                         "--csv", f"{out}.csv", "--json", f"{out}.json", *FAST], capture_output=True, text=True,
                        cwd=ROOT, timeout=300)
     assert r.returncode == 0, r.stderr
