@@ -260,29 +260,46 @@ def test_cli_ends_with_143_on_sigterm_and_leaves_no_file(car):
 
 
 # ----- inputs that are not regular files ---------------------------------------------------------
-def _fifo(tmp_path) -> Path:
-    f = tmp_path / "pipe.json"
-    os.mkfifo(f)
-    return f
+_KINDS = {"/dev/zero": "a character device", "fifo": "a named pipe", "folder": "a folder"}
 
 
-@pytest.mark.parametrize("cmd", [["check"], ["rank"], ["report", "-o", "OUT"]])
-@pytest.mark.parametrize("kind", ["/dev/zero", "fifo", "folder"])
-def test_special_files_are_refused_with_one_line(tmp_path, cmd, kind):
-    # /dev/zero used to be read in full (MemoryError), a named pipe hung every command: refused before reading
-    src = {"/dev/zero": Path("/dev/zero"), "fifo": _fifo(tmp_path), "folder": tmp_path}[kind]
+def _special(tmp_path, kind) -> Path:
+    src = {"/dev/zero": Path("/dev/zero"), "fifo": tmp_path / "pipe.json", "folder": tmp_path}[kind]
+    if kind == "fifo":
+        os.mkfifo(src)
     if not src.exists():
         pytest.skip(f"{src} not on this system")
-    words = [w.replace("OUT", str(tmp_path / "r.pdf")) for w in cmd]
-    r = subprocess.run([*CLI, words[0], str(src), *words[1:]], capture_output=True, text=True, cwd=ROOT,
-                       timeout=60, stdin=subprocess.DEVNULL)
-    out = r.stdout + r.stderr
-    assert r.returncode == 1 and "Traceback" not in out
-    lines = [ln for ln in out.splitlines() if ln.strip()]
-    assert len(lines) == 1 and str(src) in lines[0], out
-    expected = {"/dev/zero": "a character device", "fifo": "a named pipe", "folder": "a folder"}[kind]
-    assert f"is {expected}, not a regular file" in lines[0]
+    return src
+
+
+def _run(*words) -> subprocess.CompletedProcess:
+    # a subprocess with a timeout: a named pipe used to hang every command
+    return subprocess.run([*CLI, *map(str, words)], capture_output=True, text=True, cwd=ROOT, timeout=60,
+                          stdin=subprocess.DEVNULL)
+
+
+@pytest.mark.parametrize("kind", list(_KINDS))
+def test_special_files_are_refused_with_one_located_line(tmp_path, kind):
+    # /dev/zero used to be read in full (MemoryError traceback), a named pipe hung every command:
+    # both are refused before reading, with one line naming the file, exit status 1
+    src = _special(tmp_path, kind)
+    words = (["rank", src], ["report", src, "-o", tmp_path / "r.pdf"]) if kind == "fifo" else (["rank", src],)
+    for w in words:
+        r = _run(*w)
+        assert r.returncode == 1 and r.stdout == "", r.stdout
+        line = _one_error_line(r.stderr)
+        assert str(src) in line and f"is {_KINDS[kind]}, not a regular file" in line
     assert not (tmp_path / "r.pdf").exists()
+
+
+def test_check_names_each_special_file_on_its_own_line(tmp_path):
+    srcs = [_special(tmp_path, k) for k in _KINDS]
+    r = _run("check", *srcs, SAMPLE)
+    assert r.returncode == 1 and "Traceback" not in r.stdout + r.stderr
+    lines = r.stdout.splitlines()
+    assert len(lines) == 4 and lines[3].startswith("ok ")
+    for src, kind, line in zip(srcs, _KINDS, lines):
+        assert line.startswith(f"FAIL {src}: is {_KINDS[kind]}, not a regular file"), line
 
 
 def test_size_is_checked_on_the_handle_before_reading(tmp_path, monkeypatch):

@@ -10,13 +10,16 @@ from core.compare import LANDMARKS
 def _cmd_report(args) -> int:
     import os
 
+    from core.files import check_outputs
+
+    # every output path first, before Qt is even loaded (write_report checks them again for other callers)
+    check_outputs({"-o": args.output, "--csv": args.csv, "--json": args.json}, [args.file])
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     from app.report.pdf import write_report
 
     if not args.step > 0:
         print("error: --step must be positive", file=sys.stderr)
         return 1
-    # write_report checks every output path (core.files.check_outputs) before it computes anything
     d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step,
                         command_line=getattr(args, "command_line", None))
     s = d.scores
