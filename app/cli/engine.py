@@ -143,10 +143,10 @@ def _cmd_heatmap(args) -> int:
         at = f" {float(check.margin_at_ceiling_db(m)):10.1f}" if check.over_ceiling else ""
         print(f"{x:7.3f} {y:7.3f} {z:7.3f} {m:10.1f}{at}  {scene.wheel_ids[w]}")
     if args.csv:
+        axis = np.asarray(v.radio.receiver.axis, float)
         grid = {"heatmap": {"region": region.name, "view": hm.view, "fixed_coordinate": fixed,
                             "fixed_m": round(float(hm.fixed_m), 4), "step_m": args.step,
-                            "receiver_axis": [round(float(a), 6) for a in
-                                              np.asarray(v.radio.receiver.axis) / np.linalg.norm(v.radio.receiver.axis)]}}
+                            "receiver_axis": [round(float(a), 6) for a in axis / np.linalg.norm(axis)]}}
         lines = [csv_preamble(check, _setup(args, v, scene, source, overrides, grid)) +
                  "x_m,y_m,z_m,margin_db,worst_wheel,margin_at_ceiling_db"]
         pts = hm.points().reshape(-1, 3)
