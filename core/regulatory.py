@@ -5,14 +5,36 @@ The field strength E of an isotropic radiator in free space at distance d is
     E [V/m] = sqrt(30 EIRP[W]) / d[m],
 
 so a field-strength limit at a measuring distance converts to an EIRP ceiling. These are
-the limits of the rules as written for the fundamental emission; the program uses them
-as defaults for the sensor's peak EIRP. Radio limits follow the rules of each market:
-confirm against the current text of the rule for the product.
+the limits of the rules as written for the fundamental emission. Radio limits follow the
+rules of each market: confirm against the current text of the rule for the product.
+
+Peak and average (:func:`check_sensor_eirp`). The engine's link budget uses the sensor's
+*peak* EIRP: the power while a frame is on the air. The rules measure differently:
+
+- 47 CFR 15.231(b): the table's limits are average values (from memory; confirm against the
+  rule's text). For pulsed emissions 15.35(c) averages the field over one complete pulse
+  train, including its blanking intervals, when the train lasts at most 0.1 s, and otherwise
+  over the 0.1 s during which the field is largest (from memory; confirm against the rule's
+  text). With the average detector acting on the field envelope, the average field is the
+  peak field times the on-air share of that window, so the averaging factor is
+  20 log10(on-air share) dB (common practice) and the average-equivalent EIRP is the peak
+  EIRP plus that factor (E^2 is proportional to EIRP). 15.35(b): where average limits apply,
+  the peak emission may not exceed the average limit by more than 20 dB (text checked at
+  ecfr.io, 47 CFR 15.35(b)). The highest allowed peak EIRP is therefore
+  min(limit - factor, limit + 20 dB). Frames are taken as carrier on for their whole
+  duration (FSK); with on-off keying the true factor is lower, and the file may state its
+  own factor instead (a labelled assumption). Without frame timing no credit is taken: the
+  peak EIRP is compared with the average limit (conservative).
+- ERC/REC 70-03 / ETSI EN 300 220: the 10 mW e.r.p. is the power during transmission, so
+  the peak EIRP is compared with it directly; the duty cycle (<= 10 %) is a separate limit,
+  checked when the burst period is known.
 
 References
 ----------
 - 47 CFR 15.231(b) (periodic operation in the band 40.66-40.70 MHz and above 70 MHz):
   table of fundamental field strength limits at 3 m.
+- 47 CFR 15.35(b) (peak limit 20 dB above the average limit; text checked) and 15.35(c)
+  (averaging of pulsed emissions; from memory).
 - ERC Recommendation 70-03, Annex 1; Commission Decision 2006/771/EC (and amendments);
   ETSI EN 300 220-2: 433.05-434.79 MHz, 10 mW e.r.p., duty cycle <= 10 %.
 - E = sqrt(30 EIRP)/d: free-space far field of an isotropic radiator, from the power
@@ -28,15 +50,21 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 __all__ = [
-    "ERP_TO_EIRP_DB",
-    "eirp_dbm_from_field",
-    "field_uv_per_m_from_eirp",
-    "fcc_15_231b_field_limit_uv_per_m",
-    "fcc_15_231b_eirp_dbm",
-    "etsi_en300220_eirp_dbm",
-    "EirpPreset",
     "EIRP_PRESETS",
+    "ERP_TO_EIRP_DB",
+    "FCC_AVERAGING_WINDOW_S",
+    "FCC_PEAK_ABOVE_AVERAGE_DB",
+    "EirpCheck",
+    "EirpPreset",
+    "averaging_factor_db",
+    "check_sensor_eirp",
     "eirp_ceiling_dbm",
+    "eirp_dbm_from_field",
+    "etsi_en300220_eirp_dbm",
+    "fcc_15_231b_eirp_dbm",
+    "fcc_15_231b_field_limit_uv_per_m",
+    "field_uv_per_m_from_eirp",
+    "pulse_train_on_share",
 ]
 
 #: Gain of a half-wave dipole over isotropic, dB: EIRP = e.r.p. + 2.15 dB.
@@ -99,10 +127,9 @@ def fcc_15_231b_field_limit_uv_per_m(freq_hz: ArrayLike) -> np.ndarray:
     12,500 uV/m at 470 MHz (315 MHz -> 6,041.67 uV/m = 75.6 dBuV/m; 433.92 MHz ->
     10,996.7 uV/m). The rule's other segments are not built in.
 
-    The 15.231(b) limits apply to the average field strength; 15.35 allows averaging over
-    the pulse train and sets a peak limit 20 dB above (from memory: check the rule's text
-    before relying on a peak-to-average allowance). The lower limits of 15.231(e) are not
-    built in.
+    The 15.231(b) limits apply to the average field strength (from memory; confirm against the
+    rule's text); how a peak EIRP is compared with them is :func:`check_sensor_eirp`. The lower
+    limits of 15.231(e) are not built in.
 
     Raises
     ------
@@ -239,3 +266,230 @@ def eirp_ceiling_dbm(freq_hz: float, market: str | None = None) -> EirpPreset | 
     if market in (None, "US") and _FCC_SEG_F_LOW_HZ <= f <= _FCC_SEG_F_HIGH_HZ:
         return _fcc_preset(f)
     return None
+
+
+# ----- peak EIRP against the limits ---------------------------------------------------------------
+#: 47 CFR 15.35(c) averaging window for pulsed emissions, s (from memory; confirm against the rule's text).
+FCC_AVERAGING_WINDOW_S = 0.1
+#: 47 CFR 15.35(b): peak limit above the average limit, dB (text checked at ecfr.io, 47 CFR 15.35(b)).
+FCC_PEAK_ABOVE_AVERAGE_DB = 20.0
+#: ERC/REC 70-03 duty-cycle limit of the 433.05-434.79 MHz entry.
+ETSI_433_DUTY_CYCLE = 0.10
+#: An EIRP within this of the allowed value counts as at the ceiling (the GUI presets round to 0.01 dB).
+EIRP_TOLERANCE_DB = 0.01
+
+
+def pulse_train_on_share(frame_duration_s: float, frames: int, interval_s: float,
+                         window_s: float = FCC_AVERAGING_WINDOW_S) -> tuple[float, float, str]:
+    """On-air share of the 47 CFR 15.35(c) averaging window for a burst of equal frames.
+
+    The burst ("pulse train") is ``frames`` frames of ``frame_duration_s`` (carrier on), one every
+    ``interval_s``. When the train lasts at most ``window_s`` (0.1 s) the average is taken over the
+    complete train including its gaps; otherwise over the ``window_s`` window holding the most
+    on-air time (15.35(c), from memory; confirm against the rule's text). The on-air time of a
+    sliding window is piecewise linear in its start, so its maximum is at a start where the window
+    begins at a frame start or ends at a frame end; all such starts are tried.
+
+    Returns
+    -------
+    (share, averaging time in s, description)
+    """
+    tau, k, t = float(frame_duration_s), int(frames), float(interval_s)
+    if not (tau > 0 and k >= 1 and t > 0 and window_s > 0):
+        raise ValueError("frame duration, frame count, interval and window must be positive")
+    if k > 1 and tau > t:
+        raise ValueError(f"frames of {tau * 1e3:g} ms overlap at an interval of {t * 1e3:g} ms")
+    train = (k - 1) * t + tau
+    if train <= window_s:
+        share = k * tau / train
+        return share, train, (f"{k} x {tau * 1e3:g} ms on air over the complete {train * 1e3:g} ms pulse train")
+    starts = np.arange(k) * t
+    ends = starts + tau
+    cand = np.concatenate([starts, ends - window_s])
+    on = np.clip(np.minimum(cand[:, None] + window_s, ends) - np.maximum(cand[:, None], starts), 0.0, None).sum(axis=1)
+    best = float(on.max())
+    return best / window_s, window_s, (f"{best * 1e3:g} ms on air in the {window_s * 1e3:g} ms window with the most "
+                                       f"(train of {k} x {tau * 1e3:g} ms frames every {t * 1e3:g} ms)")
+
+
+def averaging_factor_db(on_share: ArrayLike) -> np.ndarray:
+    """Averaging factor, dB (<= 0), of a field averaged over a window with the given on-air share.
+
+    An average detector on the field envelope reads peak field x share, so the factor is
+    20 log10(share) (common practice for the 15.35 average of pulsed emissions); in EIRP terms the
+    average-equivalent EIRP is the peak EIRP plus this factor, since E^2 is proportional to EIRP.
+    """
+    share = np.asarray(on_share, dtype=float)
+    if np.any((share <= 0) | (share > 1)):
+        raise ValueError("on-air share must lie in (0, 1]")
+    return 20.0 * np.log10(share)
+
+
+@dataclass(frozen=True)
+class EirpCheck:
+    """The sensor's peak EIRP against the radio limit of its market (see the module notes).
+
+    Attributes
+    ----------
+    preset : the rule entry, or None when no built-in rule covers the frequency
+    peak_eirp_dbm : peak EIRP (power while a frame is on the air), dBm
+    averaging_factor_db : average minus peak, dB (<= 0; 0 for EN 300 220, which limits the power
+        during transmission)
+    averaging : how the factor was obtained
+    average_eirp_dbm : peak + averaging factor, dBm (what an average limit is compared with)
+    limit_dbm : the rule's EIRP limit (average for 15.231(b), during transmission for EN 300 220), dBm
+    peak_limit_dbm : the peak limit (15.231(b): limit + 20 dB per 15.35(b); EN 300 220: the limit), dBm
+    allowed_peak_dbm : the highest peak EIRP the rule allows with this timing, dBm: the ceiling
+    excess_db : peak EIRP - allowed peak, dB (> 0: over the ceiling)
+    duty_cycle, duty_cycle_limit : EN 300 220 duty cycle and its limit, when the timing is known
+    notes : further remarks (duty cycle unknown or over, no rule built in)
+    """
+
+    preset: EirpPreset | None
+    peak_eirp_dbm: float
+    averaging_factor_db: float
+    averaging: str
+    average_eirp_dbm: float
+    limit_dbm: float | None
+    peak_limit_dbm: float | None
+    allowed_peak_dbm: float | None
+    excess_db: float
+    duty_cycle: float | None = None
+    duty_cycle_limit: float | None = None
+    notes: tuple[str, ...] = ()
+
+    @property
+    def over_ceiling(self) -> bool:
+        """True when the peak EIRP exceeds the allowed peak (by more than EIRP_TOLERANCE_DB)."""
+        return self.excess_db > EIRP_TOLERANCE_DB
+
+    @property
+    def duty_cycle_over(self) -> bool:
+        return self.duty_cycle is not None and self.duty_cycle > self.duty_cycle_limit
+
+    @property
+    def margin_shift_db(self) -> float:
+        """dB to take off every margin to get the margin at the ceiling (EIRP adds in dB to every level)."""
+        return self.excess_db if self.over_ceiling else 0.0
+
+    def margin_at_ceiling_db(self, margin_db: ArrayLike) -> np.ndarray:
+        """Margin with the EIRP lowered to the ceiling: margin - (EIRP - ceiling) when over, else the margin."""
+        return np.asarray(margin_db, dtype=float) - self.margin_shift_db
+
+    def warning(self) -> str:
+        """The line every output prints first when the EIRP is over the ceiling ("" otherwise)."""
+        if not self.over_ceiling:
+            return ""
+        p = self.preset
+        return (f"RADIO LIMIT EXCEEDED: sensor peak EIRP {self.peak_eirp_dbm:.2f} dBm is {self.excess_db:.2f} dB above "
+                f"the {self.allowed_peak_dbm:.2f} dBm allowed by {p.label} ({self.averaging}); margins at the "
+                f"ceiling are {self.excess_db:.2f} dB lower than the margins shown.")
+
+    def short(self) -> str:
+        """A short status for a settings panel or status bar."""
+        p = self.preset
+        if p is None:
+            return "No built-in radio limit covers this frequency: check the market's rules."
+        if self.over_ceiling:
+            return (f"ABOVE the {p.label} ceiling of {self.allowed_peak_dbm:.1f} dBm peak by {self.excess_db:.1f} dB: "
+                    f"margins at the ceiling are {self.excess_db:.1f} dB lower.")
+        if p.market == "US":
+            return (f"Within {p.label}: up to {self.allowed_peak_dbm:.1f} dBm peak allowed (averaging factor "
+                    f"{self.averaging_factor_db:+.1f} dB" + ("" if self.averaging_factor_db else ", none taken") + ").")
+        duty = "" if self.duty_cycle is None else f", duty cycle {100 * self.duty_cycle:.2g} %"
+        return (f"Within {p.label}: up to {self.limit_dbm:.1f} dBm during transmission{duty}."
+                + (" DUTY CYCLE OVER THE LIMIT." if self.duty_cycle_over else ""))
+
+    def summary(self) -> str:
+        """One sentence: the comparison and how averaging was treated."""
+        p = self.preset
+        if p is None:
+            return (f"Sensor peak EIRP {self.peak_eirp_dbm:.2f} dBm: no built-in radio-limit rule covers this "
+                    "frequency; check the market's rules.")
+        if self.over_ceiling:
+            text = self.warning()
+        elif p.market == "US":
+            text = (f"Sensor peak EIRP {self.peak_eirp_dbm:.2f} dBm is within {p.label}: average-equivalent "
+                    f"{self.average_eirp_dbm:.2f} dBm against the {self.limit_dbm:.2f} dBm average limit "
+                    f"({self.averaging}), peak against the {self.peak_limit_dbm:.2f} dBm peak limit (15.35(b): "
+                    f"average limit + {FCC_PEAK_ABOVE_AVERAGE_DB:g} dB); highest allowed peak "
+                    f"{self.allowed_peak_dbm:.2f} dBm.")
+        else:
+            text = (f"Sensor peak EIRP {self.peak_eirp_dbm:.2f} dBm is within {p.label}: {self.limit_dbm:.2f} dBm "
+                    f"during transmission ({self.averaging}).")
+        return " ".join([text, *self.notes])
+
+    def to_dict(self) -> dict:
+        p = self.preset
+
+        def r(x, nd=3):
+            return None if x is None else round(float(x), nd)
+
+        return {
+            "over_ceiling": self.over_ceiling,
+            "message": self.summary(),
+            "rule": p.label if p else None,
+            "rule_source": p.source if p else None,
+            "market": p.market if p else None,
+            "peak_eirp_dbm": r(self.peak_eirp_dbm),
+            "averaging_factor_db": r(self.averaging_factor_db),
+            "averaging": self.averaging,
+            "average_eirp_dbm": r(self.average_eirp_dbm),
+            "limit_dbm": r(self.limit_dbm),
+            "peak_limit_dbm": r(self.peak_limit_dbm),
+            "ceiling_dbm": r(self.allowed_peak_dbm),
+            "excess_db": r(self.excess_db),
+            "margin_shift_db": r(self.margin_shift_db),
+            "duty_cycle": r(self.duty_cycle, 6),
+            "duty_cycle_limit": r(self.duty_cycle_limit, 6),
+        }
+
+
+def check_sensor_eirp(radio) -> EirpCheck:
+    """Compare the sensor's peak EIRP with the radio limit of its market (module notes: peak and average).
+
+    ``radio`` is a ``core.vehicle.Radio`` (read: frequency_hz, sensor_eirp_dbm, market,
+    frames_per_burst, frame_interval_s, frame_duration_s, burst_period_s, averaging_factor_db).
+    The market is ``radio.market`` or, when unset, the default of :func:`eirp_ceiling_dbm`.
+    """
+    peak = float(radio.sensor_eirp_dbm)
+    market = getattr(radio, "market", None)
+    preset = eirp_ceiling_dbm(radio.frequency_hz, market)
+    tau = getattr(radio, "frame_duration_s", None)
+    given = getattr(radio, "averaging_factor_db", None)
+    k, t = int(radio.frames_per_burst), float(radio.frame_interval_s)
+    if preset is None:
+        return EirpCheck(None, peak, 0.0, "no rule built in", peak, None, None, None, 0.0)
+    if preset.market == "EU":
+        notes = []
+        duty = limit = None
+        period = getattr(radio, "burst_period_s", None)
+        if tau is not None and period is not None:
+            duty = k * float(tau) / float(period)
+            limit = ETSI_433_DUTY_CYCLE
+            if duty > limit:
+                notes.append(f"DUTY CYCLE OVER THE LIMIT: {100 * duty:.3g} % ({k} x {tau * 1e3:g} ms every "
+                             f"{period:g} s) against {100 * limit:g} %.")
+            else:
+                notes.append(f"Duty cycle {100 * duty:.3g} % ({k} x {tau * 1e3:g} ms every {period:g} s), limit "
+                             f"{100 * limit:g} %.")
+        else:
+            notes.append("Duty cycle not checked (give radio.frame_duration_s and radio.burst_period_s).")
+        how = "e.r.p. during transmission, no averaging; duty cycle limited separately"
+        return EirpCheck(preset, peak, 0.0, how, peak, preset.eirp_dbm, preset.eirp_dbm, preset.eirp_dbm,
+                         peak - preset.eirp_dbm, duty, limit, tuple(notes))
+    if given is not None:
+        factor = float(given)
+        how = f"averaging factor {factor:.2f} dB as given in the file (an assumption, not computed)"
+    elif tau is not None:
+        share, _avg_s, what = pulse_train_on_share(float(tau), k, t)
+        factor = float(averaging_factor_db(share))
+        how = (f"averaging factor {factor:.2f} dB = 20 log10({share:.4g}): {what}; 47 CFR 15.35(c) averaging (from "
+               "memory; confirm against the rule's text)")
+    else:
+        factor = 0.0
+        how = "no frame timing given: peak compared with the average limit, no averaging credit (conservative)"
+    limit = preset.eirp_dbm
+    peak_limit = limit + FCC_PEAK_ABOVE_AVERAGE_DB
+    allowed = min(limit - factor, peak_limit)
+    return EirpCheck(preset, peak, factor, how, peak + factor, limit, peak_limit, allowed, peak - allowed)

@@ -12,11 +12,9 @@ The model objects are frozen (immutable); an edit makes a new object with
 
 from __future__ import annotations
 
-import contextlib
 import json
 import math
 import os
-import tempfile
 from pathlib import Path
 from typing import Annotated, Literal
 
@@ -25,8 +23,15 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_valida
 from shapely.geometry import Polygon
 from shapely.validation import explain_validity
 
+from core import files
+from core.files import InputFileError, read_regular_file
 from core.materials import BUILTIN_MATERIALS
 from core.tires import TireSize, parse_tire_code
+
+# The atomic writers live in core.files (permissions, links, read-only files, signals); kept here for callers.
+atomic_path = files.atomic_path
+atomic_write_bytes = files.atomic_write_bytes
+atomic_write_text = files.atomic_write_text
 
 FORMAT_NAME = "wheelreach-vehicle"
 FORMAT_VERSION = 1
@@ -217,6 +222,10 @@ class Radio(_Strict):
     worst_case_percentile: float = Field(0.0, ge=0.0, le=50.0)
     frames_per_burst: int = Field(4, ge=1, le=100)
     frame_interval_s: float = Field(0.1, gt=0.0, le=10.0)
+    frame_duration_s: float | None = Field(None, gt=0.0, le=1.0)
+    burst_period_s: float | None = Field(None, gt=0.0, le=86400.0)
+    averaging_factor_db: float | None = Field(None, ge=-60.0, le=0.0)
+    market: Literal["US", "EU"] | None = None
     speed_min_mps: float = Field(0.0, ge=0.0, le=100.0)
     speed_max_mps: float = Field(44.5, ge=0.0, le=100.0)
     ground_reflection: bool = True
@@ -225,7 +234,8 @@ class Radio(_Strict):
 
     @property
     def sensor_eirp_dbm(self) -> float:
-        """Peak sensor EIRP, dBm: given directly, or conducted power + gain - mismatch loss."""
+        """Peak sensor EIRP (power while a frame is on the air), dBm: given directly, or conducted power + gain -
+        mismatch loss. Against the radio limits: core.regulatory.check_sensor_eirp (uses the timing fields)."""
         from core.propagation import mismatch_loss_db
 
         s = self.sensor
@@ -478,12 +488,29 @@ def check_vehicle(v: Vehicle) -> None:
         raise VehicleFileError("give eirp_dbm or conducted_power_dbm + antenna_gain_dbi, not both", "radio.sensor")
     if radio.speed_max_mps < radio.speed_min_mps:
         raise VehicleFileError("speed_max_mps is below speed_min_mps", "radio.speed_max_mps")
+    _check_timing(radio)
     from core.materials import ROAD_SURFACES
 
     if radio.road_surface not in ROAD_SURFACES:
         raise VehicleFileError(
             f"unknown road surface {radio.road_surface!r} (known: {', '.join(ROAD_SURFACES)})", "radio.road_surface"
         )
+
+
+def _check_timing(radio: Radio) -> None:
+    """Transmission timing used by the radio-limit check (core.regulatory.check_sensor_eirp)."""
+    tau = radio.frame_duration_s
+    if tau is not None and radio.frames_per_burst > 1 and tau > radio.frame_interval_s:
+        raise VehicleFileError(
+            f"frames of {tau * 1e3:g} ms overlap at the frame interval of {radio.frame_interval_s * 1e3:g} ms",
+            "radio.frame_duration_s")
+    if radio.burst_period_s is not None:
+        burst = (radio.frames_per_burst - 1) * radio.frame_interval_s + (tau or 0.0)
+        if radio.burst_period_s < burst:
+            raise VehicleFileError(f"burst period is shorter than one burst ({burst:g} s)", "radio.burst_period_s")
+    if tau is not None and radio.averaging_factor_db is not None:
+        raise VehicleFileError("give frame_duration_s (averaging computed from the timing) or averaging_factor_db "
+                               "(an assumed factor), not both", "radio.averaging_factor_db")
 
 
 def _unique(names: list[str], group: str, key: str) -> None:
@@ -546,13 +573,22 @@ def vehicle_from_dict(data: dict, path: str | os.PathLike | None = None) -> Vehi
 def load_vehicle(path: str | os.PathLike) -> Vehicle:
     """Load and validate a vehicle file; raise VehicleFileError naming the file and field."""
     p = Path(path)
+    return parse_vehicle(read_vehicle_bytes(p), p)
+
+
+#: largest vehicle file read, bytes
+MAX_FILE_BYTES = 20_000_000
+
+
+def read_vehicle_bytes(path: str | os.PathLike) -> bytes:
+    """The bytes of a vehicle file: a regular file of at most MAX_FILE_BYTES (core.files.read_regular_file:
+    folders, named pipes and devices are refused before reading); raise VehicleFileError naming the file."""
     try:
-        raw = p.read_bytes()
+        return read_regular_file(path, MAX_FILE_BYTES)
+    except InputFileError as e:
+        raise VehicleFileError(e.problem, "", path) from None
     except OSError as e:
-        raise VehicleFileError(f"cannot read the file: {e.strerror or e}", "", p) from None
-    if len(raw) > 20_000_000:
-        raise VehicleFileError("file is larger than 20 MB; not a vehicle file", "", p)
-    return parse_vehicle(raw, p)
+        raise VehicleFileError(f"cannot read the file: {e.strerror or e}", "", path) from None
 
 
 def vehicle_to_dict(v: Vehicle) -> dict:
@@ -570,39 +606,6 @@ def save_vehicle(v: Vehicle, path: str | os.PathLike) -> None:
     """
     check_vehicle(v)
     atomic_write_text(Path(path), vehicle_to_json(v))
-
-
-def atomic_write_text(path: Path, text: str) -> None:
-    """Write text to path atomically (same-folder temporary file, fsync, os.replace)."""
-    atomic_write_bytes(path, text.encode("utf-8"))
-
-
-@contextlib.contextmanager
-def atomic_path(path: str | os.PathLike):
-    """Yield a temporary path beside ``path`` to write; on success fsync it and rename it over
-    ``path``; on any error remove it, so an existing file at ``path`` is never left half-written."""
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
-    os.close(fd)
-    try:
-        yield tmp
-        with open(tmp, "rb+") as fh:
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-
-
-def atomic_write_bytes(path: Path, data: bytes) -> None:
-    """Write bytes to path atomically (same-folder temporary file, fsync, os.replace)."""
-    with atomic_path(path) as tmp:
-        with os.fdopen(os.open(tmp, os.O_WRONLY | os.O_TRUNC), "wb") as f:
-            f.write(data)
-            f.flush()
 
 
 def json_schema() -> dict:

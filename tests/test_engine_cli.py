@@ -7,6 +7,8 @@ engine (core.scoring) it reports.
 from __future__ import annotations
 
 import csv
+import hashlib
+import io
 import json
 import subprocess
 import sys
@@ -15,15 +17,17 @@ import numpy as np
 import pytest
 
 from app.cli.main import main
+from core.provenance import read_csv_preamble
 from core.scoring import Scene, heatmap, score_spots, score_vehicle
 from core.vehicle import load_vehicle
 from engine_vehicles import REPO, SEDAN_PATH, sedan
 
 WHEEL_KEYS = {"wheel", "worst_dbm", "worst_angle_deg", "median_dbm", "levels_dbm"}
-SPOT_KEYS = {"rank", "name", "position_m", "margin_db", "worst_wheel", "worst_angle_deg", "near_field", "placement",
-             "wheels"}
+SPOT_KEYS = {"rank", "name", "position_m", "receiver_axis", "margin_db", "margin_at_ceiling_db", "worst_wheel",
+             "worst_angle_deg", "near_field", "placement", "wheels"}
 PLACEMENT_KEYS = {"status", "distance_to_surface_m", "wheelhouse_of", "message"}
-TOP_KEYS = {"vehicle", "body_style", "frequency_hz", "sensitivity_dbm", "required_margin_db", "angles_deg", "spots"}
+TOP_KEYS = {"radio_limit", "vehicle", "body_style", "frequency_hz", "sensitivity_dbm", "required_margin_db",
+            "angles_deg", "spots", "setup"}
 
 
 def _rank_json(capsys, *extra) -> dict:
@@ -103,9 +107,14 @@ def test_heatmap_csv_holds_every_cell_of_the_grid(capsys, tmp_path):
     assert main(["heatmap", str(SEDAN_PATH), "--view", "top", "--step", "0.3", "--angles", "24", "--quiet",
                  "--csv", str(out)]) == 0
     assert f"wrote {out}" in capsys.readouterr().out
-    with out.open(newline="") as f:
-        rows = list(csv.DictReader(f))
-    assert rows and list(rows[0]) == ["x_m", "y_m", "z_m", "margin_db", "worst_wheel"]
+    radio_limit, setup, body = read_csv_preamble(out.read_text())
+    rows = list(csv.DictReader(io.StringIO(body)))
+    assert rows and list(rows[0]) == ["x_m", "y_m", "z_m", "margin_db", "worst_wheel", "margin_at_ceiling_db"]
+    # the header comment carries the setup (docs/cli-json.md): file hash, overrides, grid
+    assert setup["overrides"]["angles_per_turn"] == 24 and setup["output"]["heatmap"]["step_m"] == 0.3
+    assert setup["vehicle_file"]["sha256"] == hashlib.sha256(SEDAN_PATH.read_bytes()).hexdigest()
+    assert radio_limit["over_ceiling"] is False
+    assert all(float(r["margin_at_ceiling_db"]) == float(r["margin_db"]) for r in rows)  # within the ceiling
     v = sedan(angles_per_turn=24)
     scene = Scene.from_vehicle(v)
     region = [r for r in v.regions if r.view == "top"][0]
@@ -122,8 +131,7 @@ def test_side_heatmap_csv_at_a_lateral_position(capsys, tmp_path):
     out = tmp_path / "side.csv"
     assert main(["heatmap", str(SEDAN_PATH), "--view", "side", "--y", "0.2", "--step", "0.4", "--angles", "24",
                  "--quiet", "--csv", str(out)]) == 0
-    with out.open(newline="") as f:
-        rows = list(csv.DictReader(f))
+    rows = list(csv.DictReader(io.StringIO(read_csv_preamble(out.read_text())[2])))
     assert rows and all(float(r["y_m"]) == 0.2 for r in rows)
     assert all(np.isfinite(float(r["margin_db"])) for r in rows)
 
@@ -134,5 +142,7 @@ def test_cli_json_doc_describes_every_key(capsys):
     doc = _rank_json(capsys, "--angles", "8")
     keys = set(doc) | set(doc["spots"][0]) | set(doc["spots"][0]["wheels"][0]) | set(doc["spots"][0]["placement"])
     assert keys == TOP_KEYS | SPOT_KEYS | WHEEL_KEYS | PLACEMENT_KEYS
+    keys |= set(doc["radio_limit"]) | set(doc["setup"]) | set(doc["setup"]["vehicle_file"])
+    keys |= set(doc["setup"]["program"]) | set(doc["setup"]["overrides"]) | set(doc["setup"]["wheel_model"])
     missing = [k for k in sorted(keys) if f"| `{k}` |" not in text]
     assert not missing, missing

@@ -24,6 +24,7 @@ pypdf = pytest.importorskip("pypdf")
 
 from app.cli.main import main
 from app.report.data import CAUTION
+from core.provenance import read_csv_preamble
 from core.scoring import Scene, heatmap, score_vehicle
 from core.vehicle import load_vehicle
 
@@ -89,7 +90,7 @@ def test_json_and_csv_equal_the_engine(reports, path):
             assert wd["wheel"] == sc.wheel_ids[w]
             assert wd["worst_dbm"] == pytest.approx(sc.worst_dbm[i, w], abs=tol)
             np.testing.assert_allclose(wd["levels_dbm"], sc.levels_dbm[i, w], atol=tol)
-    rows = list(csv.DictReader(io.StringIO(r["csv"].read_text())))
+    rows = list(csv.DictReader(io.StringIO(read_csv_preamble(r["csv"].read_text())[2])))
     spot_rows = {row["spot"]: row for row in rows if row["record"] == "spot"}
     for i, name in enumerate(sc.names):
         assert float(spot_rows[name]["margin_db"]) == pytest.approx(sc.margin_db[i], abs=tol)
@@ -107,7 +108,8 @@ def test_heatmap_export_equals_the_engine_grid(reports):
     v = load_vehicle(r["path"])
     scene = Scene.from_vehicle(v)
     doc = json.loads(r["json"].read_text())
-    rows = [row for row in csv.DictReader(io.StringIO(r["csv"].read_text())) if row["record"] == "cell"]
+    rows = [row for row in csv.DictReader(io.StringIO(read_csv_preamble(r["csv"].read_text())[2]))
+            if row["record"] == "cell"]
     for region, exported in zip(v.regions, doc["heatmaps"]):
         hm = heatmap(scene, region, STEP_M)
         got = np.array([[np.nan if m is None else m for m in row] for row in exported["margin_db"]], float)

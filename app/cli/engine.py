@@ -9,7 +9,7 @@ import numpy as np
 from pydantic import ValidationError
 
 from app.report.rank_json import rank_document
-from core.vehicle import Spot, load_vehicle
+from core.vehicle import Spot
 
 
 def _parse_spot(text: str) -> Spot:
@@ -30,28 +30,34 @@ def _parse_spot(text: str) -> Spot:
 
 
 def _load_with_spots(args):
-    from core.vehicle import check_vehicle
+    """(vehicle with the command's overrides, its ``vehicle_file`` record, the overrides) - core.provenance."""
+    from core.provenance import apply_overrides, load_with_source
 
-    v = load_vehicle(args.file)
+    v, source = load_with_source(args.file)
     extra = [_parse_spot(s) for s in (args.spot or [])]
-    radio = v.radio
-    if getattr(args, "angles", None):
-        radio = radio.model_copy(update={"angles_per_turn": args.angles})
-    if getattr(args, "no_ground", False):
-        radio = radio.model_copy(update={"ground_reflection": False})
-    if getattr(args, "wheel_model", None):
-        radio = radio.model_copy(update={"wheel_model": args.wheel_model})
-    v = v.model_copy(update={"spots": v.spots + tuple(extra), "radio": radio})
-    check_vehicle(v)
-    return v
+    overrides = {
+        "angles_per_turn": getattr(args, "angles", None),
+        "ground_reflection": False if getattr(args, "no_ground", False) else None,
+        "wheel_model": getattr(args, "wheel_model", None),
+        "extra_spots": [s.model_dump(mode="json", exclude_none=True) for s in extra],
+    }
+    return apply_overrides(v, overrides, args.file), source, overrides
+
+
+def _setup(args, v, scene, source, overrides, extra=None) -> dict:
+    from core.provenance import setup_record
+
+    return setup_record(v, scene, source, getattr(args, "command_line", None), overrides, extra)
 
 
 def _cmd_rank(args) -> int:
+    from core.regulatory import check_sensor_eirp
     from core.scoring import Scene, score_vehicle
 
-    v = _load_with_spots(args)
+    v, source, overrides = _load_with_spots(args)
     if not v.spots:
-        print("error: the file has no receiver spots; add some with --spot NAME=X,Y,Z", file=sys.stderr)
+        print(f"error: {args.file}: spots: the file has no receiver spots; add some with --spot NAME=X,Y,Z",
+              file=sys.stderr)
         return 1
     from core.placement import classify
 
@@ -59,12 +65,19 @@ def _cmd_rank(args) -> int:
     scores = score_vehicle(v, scene)
     placement = classify(scene, scores.positions)
     if args.json:
-        print(json.dumps(rank_document(v, scores, placement), indent=1))
+        print(json.dumps(rank_document(v, scores, _setup(args, v, scene, source, overrides), placement), indent=1))
         return 0
+    check = check_sensor_eirp(v.radio)
+    if check.over_ceiling:
+        print(check.warning())
     print(f"{v.name} ({v.body_style}), {v.radio.frequency_hz / 1e6:.2f} MHz, sensitivity "
           f"{scores.sensitivity_dbm:.1f} dBm, required margin {scores.required_margin_db:.1f} dB, "
           f"{len(scores.angles_deg)} angles per turn, wheel model: {scene.wheel_model_label}")
-    print(f"{'rank':>4}  {'spot':<24} {'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}  {'worst wheel':<11} "
+    print(f"worst case: {scene.score_method}")
+    if not check.over_ceiling:
+        print(f"radio limit: {check.summary()}")
+    at = f" {'at ceiling':>10}" if check.over_ceiling else ""
+    print(f"{'rank':>4}  {'spot':<24} {'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}{at}  {'worst wheel':<11} "
           f"{'at deg':>6}  placement")
     for rank, i in enumerate(scores.order(), 1):
         x, y, z = scores.positions[i]
@@ -72,7 +85,8 @@ def _cmd_rank(args) -> int:
         flag = placement.flag(i) or "ok"
         if scores.near_field[i]:
             flag += ", near field"
-        print(f"{rank:>4}  {scores.names[i]:<24} {x:7.3f} {y:7.3f} {z:7.3f} {scores.margin_db[i]:10.1f}  "
+        at = f" {float(check.margin_at_ceiling_db(scores.margin_db[i])):10.1f}" if check.over_ceiling else ""
+        print(f"{rank:>4}  {scores.names[i]:<24} {x:7.3f} {y:7.3f} {z:7.3f} {scores.margin_db[i]:10.1f}{at}  "
               f"{scores.wheel_ids[w]:<11} {scores.worst_angle_deg[i, w]:6.0f}  {flag}")
     for i, msg in placement.messages():
         print(f"warning: spots[{i}] {scores.names[i]!r}: {msg}")
@@ -98,10 +112,14 @@ class _Progress:
 
 
 def _cmd_heatmap(args) -> int:
+    from core.files import atomic_write_text, check_outputs
+    from core.provenance import csv_preamble
+    from core.regulatory import check_sensor_eirp
     from core.scoring import Scene, heatmap
     from core.vehicle import Region
 
-    v = _load_with_spots(args)
+    check_outputs({"--csv": args.csv}, [args.file])  # before any computing: one located line, exit 1
+    v, source, overrides = _load_with_spots(args)
     regions = [r for r in v.regions if r.view == args.view]
     if args.region:
         regions = [r for r in regions if r.name == args.region]
@@ -117,26 +135,35 @@ def _cmd_heatmap(args) -> int:
     scene = Scene.from_vehicle(v)
     show = args.progress or (sys.stderr.isatty() and not args.quiet)
     hm = heatmap(scene, region, args.step, progress=_Progress(show))
+    check = check_sensor_eirp(v.radio)
     fixed = "z" if hm.view == "top" else "y"
     ok, cells = hm.meeting(0.0)
     excluded = ", ".join(f"{n} {why}" for why, n in hm.excluded().items() if n)
+    if check.over_ceiling:
+        ok_c, _ = hm.meeting(check.margin_shift_db)
+        print(check.warning() + f" At the ceiling {ok_c} of {cells} computed cells meet the margin.")
     print(f"{v.name}: {region.name!r}, {hm.view} view at {fixed} = {hm.fixed_m:.3f} m, step {args.step * 1000:.0f} mm, "
           f"{cells} cells computed, {ok} with margin >= 0 dB ({100.0 * ok / max(cells, 1):.0f} % of the computed cells)")
     if excluded:
         print(f"not computed (not a receiver position): {excluded}")
-    print(f"{'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}  worst wheel")
+    at = f" {'at ceiling':>10}" if check.over_ceiling else ""
+    print(f"{'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}{at}  worst wheel")
     for x, y, z, m, w in hm.best_cells(args.top):
-        print(f"{x:7.3f} {y:7.3f} {z:7.3f} {m:10.1f}  {scene.wheel_ids[w]}")
+        at = f" {float(check.margin_at_ceiling_db(m)):10.1f}" if check.over_ceiling else ""
+        print(f"{x:7.3f} {y:7.3f} {z:7.3f} {m:10.1f}{at}  {scene.wheel_ids[w]}")
     if args.csv:
-        from core.vehicle import atomic_write_text
-        from pathlib import Path
-
-        lines = ["x_m,y_m,z_m,margin_db,worst_wheel"]
+        axis = np.asarray(v.radio.receiver.axis, float)
+        grid = {"heatmap": {"region": region.name, "view": hm.view, "fixed_coordinate": fixed,
+                            "fixed_m": round(float(hm.fixed_m), 4), "step_m": args.step,
+                            "receiver_axis": [round(float(a), 6) for a in axis / np.linalg.norm(axis)]}}
+        lines = [csv_preamble(check, _setup(args, v, scene, source, overrides, grid)) +
+                 "x_m,y_m,z_m,margin_db,worst_wheel,margin_at_ceiling_db"]
         pts = hm.points().reshape(-1, 3)
-        for p, m, w in zip(pts, hm.margin_db.reshape(-1), hm.worst_wheel.reshape(-1)):
+        at_ceiling = check.margin_at_ceiling_db(hm.margin_db).reshape(-1)
+        for p, m, w, mc in zip(pts, hm.margin_db.reshape(-1), hm.worst_wheel.reshape(-1), at_ceiling):
             if np.isfinite(m):
-                lines.append(f"{p[0]:.4f},{p[1]:.4f},{p[2]:.4f},{m:.3f},{scene.wheel_ids[w]}")
-        atomic_write_text(Path(args.csv), "\n".join(lines) + "\n")
+                lines.append(f"{p[0]:.4f},{p[1]:.4f},{p[2]:.4f},{m:.3f},{scene.wheel_ids[w]},{mc:.3f}")
+        atomic_write_text(args.csv, "\n".join(lines) + "\n")
         print(f"wrote {args.csv}")
     return 0
 

@@ -8,8 +8,8 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from pathlib import Path
 
+from core.files import install_signal_cleanup
 from core.vehicle import VehicleFileError, json_schema, load_vehicle
 
 
@@ -94,6 +94,9 @@ def main(argv: list[str] | None = None) -> int:
     if not argv or (argv[0] not in commands and argv[0] not in ("-h", "--help")):
         argv = ["gui", *argv]
     args = parser.parse_args(argv)
+    args.command_line = ["wheelreach", *argv]  # recorded in every output's setup (core.provenance)
+    if args.command != "gui":  # batch commands: SIGTERM/SIGHUP end through SystemExit, temporary files removed
+        install_signal_cleanup()
     try:
         return args.func(args)
     except VehicleFileError as e:
@@ -105,6 +108,9 @@ def main(argv: list[str] | None = None) -> int:
     except BrokenPipeError:  # output piped into e.g. head
         sys.stderr.close()
         return 0
+    except OSError as e:  # an output path refused before computing (core.files), or a write that failed
+        print(f"error: {e}", file=sys.stderr)
+        return 1
 
 
 if __name__ == "__main__":

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import sys
-from pathlib import Path
 
 from core.compare import LANDMARKS
 
@@ -11,15 +10,22 @@ from core.compare import LANDMARKS
 def _cmd_report(args) -> int:
     import os
 
+    from core.files import check_outputs
+
+    # every output path first, before Qt is even loaded (write_report checks them again for other callers)
+    check_outputs({"-o": args.output, "--csv": args.csv, "--json": args.json}, [args.file])
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     from app.report.pdf import write_report
 
     if not args.step > 0:
         print("error: --step must be positive", file=sys.stderr)
         return 1
-    d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step)
+    d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step,
+                        command_line=getattr(args, "command_line", None))
     s = d.scores
     b = d.best_index()  # the best-ranked spot that is a receiver position (core.placement)
+    if d.eirp_check.over_ceiling:
+        print(d.eirp_check.warning())
     print(f"wrote {args.output}: {n} pages; {d.vehicle.name}; best spot '{s.names[b]}' at {s.margin_db[b]:+.1f} dB "
           f"(worst wheel {s.wheel_ids[s.worst_wheel[b]]})")
     for p in (args.csv, args.json):
@@ -31,9 +37,11 @@ def _cmd_report(args) -> int:
 def _cmd_compare(args) -> int:
     from app.report.compare import comparison_csv, comparison_text
     from core.compare import NoSharedRegion, compare_bodies, search_common_position
+    from core.files import atomic_write_text, check_outputs
     from core.scoring import Scene
-    from core.vehicle import atomic_write_text, load_vehicle
+    from core.vehicle import load_vehicle
 
+    check_outputs({"-o": args.output, "--csv": args.csv}, args.files)  # before any computing
     vehicles = [load_vehicle(f) for f in args.files]  # a bad file stops here with its located message
     scenes = [Scene.from_vehicle(v) for v in vehicles]
     c = compare_bodies(vehicles, scenes)
@@ -45,7 +53,7 @@ def _cmd_compare(args) -> int:
             err = str(e)
     print(comparison_text(c, search, err))
     if args.csv:
-        atomic_write_text(Path(args.csv), comparison_csv(c, search))
+        atomic_write_text(args.csv, comparison_csv(c, search))
         print(f"wrote {args.csv}")
     if args.output:
         import os

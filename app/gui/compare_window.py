@@ -10,7 +10,6 @@ position is drawn as a square marker in every top view.
 
 from __future__ import annotations
 
-from pathlib import Path
 
 import numpy as np
 from PySide6.QtCore import QRectF, QSize, Qt, QThread, Signal

@@ -38,6 +38,7 @@ from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
 from core.placement import INSIDE, NEAR_SURFACE, classify
 from core.scoring import EXCLUDED_CELL_NAMES
+from core.regulatory import check_sensor_eirp
 
 KMH_PER_MPS = 3.6
 STEPS_MM = (25, 50, 100, 200)
@@ -350,11 +351,15 @@ class SpotTable(QTableWidget):
             sc = self.doc.scores
             order = sc.order()
             pl = classify(self.doc.scene, sc.positions)
+            check = check_sensor_eirp(self.doc.vehicle.radio)  # over the ceiling: show the margin there too
+            self.horizontalHeaderItem(3).setText("margin dB (at ceiling)" if check.over_ceiling else "margin dB")
+            self.setColumnWidth(3, 150 if check.over_ceiling else 78)
             self.setRowCount(len(order))
             for rank, i in enumerate(order):
                 w = int(sc.worst_wheel[i])
                 m = float(sc.margin_db[i])
-                cells = (str(rank + 1), str(i + 1), sc.names[i], f"{m:+.1f}", sc.wheel_ids[w], f"{sc.worst_angle_deg[i, w]:.0f}")
+                mt = f"{m:+.1f} ({float(check.margin_at_ceiling_db(m)):+.1f})" if check.over_ceiling else f"{m:+.1f}"
+                cells = (str(rank + 1), str(i + 1), sc.names[i], mt, sc.wheel_ids[w], f"{sc.worst_angle_deg[i, w]:.0f}")
                 for c, text in enumerate(cells):
                     item = QTableWidgetItem(text)
                     if c in (0, 1, 3, 5):

@@ -31,13 +31,14 @@ from PySide6.QtWidgets import (
 from app.gui import edits
 from app.gui.document import Document
 from core.materials import BUILTIN_MATERIALS, ROAD_SURFACES, material_loss_db
-from core.regulatory import EIRP_PRESETS
+from core.regulatory import EIRP_PRESETS, check_sensor_eirp
 
 KMH_PER_MPS = 3.6
 FREQUENCY_PRESETS_MHZ = (("315 MHz band", 315.0), ("433.92 MHz band", 433.92))
 AXES = (("x, forward", (1.0, 0.0, 0.0)), ("y, left", (0.0, 1.0, 0.0)), ("z, up", (0.0, 0.0, 1.0)))
 SENSOR_AXES = (("radial", "radial"), ("tangential", "tangential"), ("axial (along the wheel axle)", "axial"))
 PATTERNS = (("short dipole", "dipole"), ("isotropic", "isotropic"))
+MARKETS = (("market by band", None), ("US: 47 CFR 15.231(b)", "US"), ("EU: ERC/REC 70-03, EN 300 220", "EU"))
 
 
 def installed_pattern_available() -> bool:
@@ -112,6 +113,12 @@ class RadioPanel(QWidget):
             self.eirp_preset.setItemData(self.eirp_preset.count() - 1, p.source, Qt.ItemDataRole.ToolTipRole)
         f.addRow("Sensor EIRP", self.eirp)
         f.addRow("", self.eirp_preset)
+        self.market = _combo(MARKETS, "Market whose radio limit the sensor EIRP is checked against (by band: EU inside "
+                                      "433.05-434.79 MHz, US elsewhere in 260-470 MHz)")
+        f.addRow("Radio limit", self.market)
+        self.limit_status = QLabel()
+        self.limit_status.setWordWrap(True)
+        f.addRow("", self.limit_status)
         self.sensor_pattern = _combo(PATTERNS, "Sensor antenna pattern")
         self.sensor_axis = _combo(SENSOR_AXES, "Sensor antenna axis in the wheel frame (turns with the wheel)")
         row = QHBoxLayout()
@@ -156,6 +163,17 @@ class RadioPanel(QWidget):
         row.addWidget(QLabel("frames every"))
         row.addWidget(self.interval)
         f.addRow("Burst", row)
+        self.frame_ms = _spin(0.0, 1000.0, 1, 1.0, " ms", "On-air time of one frame, ms (stored in s); 0 = not given. "
+                              "Sets the averaging of the peak EIRP against an average limit (47 CFR 15.35)")
+        self.frame_ms.setSpecialValueText("not given")
+        self.period = _spin(0.0, 86400.0, 1, 10.0, " s", "Time from one burst to the next, s; 0 = not given. "
+                            "Sets the duty cycle checked against EN 300 220")
+        self.period.setSpecialValueText("not given")
+        row = QHBoxLayout()
+        row.addWidget(self.frame_ms)
+        row.addWidget(QLabel("burst every"))
+        row.addWidget(self.period)
+        f.addRow("Frame", row)
         self.speed_min = _spin(0.0, 360.0, 0, 5.0, " km/h", "Lowest vehicle speed of the burst sweep, km/h (stored in m/s)")
         self.speed_max = _spin(0.0, 360.0, 0, 5.0, " km/h", "Highest vehicle speed of the burst sweep, km/h (stored in m/s)")
         row = QHBoxLayout()
@@ -214,6 +232,10 @@ class RadioPanel(QWidget):
         self.angles.valueChanged.connect(lambda n: self._edit("angles_per_turn", n, "Angles per turn"))
         self.frames.valueChanged.connect(lambda n: self._edit("frames_per_burst", n, "Frames per burst"))
         self.interval.valueChanged.connect(lambda x: self._edit("frame_interval_s", x / 1000.0, "Frame interval"))
+        self.frame_ms.valueChanged.connect(lambda x: self._edit("frame_duration_s", x / 1000.0 if x > 0 else None,
+                                                                "Frame duration"))
+        self.period.valueChanged.connect(lambda x: self._edit("burst_period_s", x if x > 0 else None, "Burst period"))
+        self.market.activated.connect(lambda _i: self._edit("market", self.market.currentData(), "Radio-limit market"))
         self.speed_min.valueChanged.connect(lambda x: self._edit("speed_min_mps", x / KMH_PER_MPS, "Lowest speed"))
         self.speed_max.valueChanged.connect(lambda x: self._edit("speed_max_mps", x / KMH_PER_MPS, "Highest speed"))
         self.ground.toggled.connect(lambda on: self._edit("ground_reflection", bool(on), "Road reflection " + ("on" if on else "off")))
@@ -264,6 +286,14 @@ class RadioPanel(QWidget):
             self.angles.setValue(r.angles_per_turn)
             self.frames.setValue(r.frames_per_burst)
             self.interval.setValue(r.frame_interval_s * 1000.0)
+            self.frame_ms.setValue(0.0 if r.frame_duration_s is None else r.frame_duration_s * 1000.0)
+            self.period.setValue(0.0 if r.burst_period_s is None else r.burst_period_s)
+            _set_combo(self.market, r.market)
+            check = check_sensor_eirp(r)
+            self.limit_status.setText(check.short())
+            self.limit_status.setToolTip(check.summary())
+            self.limit_status.setStyleSheet("color: #b00000; font-weight: bold" if check.over_ceiling
+                                            or check.duty_cycle_over else "color: #404040")
             self.speed_min.setValue(r.speed_min_mps * KMH_PER_MPS)
             self.speed_max.setValue(r.speed_max_mps * KMH_PER_MPS)
             self.ground.setChecked(r.ground_reflection)

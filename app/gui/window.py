@@ -30,6 +30,7 @@ from app.gui.body_views import BodyView
 from app.gui.document import Document
 from app.gui.ranking_panel import RankingPanel
 from app.gui.settings_panel import RadioPanel, ZonesPanel
+from core.regulatory import check_sensor_eirp
 from core.vehicle import VehicleFileError, atomic_write_text, vehicle_from_dict, vehicle_to_dict
 
 AUTOSAVE_MS = 120_000
@@ -245,8 +246,13 @@ class MainWindow(QMainWindow):
 
     def _update_model_label(self) -> None:
         s = self.doc.scene
+        check = check_sensor_eirp(self.doc.vehicle.radio)
+        first = (f"RADIO LIMIT EXCEEDED by {check.excess_db:.1f} dB (margins at the ceiling {check.excess_db:.1f} dB "
+                 "lower)  |  " if check.over_ceiling else "")
+        self.model_label.setStyleSheet("color: #b00000; font-weight: bold" if check.over_ceiling else "")
+        self.model_label.setToolTip(check.summary())
         self.model_label.setText(
-            f"{s.freq_hz / 1e6:.2f} MHz  |  sensor EIRP {s.eirp_dbm:.1f} dBm  |  sensitivity {s.sensitivity_dbm:.0f} dBm  |  "
+            f"{first}{s.freq_hz / 1e6:.2f} MHz  |  sensor EIRP {s.eirp_dbm:.1f} dBm  |  sensitivity {s.sensitivity_dbm:.0f} dBm  |  "
             f"wheel model: {s.wheel_model_label}  |  road reflection {'on' if s.ground_reflection else 'off'}"
         )
 

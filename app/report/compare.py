@@ -11,6 +11,7 @@ import numpy as np
 
 from app.report.data import CAUTION, file_sha256, program_version
 from core.compare import CommonSearch, Comparison
+from core.vehicle import read_vehicle_bytes
 
 
 def _short(style: str, k: int) -> str:
@@ -108,7 +109,7 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
     from app.report.pdf import S, esc, render_pdf_atomic
 
     now = datetime.now(UTC).astimezone()
-    hashes = [file_sha256(Path(p).read_bytes()) if p else "" for p in paths]
+    hashes = [file_sha256(read_vehicle_bytes(p)) if p else "" for p in paths]
     labels = body_labels(c)
     best = c.common_best
 

@@ -14,8 +14,6 @@ import json
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
-from importlib.metadata import PackageNotFoundError, version
-from pathlib import Path
 
 import numpy as np
 
@@ -25,9 +23,10 @@ from core.distinctness import Distinctness, wheel_distinctness
 from core.materials import BUILTIN_MATERIALS, ROAD_SURFACES, material_loss_db
 from core.placement import Placement, classify
 from core.propagation import near_field_limit_m
-from core.regulatory import eirp_ceiling_dbm
+from core.provenance import csv_preamble, load_with_source, program_version, setup_record
+from core.regulatory import EirpCheck, check_sensor_eirp
 from core.scoring import Heatmap, Scene, SpotScores, heatmap, score_vehicle
-from core.vehicle import Region, Vehicle, load_vehicle, vehicle_to_json
+from core.vehicle import Region, Vehicle
 
 #: how many of the best spots get their own page (levels, burst, distinctness)
 DETAIL_SPOTS = 3
@@ -41,11 +40,8 @@ CAUTION = (
 )
 
 
-def program_version() -> str:
-    try:
-        return version("wheelreach")
-    except PackageNotFoundError:  # running from a source tree that was not installed
-        return "unknown (not installed)"
+__all__ = ["CAUTION", "ReportData", "build_report_data", "file_sha256", "program_version", "report_csv",
+           "report_json", "report_json_text"]
 
 
 @dataclass(frozen=True)
@@ -82,6 +78,8 @@ class ReportData:
     near_field_limit_m: float = 0.0
     extra: dict = field(default_factory=dict)
     placement: Placement | None = None  # core.placement.classify of the spots (scores order)
+    setup: dict = field(default_factory=dict)  # core.provenance.setup_record: what produced these numbers
+    eirp_check: EirpCheck | None = None  # the sensor EIRP against the market's ceiling (core.regulatory)
 
     def best_index(self) -> int:
         """Index (into scores) of the best-ranked spot that is a receiver position (inside the body,
@@ -101,16 +99,9 @@ def file_sha256(raw: bytes) -> str:
     return hashlib.sha256(raw).hexdigest()
 
 
-def load_for_report(path_or_vehicle) -> tuple[Vehicle, str, str, str]:
-    """(vehicle, source, sha256, what the hash covers); a bad file raises VehicleFileError."""
-    if isinstance(path_or_vehicle, Vehicle):
-        v = path_or_vehicle
-        raw = vehicle_to_json(v).encode("utf-8")
-        return v, "unsaved document", file_sha256(raw), "canonical JSON of the unsaved document"
-    p = Path(path_or_vehicle)
-    v = load_vehicle(p)  # raises VehicleFileError with the located message
-    raw = p.read_bytes()
-    return v, str(p), file_sha256(raw), "input file"
+def load_for_report(path_or_vehicle) -> tuple[Vehicle, dict]:
+    """(vehicle, the ``vehicle_file`` setup record: path, sha256, hash_of); a bad file raises VehicleFileError."""
+    return load_with_source(path_or_vehicle)
 
 
 def _materials_in_use(v: Vehicle) -> tuple[dict, ...]:
@@ -142,28 +133,30 @@ def _materials_in_use(v: Vehicle) -> tuple[dict, ...]:
     return tuple(rows.values())
 
 
-def _radio_rows(v: Vehicle, scene: Scene) -> tuple[tuple[tuple[str, str, str], ...], str]:
+def _radio_rows(v: Vehicle, scene: Scene, check: EirpCheck) -> tuple[tuple[tuple[str, str, str], ...], str]:
     r = v.radio
     s, rx = r.sensor, r.receiver
     if s.eirp_dbm is not None:
-        eirp = (f"{s.eirp_dbm:.1f} dBm", "given in the file (peak EIRP)")
+        eirp = (f"{s.eirp_dbm:.2f} dBm peak", "given in the file (power while a frame is on the air)")
     else:
-        eirp = (f"{r.sensor_eirp_dbm:.2f} dBm",
+        eirp = (f"{r.sensor_eirp_dbm:.2f} dBm peak",
                 (f"conducted {s.conducted_power_dbm:.1f} dBm + antenna {s.antenna_gain_dbi:.1f} dBi - mismatch "
                  f"loss of {s.return_loss_db:.1f} dB return loss (textbook transmission-line relation)"))
-    preset = eirp_ceiling_dbm(r.frequency_hz)
-    if preset is None:
-        eirp_note = "No radio-limit preset covers this frequency; check the market's rules."
+    timing = (f"{r.frame_duration_s * 1e3:g} ms frames" if r.frame_duration_s is not None else "frame duration not given")
+    timing += f", burst every {r.burst_period_s:g} s" if r.burst_period_s is not None else ""
+    if check.preset is None:
+        limit = ("none built in", "check the market's rules")
     else:
-        rel = "below" if r.sensor_eirp_dbm <= preset.eirp_dbm else "ABOVE"
-        eirp_note = (f"Sensor EIRP {r.sensor_eirp_dbm:.1f} dBm is {rel} the {preset.label} ceiling of "
-                     f"{preset.eirp_dbm:.2f} dBm ({preset.source}).")
+        limit = (f"{check.allowed_peak_dbm:.2f} dBm peak" + (" (EXCEEDED)" if check.over_ceiling else ""),
+                 f"{check.preset.source}. {check.summary()}")
     road = ROAD_SURFACES[r.road_surface]
     rows = [
         ("Frequency", f"{r.frequency_hz / 1e6:.2f} MHz", f"wavelength {scene.wavelength_m:.3f} m"),
         ("Sensor EIRP", *eirp),
-        ("Radio limit", f"{preset.eirp_dbm:.2f} dBm" if preset else "none built in",
-         preset.source if preset else "check the market's rules"),
+        ("Radio limit", *limit),
+        ("Transmission timing", timing, f"{r.frames_per_burst} frames per burst, every {r.frame_interval_s * 1e3:g} ms"
+         + (f"; averaging factor {r.averaging_factor_db:g} dB given in the file (an assumption)"
+            if r.averaging_factor_db is not None else "")),
         ("Sensor antenna", f"{s.pattern}, {s.axis} axis", "short dipole directivity 1.5 (Balanis, Antenna Theory)"
          if s.pattern == "dipole" else "isotropic"),
         ("Sensor return loss", f"{s.return_loss_db:.1f} dB", "about 10 dB is common practice for a tuned sensor antenna"),
@@ -173,16 +166,15 @@ def _radio_rows(v: Vehicle, scene: Scene) -> tuple[tuple[tuple[str, str, str], .
         ("Required margin", f"{r.required_margin_db:.1f} dB", "margin = worst level - sensitivity - required margin"),
         ("Polarization null floor", f"{r.null_floor_db:.1f} dB", "engineering default for the dipole-dipole null"),
         ("Wheel angles per turn", f"{r.angles_per_turn}", f"every {360 / r.angles_per_turn:g} deg"),
-        ("Worst case", "minimum over the turn" if r.worst_case_percentile <= 0
-         else f"{r.worst_case_percentile:g} % percentile over the turn", ""),
+        ("Worst case", scene.score_method, "statistic and angle method of the worst case over a turn"),
         ("Burst", f"{r.frames_per_burst} frames every {r.frame_interval_s * 1e3:.0f} ms",
          f"speeds {r.speed_min_mps * MPS_TO_KMH:.0f}-{r.speed_max_mps * MPS_TO_KMH:.0f} km/h"),
-        ("Road reflection", f"{'on' if r.ground_reflection else 'off'}, {r.road_surface}", road.note),
+        ("Road reflection", f"{'on' if scene.ground_reflection else 'off'}, {r.road_surface}", road.note),
         ("Wheel model", scene.wheel_model_label,
          "ITU-R P.526 knife edge over the rim flange" if r.wheel_model == "knife_edge" else "full-wave table (NEC-2)"),
         ("Free space", "Friis (ITU-R P.525)", f"near field below lambda/2pi = {float(near_field_limit_m(r.frequency_hz)):.3f} m"),
     ]
-    return tuple(rows), eirp_note
+    return tuple(rows), check.summary()
 
 
 def _kmh_list(values) -> str:
@@ -231,6 +223,13 @@ def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, r
     if len(order) > 1:
         s2 = int(order[1])
         parts.append(f"The runner-up is '{scores.names[s2]}' at {scores.margin_db[s2]:+.1f} dB.")
+    check = check_sensor_eirp(v.radio)
+    if check.over_ceiling:
+        paras.insert(0, [check.warning()])
+        b_at = float(check.margin_at_ceiling_db(m))
+        n_ok_at = int((check.margin_at_ceiling_db(scores.margin_db[order]) >= 0).sum())
+        parts.append(f"At the ceiling the best spot keeps {b_at:+.1f} dB and {n_ok_at} of {len(order)} spots meet "
+                     "the required margin.")
     paras.append(parts)
     parts = []
     paras.append(parts)
@@ -275,7 +274,8 @@ def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, r
         parts.append(f"In region '{r.name}' {ok} of the {cells} computed cells ({100 * ok / cells:.0f} %) meet the "
                      f"margin" + (f" ({left_out}, not computed)" if left_out else "") + f"; the best cell, at "
                      f"({x:.2f}, {y:.2f}, {z:.2f}) m, reaches {mm:+.1f} dB (limited by {scene.wheel_ids[ww]}).")
-    paras.append([eirp_note])
+    if not check.over_ceiling:
+        paras.append([eirp_note])
     return "\n\n".join(" ".join(p) for p in paras if p)
 
 
@@ -285,18 +285,20 @@ def build_report_data(
     progress: Callable[[int, int], None] | None = None,
     cancel: Callable[[], bool] | None = None,
     now: datetime | None = None,
+    command_line: list[str] | None = None,
 ) -> ReportData:
-    """Run the engine for a report. ``progress(done, total)`` counts heatmap cells over all regions."""
-    v, source, sha, hash_of = load_for_report(path_or_vehicle)
+    """Run the engine for a report. ``progress(done, total)`` counts heatmap cells over all regions;
+    ``command_line`` (the command's words, None from the desktop program) goes into the setup record."""
+    v, src = load_for_report(path_or_vehicle)
     if not v.spots:
         from core.vehicle import VehicleFileError
 
         raise VehicleFileError("the file has no receiver spots; a placement report needs at least one", "spots",
-                               source if source != "unsaved document" else None)
+                               src["path"])
     scene = Scene.from_vehicle(v)
     scores = score_vehicle(v, scene)
     placement = classify(scene, scores.positions)
-    ranking = rank_document(v, scores, placement)
+    ranking = rank_document(v, scores, placement=placement)
     regions = tuple(v.regions)
     from core.scoring import grid_for_region
 
@@ -320,14 +322,17 @@ def build_report_data(
         SpotDetail(i, rank_of[i], burst_for_spot(scene, scores, i), wheel_distinctness(scores.levels_dbm[i], scores.wheel_ids))
         for i in shown[:DETAIL_SPOTS]
     )
-    radio_rows, eirp_note = _radio_rows(v, scene)
+    check = check_sensor_eirp(v.radio)
+    radio_rows, eirp_note = _radio_rows(v, scene, check)
+    setup = setup_record(v, scene, src, command_line, extra={"heatmap_step_m": step_m})
     data = ReportData(
-        vehicle=v, source=source, sha256=sha, hash_of=hash_of,
+        vehicle=v, source=src["path"] or "unsaved document", sha256=src["sha256"], hash_of=src["hash_of"],
         created=now or datetime.now(UTC).astimezone(),
         program_version=program_version(), scene=scene, scores=scores, ranking=ranking,
         regions=regions, heatmaps=tuple(maps), step_m=step_m, details=details,
         materials=_materials_in_use(v), radio_rows=radio_rows, eirp_note=eirp_note,
-        near_field_limit_m=float(near_field_limit_m(scene.freq_hz)), placement=placement,
+        near_field_limit_m=float(near_field_limit_m(scene.freq_hz)), placement=placement, setup=setup,
+        eirp_check=check,
     )
     findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note, placement)
     return ReportData(**{**data.__dict__, "findings": findings})
@@ -385,6 +390,7 @@ def report_json(d: ReportData) -> dict:
             },
         })
     return {
+        "radio_limit": d.eirp_check.to_dict(),
         "report": {
             "vehicle": d.vehicle.name,
             "body_style": d.vehicle.body_style,
@@ -396,6 +402,7 @@ def report_json(d: ReportData) -> dict:
             "wheel_model": d.scene.wheel_model_label,
             "heatmap_step_m": d.step_m,
         },
+        "setup": d.setup,
         "ranking": d.ranking,
         "heatmaps": maps,
         "details": details,
@@ -406,26 +413,30 @@ def report_json(d: ReportData) -> dict:
 
 
 CSV_COLUMNS = ("record", "rank", "spot", "region", "wheel", "x_m", "y_m", "z_m", "angle_deg", "level_dbm",
-               "worst_dbm", "median_dbm", "margin_db", "worst_wheel", "near_field", "placement")
+               "worst_dbm", "median_dbm", "margin_db", "worst_wheel", "near_field", "placement", "margin_at_ceiling_db")
 
 
 def report_csv(d: ReportData) -> str:
-    """One flat CSV; the ``record`` column says what a row is:
+    """One flat CSV after the comment lines of core.provenance.csv_preamble (radio-limit warning first when
+    over the ceiling, ``# radio_limit: {JSON}``, ``# setup: {JSON}``); the ``record`` column says what a row is:
 
-    - ``spot``: rank, spot, x/y/z, margin_db, worst_wheel, angle_deg (of that worst case), near_field,
-      placement (core.placement status: inside, near_surface, in_wheelhouse, outside_body)
+    - ``spot``: rank, spot, x/y/z, margin_db, margin_at_ceiling_db, worst_wheel, angle_deg (of that worst case),
+      near_field, placement (core.placement status: inside, near_surface, in_wheelhouse, outside_body)
     - ``wheel``: spot, wheel, worst_dbm, angle_deg (of the worst case), median_dbm
     - ``level``: spot, wheel, angle_deg, level_dbm (every angle of the turn)
-    - ``cell``: region, x/y/z, margin_db, worst_wheel (every computed heatmap cell: inside the region and
-      a receiver position)
+    - ``cell``: region, x/y/z, margin_db, margin_at_ceiling_db, worst_wheel (every computed heatmap cell: inside
+      the region and a receiver position)
     """
     buf = io.StringIO()
+    buf.write(csv_preamble(d.eirp_check, d.setup))
+    shift = d.eirp_check.margin_shift_db
     wr = csv.DictWriter(buf, fieldnames=CSV_COLUMNS, lineterminator="\n")
     wr.writeheader()
     for s in d.ranking["spots"]:
         x, y, z = s["position_m"]
         wr.writerow({"record": "spot", "rank": s["rank"], "spot": s["name"], "x_m": x, "y_m": y, "z_m": z,
-                     "margin_db": s["margin_db"], "worst_wheel": s["worst_wheel"],
+                     "margin_db": s["margin_db"], "margin_at_ceiling_db": s["margin_at_ceiling_db"],
+                     "worst_wheel": s["worst_wheel"],
                      "angle_deg": s["worst_angle_deg"], "near_field": int(s["near_field"]),
                      "placement": s["placement"]["status"]})
     for s in d.ranking["spots"]:
@@ -444,7 +455,8 @@ def report_csv(d: ReportData) -> str:
             if np.isfinite(m):
                 wr.writerow({"record": "cell", "region": r.name, "x_m": round(float(p[0]), 4),
                              "y_m": round(float(p[1]), 4), "z_m": round(float(p[2]), 4),
-                             "margin_db": round(float(m), 3), "worst_wheel": d.scene.wheel_ids[w]})
+                             "margin_db": round(float(m), 3), "margin_at_ceiling_db": round(float(m) - shift, 3),
+                             "worst_wheel": d.scene.wheel_ids[w]})
     return buf.getvalue()
 
 

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import html
 import os
+import shlex
 from collections.abc import Callable
 from pathlib import Path
 
@@ -40,7 +41,7 @@ from app.report.data import (
     report_csv,
     report_json_text,
 )
-from core.vehicle import atomic_path, atomic_write_text
+from core.files import OutputPathError, atomic_path, atomic_write_text, check_outputs
 
 DPI = 300
 S = DPI / 72.0  # device pixels per point
@@ -182,10 +183,38 @@ def esc(x) -> str:
 
 
 # ----- report content ---------------------------------------------------------------------------
+def _program_text(setup: dict) -> str:
+    p = setup.get("program", {})
+    text = f"Wheelreach {p.get('version', '?')}"
+    if "git_commit" in p:
+        text += f", git commit {p['git_commit'][:12]}" + (" with uncommitted changes" if p.get("git_dirty") else "")
+    return text + f" (Python {p.get('python', '?')}, numpy {p.get('numpy', '?')})"
+
+
+def _overrides_text(o: dict) -> str:
+    parts = []
+    if o.get("angles_per_turn") is not None:
+        parts.append(f"angles per turn {o['angles_per_turn']}")
+    if o.get("ground_reflection") is not None:
+        parts.append(f"road reflection {'on' if o['ground_reflection'] else 'off'}")
+    if o.get("wheel_model"):
+        parts.append(f"wheel model {o['wheel_model']}")
+    for sp in o.get("extra_spots", []):
+        parts.append(f"added spot '{sp['name']}'")
+    return ", ".join(parts) or "none (the file as it is)"
+
+
 def _title_page(f: Flow, d: ReportData) -> None:
-    v = d.vehicle
+    v, st = d.vehicle, d.setup
     f.html(f"<h1>Receiver placement report</h1><p style='font-size:11pt'>{esc(v.name)} "
            f"&mdash; body style: {esc(v.body_style)}</p>", 6)
+    if d.eirp_check is not None and d.eirp_check.over_ceiling:
+        f.html(f"<table width='100%' cellpadding='5'><tr><td style='background-color:#f8d0d0'><b>"
+               f"{esc(d.eirp_check.warning())}</b></td></tr></table>", 6)
+    cmd = st.get("command_line")
+    wm = st.get("wheel_model", {})
+    ts = wm.get("table_set")
+    tables = "<br/>".join(f"{esc(k)}: <span class='mono'>{h}</span>" for k, h in st.get("data_tables", {}).items())
     rows = [
         ["Vehicle", esc(v.name)],
         ["Body style", esc(v.body_style)],
@@ -193,8 +222,15 @@ def _title_page(f: Flow, d: ReportData) -> None:
         ["Input", esc(d.source)],
         [f"SHA-256 of the {esc(d.hash_of)}", f"<span class='mono'>{d.sha256}</span>"],
         ["Date", d.created.strftime("%Y-%m-%d %H:%M %Z").strip()],
-        ["Program", f"Wheelreach {esc(d.program_version)}"],
-        ["Wheel model", esc(d.scene.wheel_model_label)],
+        ["Program", esc(_program_text(st))],
+        ["Command line", f"<span class='mono'>{esc(shlex.join(cmd))}</span>" if cmd
+         else "desktop program (File &gt; Export report)"],
+        ["Overrides", esc(_overrides_text(st.get("overrides", {})))],
+        ["Wheel model", esc(d.scene.wheel_model_label)
+         + (f"<br/><span class='small'>tables: {esc(ts.get('solver', ''))}, model {esc(ts.get('model_version', ''))}, "
+            f"{esc(ts.get('date_utc', ''))}</span>" if ts else "")],
+        ["Worst case", esc(d.scene.score_method)],
+        ["Data tables (SHA-256)", tables or "&ndash;"],
         ["Body", (f"{len(v.wheels)} wheels ({', '.join(w.id for w in v.wheels)}), {len(v.zones)} panel zones, "
                   f"{len(v.spots)} candidate spots, {len(v.regions)} mounting regions")],
     ]
@@ -263,10 +299,18 @@ def _drawings(f: Flow, d: ReportData) -> None:
                           f"</span> {esc(m)}" for m in mats)
     f.html(f"<p class='small'>Zones: {key} &nbsp; (body panels outside any zone: metal). The ringed spot is the "
            f"best ranked.</p>", 2)
-    rows = [[str(rank[i]), esc(sc.names[i]) + _placement_mark(d, i), *(f"{c:.3f}" for c in sc.positions[i]),
-             _spot_def(v, sc.names[i])] for i in order]
-    f.table(["#", "Spot", "x m", "y m", "z m", "Defined as"], rows, [5, 30, 9, 9, 9, 38], numeric={0, 2, 3, 4},
-            caption="Spot key")
+    axes = {s["name"]: s for s in d.setup.get("spots", [])}
+
+    def axis(name: str) -> str:
+        a = axes.get(name)
+        if a is None:
+            return ""
+        return f"({', '.join(f'{c:.3g}' for c in a['receiver_axis'])}) {'own' if a['axis_from'] == 'spot' else 'default'}"
+
+    rows = [[str(rank[i]), esc(sc.names[i]) + _placement_mark(d, i), *(f"{c:.3f}" for c in sc.positions[i]), _spot_def(v, sc.names[i]),
+             esc(axis(sc.names[i]))] for i in order]
+    f.table(["#", "Spot", "x m", "y m", "z m", "Defined as", "Receiver axis"], rows, [5, 26, 8, 8, 8, 26, 19],
+            numeric={0, 2, 3, 4}, caption="Spot key")
     notes = _placement_notes(d, order)
     if notes:
         f.html(notes, 4)
@@ -293,6 +337,10 @@ def _heatmaps(f: Flow, d: ReportData) -> None:
     f.html("<h2>Heatmaps of the mounting regions</h2><p>Worst-wheel worst-case margin of a receiver placed in each "
            "cell (default receiver axis), colour bar in dB; the black line is the 0 dB contour (the edge of the area "
            "that meets the required margin). Spots numbered by rank.</p>", 2)
+    ck = d.eirp_check
+    if ck is not None and ck.over_ceiling:
+        f.html(f"<p><b>{esc(ck.warning())}</b> At the ceiling the 0 dB contour of these maps moves to the "
+               f"{ck.margin_shift_db:+.1f} dB level.</p>", 2)
     for region, hm in zip(d.regions, d.heatmaps):
         h = fig.heatmap_height(v, hm, f.width, S)
         f.add(h, lambda p, r, hm=hm, region=region: fig.draw_heatmap(p, r, S, v, hm, region, sc.positions, labels,
@@ -320,18 +368,29 @@ def _ranking(f: Flow, d: ReportData) -> None:
     f.html(f"<h2>Ranked spots</h2><p>Margin = worst-case level of the worst wheel &minus; sensitivity "
            f"({sc.sensitivity_dbm:.1f} dBm) &minus; required margin ({sc.required_margin_db:.1f} dB). Ranked by "
            f"margin, ties by the worst wheel's median. Swing = largest level swing of a wheel over the turn.</p>", 2)
+    ck = d.eirp_check
+    over = ck is not None and ck.over_ceiling
+    if over:
+        f.html(f"<p><b>{esc(ck.warning())}</b> Column <i>At ceiling</i>: the margin with the sensor EIRP lowered to "
+               f"the {ck.allowed_peak_dbm:.2f} dBm ceiling.</p>", 2)
     rows = []
     for k, i in enumerate(order, 1):
         w = int(sc.worst_wheel[i])
         x, y, z = sc.positions[i]
+        at = [f"<b>{float(ck.margin_at_ceiling_db(sc.margin_db[i])):+.1f}</b>"] if over else []
         rows.append([str(k), esc(sc.names[i]) + (" <i>(near field)</i>" if sc.near_field[i] else "")
                      + _placement_mark(d, i),
-                     f"{x:.3f}", f"{y:.3f}", f"{z:.3f}", f"<b>{sc.margin_db[i]:+.1f}</b>", esc(sc.wheel_ids[w]),
+                     f"{x:.3f}", f"{y:.3f}", f"{z:.3f}", f"<b>{sc.margin_db[i]:+.1f}</b>", *at, esc(sc.wheel_ids[w]),
                      f"{sc.worst_angle_deg[i, w]:.0f}", f"{sc.worst_dbm[i, w]:.1f}", f"{sc.median_dbm[i, w]:.1f}",
                      f"{sc.swing_db()[i].max():.1f}"])
-    f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "Worst wheel", "at deg", "Worst dBm", "Median dBm",
-             "Swing dB"], rows, [4, 26, 7, 7, 7, 9, 8, 7, 9, 9, 7], numeric={0, 2, 3, 4, 5, 7, 8, 9, 10},
-            highlight={order.index(d.best_index())})
+    if over:
+        f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "At ceiling dB", "Worst wheel", "at deg", "Worst dBm",
+                 "Median dBm", "Swing dB"], rows, [4, 22, 7, 7, 7, 8, 8, 7, 6, 8, 9, 7],
+                numeric={0, 2, 3, 4, 5, 6, 8, 9, 10, 11}, highlight={order.index(d.best_index())})
+    else:
+        f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "Worst wheel", "at deg", "Worst dBm", "Median dBm",
+                 "Swing dB"], rows, [4, 26, 7, 7, 7, 9, 8, 7, 9, 9, 7], numeric={0, 2, 3, 4, 5, 7, 8, 9, 10},
+                highlight={order.index(d.best_index())})
     notes = _placement_notes(d, order)
     if notes:
         f.html(notes, 4)
@@ -474,16 +533,22 @@ def write_report_pdf(d: ReportData, out_pdf: str | os.PathLike) -> int:
 
 
 def write_report(path_or_vehicle, out_pdf, csv_path=None, json_path=None, step_m: float = 0.05,
-                 progress=None, cancel=None) -> tuple[ReportData, int]:
+                 progress=None, cancel=None, command_line: list[str] | None = None) -> tuple[ReportData, int]:
     """Compute and write the report (and the CSV/JSON exports). Returns (data, page count).
 
-    A bad vehicle file raises VehicleFileError before anything is written."""
-    d = build_report_data(path_or_vehicle, step_m, progress=progress, cancel=cancel)
+    Every output path is checked first (core.files.check_outputs: OutputPathError for a missing or
+    unwritable folder, a read-only file, an output that is the input or another output), then a
+    bad vehicle file raises VehicleFileError; in both cases before anything is computed or written."""
+    from core.vehicle import Vehicle
+
+    check_outputs({"-o": out_pdf, "--csv": csv_path, "--json": json_path},
+                  [] if isinstance(path_or_vehicle, Vehicle) else [path_or_vehicle])
+    d = build_report_data(path_or_vehicle, step_m, progress=progress, cancel=cancel, command_line=command_line)
     n = write_report_pdf(d, out_pdf)
     if csv_path:
-        atomic_write_text(Path(csv_path), report_csv(d))
+        atomic_write_text(csv_path, report_csv(d))
     if json_path:
-        atomic_write_text(Path(json_path), report_json_text(d))
+        atomic_write_text(json_path, report_json_text(d))
     return d, n
 
 
@@ -508,6 +573,11 @@ def export_report_dialog(parent, vehicle_path_or_vehicle, step_m: float = 0.05):
         return None
     if not path.lower().endswith(".pdf"):
         path += ".pdf"
+    try:  # before computing: the report must not replace its own input, a read-only file, ...
+        check_outputs({"report": path}, [] if isinstance(src, Vehicle) else [src])
+    except OutputPathError as e:
+        QMessageBox.warning(parent, "Export placement report", f"The report was not written.\n\n{e}")
+        return None
 
     class Worker(QThread):
         step = Signal(int, int)

@@ -2,16 +2,26 @@
 
 from __future__ import annotations
 
+from core.regulatory import check_sensor_eirp
+from core.scoring import vehicle_spot_arrays
 
-def rank_document(v, scores, placement=None) -> dict:
+
+def rank_document(v, scores, setup: dict | None = None, placement=None) -> dict:
     """The documented JSON of ``wheelreach rank --json`` (see docs/cli-json.md).
 
-    ``placement``: core.placement.classify of the scores' positions (computed when not given)."""
+    ``radio_limit`` comes first (the sensor EIRP against the market's ceiling, core.regulatory);
+    each spot carries its resolved receiver axis, its margin at the ceiling and its placement
+    (``placement``: core.placement.classify of the scores' positions, computed when not given);
+    ``setup`` (the record of core.provenance.setup_record) is added last when given.
+    """
     if placement is None:
         from core.placement import classify
         from core.scoring import Scene
 
         placement = classify(Scene.from_vehicle(v), scores.positions)
+    check = check_sensor_eirp(v.radio)
+    names, _pos, axes = vehicle_spot_arrays(v)
+    axis_of = dict(zip(names, axes))
     order = scores.order()
     spots = []
     for rank, i in enumerate(order, 1):
@@ -26,12 +36,15 @@ def rank_document(v, scores, placement=None) -> dict:
                     "levels_dbm": [round(float(x), 3) for x in scores.levels_dbm[i, w]],
                 }
             )
+        axis = axis_of.get(scores.names[i])
         spots.append(
             {
                 "rank": rank,
                 "name": scores.names[i],
                 "position_m": [round(float(c), 4) for c in scores.positions[i]],
+                "receiver_axis": None if axis is None else [round(float(a), 6) for a in axis],
                 "margin_db": round(float(scores.margin_db[i]), 3),
+                "margin_at_ceiling_db": round(float(check.margin_at_ceiling_db(scores.margin_db[i])), 3),
                 "worst_wheel": scores.wheel_ids[scores.worst_wheel[i]],
                 "worst_angle_deg": round(float(scores.worst_angle_deg[i, scores.worst_wheel[i]]), 3),
                 "near_field": bool(scores.near_field[i]),
@@ -39,7 +52,8 @@ def rank_document(v, scores, placement=None) -> dict:
                 "wheels": wheels,
             }
         )
-    return {
+    doc = {
+        "radio_limit": check.to_dict(),
         "vehicle": v.name,
         "body_style": v.body_style,
         "frequency_hz": v.radio.frequency_hz,
@@ -48,3 +62,6 @@ def rank_document(v, scores, placement=None) -> dict:
         "angles_deg": [round(float(a), 4) for a in scores.angles_deg],
         "spots": spots,
     }
+    if setup is not None:
+        doc["setup"] = setup
+    return doc
