@@ -1,6 +1,8 @@
 """Command line: ``wheelreach`` (GUI), ``check``, ``schema``, and the batch commands.
 
-A bad vehicle file prints its located message and exits with status 1, never a traceback.
+A bad option value prints one line and exits with status 2 (app.cli.options); a bad vehicle file,
+a bad output path, or work beyond a documented limit (core.bounds) prints one located line and
+exits with status 1; never a traceback.
 """
 
 from __future__ import annotations
@@ -8,10 +10,10 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from pathlib import Path
 
+from app.cli.options import Parser, check_outputs
+from core.bounds import NonFiniteResultError, WorkLimitError
 from core.vehicle import VehicleFileError, json_schema, load_vehicle
-
 
 
 def _cmd_check(args) -> int:
@@ -36,13 +38,17 @@ def _cmd_schema(args) -> int:
 
 
 def _cmd_gui(args) -> int:
+    bad = check_outputs("gui", {"--screenshot": args.screenshot})
+    if bad:
+        print(f"error: {bad}", file=sys.stderr)
+        return 1
     from app.gui.main import run_gui
 
     return run_gui(args.file, screenshot=getattr(args, "screenshot", None))
 
 
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(
+    p = Parser(
         prog="wheelreach",
         description="Placement aid for tire-pressure sensor receivers. With no command, opens the desktop program.",
     )
@@ -78,13 +84,13 @@ def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     parser = build_parser()
     # "wheelreach [FILE] [--screenshot OUT]" opens the GUI; a first word that is a command runs it.
-    commands = set(parser._subparsers._group_actions[0].choices)  # noqa: SLF001
+    commands = set(parser._subparsers._group_actions[0].choices)
     if not argv or (argv[0] not in commands and argv[0] not in ("-h", "--help")):
         argv = ["gui", *argv]
     args = parser.parse_args(argv)
     try:
         return args.func(args)
-    except VehicleFileError as e:
+    except (VehicleFileError, WorkLimitError, NonFiniteResultError) as e:
         print(f"error: {e}", file=sys.stderr)
         return 1
     except KeyboardInterrupt:

@@ -5,19 +5,31 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
+from app.caution import print_safety_note
+from app.cli import options
+from app.cli.engine import _Progress, add_progress_options
 from core.compare import LANDMARKS
+from core.vehicle import MAX_BODY_HEIGHT_M
+
+
+def _outputs_ok(command: str, outputs: dict) -> bool:
+    bad = options.check_outputs(command, outputs)
+    if bad:
+        print(f"error: {bad}", file=sys.stderr)
+    return bad is None
 
 
 def _cmd_report(args) -> int:
     import os
 
+    if not _outputs_ok("report", {"-o": args.output, "--csv": args.csv, "--json": args.json}):
+        return 1
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     from app.report.pdf import write_report
 
-    if not args.step > 0:
-        print("error: --step must be positive", file=sys.stderr)
-        return 1
-    d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step)
+    show = args.progress or (sys.stderr.isatty() and not args.quiet)
+    d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step,
+                        progress=_Progress(show, "spots and cells"))
     s = d.scores
     b = int(s.order()[0])
     print(f"wrote {args.output}: {n} pages; {d.vehicle.name}; best spot '{s.names[b]}' at {s.margin_db[b]:+.1f} dB "
@@ -25,6 +37,7 @@ def _cmd_report(args) -> int:
     for p in (args.csv, args.json):
         if p:
             print(f"wrote {p}")
+    print_safety_note()
     return 0
 
 
@@ -34,16 +47,22 @@ def _cmd_compare(args) -> int:
     from core.scoring import Scene
     from core.vehicle import atomic_write_text, load_vehicle
 
+    if not _outputs_ok("compare", {"-o": args.output, "--csv": args.csv}):
+        return 1
     vehicles = [load_vehicle(f) for f in args.files]  # a bad file stops here with its located message
     scenes = [Scene.from_vehicle(v) for v in vehicles]
     c = compare_bodies(vehicles, scenes)
     search, err = None, ""
     if not args.no_search:
         try:
-            search = search_common_position(vehicles, args.landmark, args.search_step, args.above_floor, scenes)
+            search = search_common_position(vehicles, args.landmark, args.search_step, args.above_floor, scenes,
+                                            progress=_Progress(args.progress or (sys.stderr.isatty() and not args.quiet),
+                                                               "bodies"))
         except NoSharedRegion as e:
             err = str(e)
-    print(comparison_text(c, search, err))
+    text = comparison_text(c, search, err)
+    note = text.rsplit("\n", 1)[-1]  # the safety note ends the text; it is printed last, after the files
+    print(text[: -len(note)].rstrip("\n"))
     if args.csv:
         atomic_write_text(Path(args.csv), comparison_csv(c, search))
         print(f"wrote {args.csv}")
@@ -55,6 +74,7 @@ def _cmd_compare(args) -> int:
 
         n = write_comparison_pdf(args.output, vehicles, list(args.files), c, search, err)
         print(f"wrote {args.output}: {n} pages")
+    print(note)
     return 0
 
 
@@ -64,7 +84,10 @@ def register(sub) -> None:
     r.add_argument("-o", "--output", required=True, metavar="OUT.pdf", help="PDF to write")
     r.add_argument("--csv", metavar="OUT.csv", help="also write the report's numbers as CSV")
     r.add_argument("--json", metavar="OUT.json", help="also write the report's numbers as JSON")
-    r.add_argument("--step", type=float, default=0.05, help="heatmap cell spacing, m (default 0.05)")
+    r.add_argument("--step", type=options.step, default=0.05,
+                   help=f"heatmap cell spacing, m, above 0 and at most {options.MAX_STEP_M:g} (default 0.05); the "
+                        "report's heatmaps must fit the work limits (README, Limits)")
+    add_progress_options(r)
     r.set_defaults(func=_cmd_report)
     c = sub.add_parser("compare", help="compare spots across several bodies; name the platform-common best spot")
     c.add_argument("files", nargs="+", metavar="FILE")
@@ -72,8 +95,12 @@ def register(sub) -> None:
     c.add_argument("--csv", metavar="OUT.csv", help="also write the table as CSV")
     c.add_argument("--landmark", choices=[x for x in LANDMARKS], default="rear_axle",
                    help="landmark the shared mounting region is measured from (default rear_axle)")
-    c.add_argument("--above-floor", type=float, metavar="H",
-                   help="search at H m above each body's floor (default: each body's own region height)")
-    c.add_argument("--search-step", type=float, default=0.10, help="grid spacing of the search, m (default 0.10)")
+    c.add_argument("--above-floor", type=options.length(0.0, MAX_BODY_HEIGHT_M), metavar="H",
+                   help=f"search at H m above each body's floor, 0-{MAX_BODY_HEIGHT_M:g} (default: each body's own "
+                        "region height)")
+    c.add_argument("--search-step", type=options.step, default=0.10,
+                   help=f"grid spacing of the search, m, above 0 and at most {options.MAX_STEP_M:g} (default 0.10); "
+                        "the search must fit the work limits (README, Limits)")
     c.add_argument("--no-search", action="store_true", help="skip the shared-region search")
+    add_progress_options(c)
     c.set_defaults(func=_cmd_compare)
