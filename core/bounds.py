@@ -65,10 +65,10 @@ MAX_TIRE_CODE_CHARS = 24
 MAX_NESTING = 32
 
 # ----- work per computation --------------------------------------------------------------------
-#: links (position x wheel x wheel angle) of one ranking, one heatmap, or all heatmaps of one report.
-#: At the engine's speed on a 2-core laptop (docs/performance.md: about 250,000 links/s on the
-#: sample bodies, about 50,000 links/s with the most detailed outlines and zones allowed) this is
-#: about 20 s, and at most about 2 min; the levels of a ranking at the limit take 40 MB.
+#: links (position x wheel x wheel angle) of one ranking, one heatmap, all heatmaps of one report, or
+#: one shared-region search. Measured on a shared 2-core machine (docs/performance.md, Work limits):
+#: a ranking at the limit took 40 s on a sample body and 118 s with the most detailed outlines and
+#: zones the format allows, with a peak RSS under 0.5 GB (the levels alone take 40 MB).
 MAX_LINKS = 5_000_000
 #: grid cells of one heatmap (the grid covers the region's bounding box)
 MAX_HEATMAP_CELLS = 100_000

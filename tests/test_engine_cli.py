@@ -21,7 +21,8 @@ from engine_vehicles import REPO, SEDAN_PATH, sedan
 
 WHEEL_KEYS = {"wheel", "worst_dbm", "worst_angle_deg", "median_dbm", "levels_dbm"}
 SPOT_KEYS = {"rank", "name", "position_m", "margin_db", "worst_wheel", "worst_angle_deg", "near_field", "wheels"}
-TOP_KEYS = {"vehicle", "body_style", "frequency_hz", "sensitivity_dbm", "required_margin_db", "angles_deg", "spots"}
+TOP_KEYS = {"vehicle", "body_style", "frequency_hz", "sensitivity_dbm", "required_margin_db", "angles_deg", "spots",
+            "caution"}
 
 
 def _rank_json(capsys, *extra) -> dict:
@@ -90,9 +91,9 @@ def test_rank_table_names_the_spots_and_carries_the_caution(capsys):
 def test_bad_spot_gives_a_clear_message_and_nonzero_exit(bad):
     r = subprocess.run([sys.executable, "-m", "app.cli.main", "rank", str(SEDAN_PATH), "--spot", bad],
                        capture_output=True, text=True, cwd=REPO, timeout=120)
-    assert r.returncode != 0
-    assert "Traceback" not in r.stderr
-    assert r.stderr.startswith("error: --spot") and repr(bad) in r.stderr, r.stderr
+    assert r.returncode == 2  # an argparse usage error (tests/test_cli_options.py)
+    assert "Traceback" not in r.stderr and len(r.stderr.splitlines()) == 1
+    assert r.stderr.startswith("wheelreach rank: error: argument --spot: ") and repr(bad) in r.stderr, r.stderr
     assert r.stdout == ""
 
 
