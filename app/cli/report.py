@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from app.caution import print_safety_note
+from app.caution import SAFETY_NOTE, print_safety_note
 from app.cli import options
 from app.cli.engine import _Progress, add_progress_options
 from core.compare import LANDMARKS
@@ -61,8 +61,9 @@ def _cmd_compare(args) -> int:
         except NoSharedRegion as e:
             err = str(e)
     text = comparison_text(c, search, err)
-    note = text.rsplit("\n", 1)[-1]  # the safety note ends the text; it is printed last, after the files
-    print(text[: -len(note)].rstrip("\n"))
+    if text.endswith(SAFETY_NOTE):  # the note ends the text; here it is printed last, after the files
+        text = text[: -len(SAFETY_NOTE)].rstrip("\n")
+    print(text)
     if args.csv:
         atomic_write_text(Path(args.csv), comparison_csv(c, search))
         print(f"wrote {args.csv}")
@@ -74,7 +75,7 @@ def _cmd_compare(args) -> int:
 
         n = write_comparison_pdf(args.output, vehicles, list(args.files), c, search, err)
         print(f"wrote {args.output}: {n} pages")
-    print(note)
+    print_safety_note()
     return 0
 
 
