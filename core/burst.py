@@ -6,7 +6,9 @@ theta0 + k v dt / R (k = 0..K-1). The burst succeeds when at least one frame's l
 the threshold (the receiver sensitivity). With the start angle theta0 uniformly distributed,
 P(success) is the share of start angles for which some frame clears it. Parked (v = 0) all
 frames fall on one angle; at the resonant speeds v_n = 2 pi n R / dt every frame lands on the
-same angle again, so the burst gains nothing from diversity there.
+same angle again, so the burst gains nothing from diversity there. At most
+``core.bounds.MAX_RESONANT_SPEEDS`` of them are listed per wheel (the lowest); ``resonant_count``
+says how many fall inside the speed range.
 """
 
 from __future__ import annotations
@@ -14,6 +16,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
+from core.bounds import MAX_RESONANT_SPEEDS
 
 START_ANGLES = 720
 
@@ -26,7 +30,8 @@ class BurstResult:
     speeds_mps: np.ndarray  # (V,)
     success: np.ndarray  # (W, V) probability 0..1
     parked: np.ndarray  # (W,) probability with all frames at one angle
-    resonant_mps: tuple[np.ndarray, ...]  # per wheel, resonant speeds inside the speed range
+    resonant_mps: tuple[np.ndarray, ...]  # per wheel, the lowest resonant speeds inside the speed range
+    resonant_count: tuple[int, ...] = ()  # per wheel, how many resonant speeds the range holds (>= listed)
 
     def worst(self) -> tuple[int, int]:
         """(wheel index, speed index) of the lowest success probability."""
@@ -70,6 +75,7 @@ def burst_success(
     success = np.empty((W, len(speeds)))
     parked = np.empty(W)
     resonant = []
+    counts = []
     for w in range(W):
         ok0 = _periodic_interp(lv[w], angles_rad, th0) >= threshold_dbm
         parked[w] = ok0.mean()
@@ -79,10 +85,12 @@ def burst_success(
         success[w] = ok.any(axis=2).mean(axis=1)
         period = 2 * np.pi * radius[w] / interval_s
         lo, hi = (speeds.min(), speeds.max()) if len(speeds) else (0.0, 0.0)
-        n = np.arange(max(1, int(np.ceil(lo / period))), int(np.floor(hi / period)) + 1)
+        n_lo, n_hi = max(1, int(np.ceil(lo / period))), int(np.floor(hi / period))
+        counts.append(max(0, n_hi - n_lo + 1))
+        n = np.arange(n_lo, min(n_hi, n_lo + MAX_RESONANT_SPEEDS - 1) + 1)  # bounded: never the whole list
         resonant.append(n * period)
     ids = tuple(wheel_ids) if wheel_ids is not None else tuple(str(i) for i in range(W))
-    return BurstResult(ids, speeds, success, parked, tuple(resonant))
+    return BurstResult(ids, speeds, success, parked, tuple(resonant), tuple(counts))
 
 
 def speed_sweep(speed_min_mps: float, speed_max_mps: float, step_mps: float = 0.25) -> np.ndarray:

@@ -301,6 +301,28 @@ def _smallest_over_bodies(margins: np.ndarray) -> np.ndarray:
     return np.where(np.isnan(margins), -np.inf, margins).min(axis=0)
 
 
+def _check_search_work(shared, step_m: float, scenes: list[Scene]) -> None:
+    """Raise WorkLimitError (core.bounds) when the search grid at ``step_m`` exceeds MAX_HEATMAP_CELLS
+    cells or its links over every body (cells x wheels x angles, summed) exceed MAX_LINKS; the message
+    gives the step that fits. The refinement (81 points) is not counted."""
+    import math
+
+    from core.bounds import MAX_HEATMAP_CELLS, MAX_LINKS, WorkLimitError
+
+    lo_x, lo_y, hi_x, hi_y = shared.bounds
+    box = max(1, math.floor((hi_x - lo_x) / step_m + 1e-9)) * max(1, math.floor((hi_y - lo_y) / step_m + 1e-9))
+    per_cell = sum(len(s.wheels) * len(s.angles_rad) for s in scenes)
+    cells = shared.area / step_m**2
+    if box <= MAX_HEATMAP_CELLS and cells * per_cell <= MAX_LINKS:
+        return
+    need = max((hi_x - lo_x) * (hi_y - lo_y) / MAX_HEATMAP_CELLS, shared.area * per_cell / MAX_LINKS)
+    fit = math.ceil(math.sqrt(need) * 1.02 * 1000.0) / 1000.0
+    raise WorkLimitError(
+        f"the shared-region search at a step of {step_m:g} m would need about {cells:,.0f} cells x "
+        f"{per_cell:,} links per cell over the bodies; the limits are {MAX_HEATMAP_CELLS:,} cells and "
+        f"{MAX_LINKS:,} links: a step of {fit:g} m or more fits")
+
+
 def search_common_position(
     vehicles: list[Vehicle],
     landmark: str = "rear_axle",
@@ -329,6 +351,7 @@ def search_common_position(
     from shapely import contains_xy
 
     lo_x, lo_y, hi_x, hi_y = shared.bounds
+    _check_search_work(shared, step_m, scenes)
     nx = max(1, int(np.floor((hi_x - lo_x) / step_m + 1e-9)))
     ny = max(1, int(np.floor((hi_y - lo_y) / step_m + 1e-9)))
     xs = lo_x + (np.arange(nx) + 0.5) * (hi_x - lo_x) / nx

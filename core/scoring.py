@@ -187,6 +187,15 @@ class TurnLevels:
     worst_dbm: np.ndarray | None = None  # (S, W)
     worst_angle_rad: np.ndarray | None = None  # (S, W)
 
+    @staticmethod
+    def concatenate(parts: list["TurnLevels"]) -> "TurnLevels":
+        """The turn levels of consecutive chunks of spots as one."""
+        levels = np.concatenate([p.levels_dbm for p in parts])
+        if any(p.worst_dbm is None for p in parts):
+            return TurnLevels(levels)
+        return TurnLevels(levels, np.concatenate([p.worst_dbm for p in parts]),
+                          np.concatenate([p.worst_angle_rad for p in parts]))
+
 
 def spot_turns(scene: Scene, spots, axes=None, refine: bool = True) -> TurnLevels:
     """Levels over the turn for spots (S, 3) m with receiver axes (S, 3), and (with ``refine`` and
@@ -307,17 +316,37 @@ def near_field_flags(scene: Scene, positions: np.ndarray) -> np.ndarray:
     return near
 
 
-def score_spots(scene: Scene, positions, axes=None, names=None) -> SpotScores:
-    """Levels and scores for spots at positions (S, 3) m (the single-spot path when S = 1)."""
+def score_spots(scene: Scene, positions, axes=None, names=None,
+                progress: Callable[[int, int], None] | None = None, cancel: Callable[[], bool] | None = None,
+                chunk_links: int = CHUNK_LINKS) -> SpotScores:
+    """Levels and scores for spots at positions (S, 3) m (the single-spot path when S = 1).
+
+    The levels are computed in chunks of about ``chunk_links`` links, so the memory in flight stays
+    bounded whatever S is; ``progress(done, total)`` (spots) is called after each chunk, and when
+    ``cancel()`` returns True the computation raises Cancelled before the next chunk."""
     positions = np.atleast_2d(np.asarray(positions, float))
-    return score_levels(scene, spot_turns(scene, positions, axes), names, positions)
+    total = len(positions)
+    per_chunk = max(1, chunk_links // max(1, len(scene.wheels) * len(scene.angles_rad)))
+    if total <= per_chunk and progress is None and cancel is None:
+        return score_levels(scene, spot_turns(scene, positions, axes), names, positions)
+    ax = None if axes is None else np.broadcast_to(np.asarray(axes, float), positions.shape)
+    parts = []
+    for start in range(0, total, per_chunk):
+        if cancel is not None and cancel():
+            raise Cancelled()
+        sl = slice(start, min(total, start + per_chunk))
+        parts.append(spot_turns(scene, positions[sl], None if ax is None else ax[sl]))
+        if progress is not None:
+            progress(sl.stop, total)
+    return score_levels(scene, TurnLevels.concatenate(parts), names, positions)
 
 
-def score_vehicle(v: Vehicle, scene: Scene | None = None) -> SpotScores:
-    """Scores of the file's own spots."""
+def score_vehicle(v: Vehicle, scene: Scene | None = None, progress: Callable[[int, int], None] | None = None,
+                  cancel: Callable[[], bool] | None = None) -> SpotScores:
+    """Scores of the file's own spots (``progress`` and ``cancel`` as in score_spots)."""
     scene = scene or Scene.from_vehicle(v)
     names, pos, ax = vehicle_spot_arrays(v)
-    return score_spots(scene, pos, ax, names)
+    return score_spots(scene, pos, ax, names, progress=progress, cancel=cancel)
 
 
 # ----- heatmaps ------------------------------------------------------------------------

@@ -25,6 +25,37 @@ from shapely.validation import explain_validity
 
 from core import files
 from core.files import InputFileError, read_regular_file
+from core.bounds import (
+    MAX_ANGLES_PER_TURN,
+    MAX_BODY_HEIGHT_M,
+    MAX_BODY_LENGTH_M,
+    MAX_BODY_OUTLINE_POINTS,
+    MAX_BODY_WIDTH_M,
+    MAX_DESCRIPTION_CHARS,
+    MAX_FREQUENCY_HZ,
+    MAX_MATERIALS,
+    MAX_NAME_CHARS,
+    MAX_NESTING,
+    MAX_NOTE_CHARS,
+    MAX_OUTLINE_POINTS,
+    MAX_REGIONS,
+    MAX_RIM_WIDTH_M,
+    MAX_SECTION_WIDTH_M,
+    MAX_SPOTS,
+    MAX_TIRE_CODE_CHARS,
+    MAX_TIRE_DIAMETER_M,
+    MAX_WHEELS,
+    MAX_ZONES,
+    MIN_ANGLES_PER_TURN,
+    MIN_FREQUENCY_HZ,
+    MIN_RIM_DIAMETER_M,
+    MIN_RIM_WIDTH_M,
+    MIN_SECTION_WIDTH_M,
+    MIN_SENSOR_RADIUS_M,
+    MIN_TIRE_DIAMETER_M,
+    REACH_MARGIN_M,
+    check_rank_work,
+)
 from core.materials import BUILTIN_MATERIALS
 from core.tires import TireSize, parse_tire_code
 
@@ -37,18 +68,13 @@ FORMAT_NAME = "wheelreach-vehicle"
 FORMAT_VERSION = 1
 FORMAT_TAG = f"{FORMAT_NAME}/{FORMAT_VERSION}"
 
-MAX_BODY_LENGTH_M = 30.0
-MAX_BODY_WIDTH_M = 5.0
-MAX_BODY_HEIGHT_M = 6.0
-MAX_TIRE_DIAMETER_M = 2.0
-MIN_FREQUENCY_HZ = 1e6
-MAX_FREQUENCY_HZ = 10e9
-
+# the limits (sizes, counts, text lengths) live in core.bounds, documented in docs/vehicle-format.md
 Length = Annotated[float, Field(ge=-100.0, le=100.0)]
 Point2 = tuple[Length, Length]
-Outline = Annotated[tuple[Point2, ...], Field(min_length=3, max_length=500)]
+BodyOutline = Annotated[tuple[Point2, ...], Field(min_length=3, max_length=MAX_BODY_OUTLINE_POINTS)]
+Outline = Annotated[tuple[Point2, ...], Field(min_length=3, max_length=MAX_OUTLINE_POINTS)]
 Axis3 = tuple[float, float, float]
-Name = Annotated[str, Field(min_length=1, max_length=80)]
+Name = Annotated[str, Field(min_length=1, max_length=MAX_NAME_CHARS)]
 
 
 class VehicleFileError(ValueError):
@@ -76,8 +102,8 @@ class _Strict(BaseModel):
 class Body(_Strict):
     """The body without wheel arches, in top view (x, y) and side view (x, z), m."""
 
-    top_outline: Outline
-    side_outline: Outline
+    top_outline: BodyOutline
+    side_outline: BodyOutline
     wheelhouse_clearance_m: float = Field(0.04, ge=0.0, le=0.5)
     wheelhouse_material: Name = "metal"
     floor_height_m: float | None = Field(None, ge=0.0, le=3.0)
@@ -103,13 +129,13 @@ class UserMaterial(_Strict):
     """A material defined in the file, or an override of a built-in one: fixed crossing loss, dB."""
 
     loss_db: float = Field(ge=0.0, le=100.0)
-    description: str = ""
+    description: Annotated[str, Field(max_length=MAX_NOTE_CHARS)] = ""
 
 
 class ExplicitTire(_Strict):
-    outer_diameter_m: float = Field(gt=0.0, le=MAX_TIRE_DIAMETER_M)
-    rim_diameter_m: float = Field(gt=0.0, le=MAX_TIRE_DIAMETER_M)
-    section_width_m: float = Field(gt=0.0, le=1.0)
+    outer_diameter_m: float = Field(ge=MIN_TIRE_DIAMETER_M, le=MAX_TIRE_DIAMETER_M)
+    rim_diameter_m: float = Field(ge=MIN_RIM_DIAMETER_M, le=MAX_TIRE_DIAMETER_M)
+    section_width_m: float = Field(ge=MIN_SECTION_WIDTH_M, le=MAX_SECTION_WIDTH_M)
 
 
 class Wheel(_Strict):
@@ -118,9 +144,9 @@ class Wheel(_Strict):
     id: Annotated[str, Field(min_length=1, max_length=8, pattern=r"^[A-Za-z0-9_]+$")]
     x_m: Length
     y_m: Length
-    tire: str | ExplicitTire
-    rim_width_m: float = Field(gt=0.0, le=1.0)
-    sensor_radius_m: float | None = Field(None, gt=0.0, le=1.0)
+    tire: Annotated[str, Field(max_length=MAX_TIRE_CODE_CHARS)] | ExplicitTire
+    rim_width_m: float = Field(ge=MIN_RIM_WIDTH_M, le=MAX_RIM_WIDTH_M)
+    sensor_radius_m: float | None = Field(None, ge=MIN_SENSOR_RADIUS_M, le=1.0)
     sensor_offset_m: float | None = Field(None, ge=-0.5, le=0.5)
     valve_side: Literal["outboard", "inboard"] = "outboard"
 
@@ -218,7 +244,7 @@ class Radio(_Strict):
     receiver: Receiver = Receiver()
     required_margin_db: float = Field(6.0, ge=-50.0, le=50.0)
     null_floor_db: float = Field(-30.0, ge=-80.0, le=0.0)
-    angles_per_turn: int = Field(72, ge=4, le=3600)
+    angles_per_turn: int = Field(72, ge=MIN_ANGLES_PER_TURN, le=MAX_ANGLES_PER_TURN)
     worst_case_percentile: float = Field(0.0, ge=0.0, le=50.0)
     frames_per_burst: int = Field(4, ge=1, le=100)
     frame_interval_s: float = Field(0.1, gt=0.0, le=10.0)
@@ -229,7 +255,7 @@ class Radio(_Strict):
     speed_min_mps: float = Field(0.0, ge=0.0, le=100.0)
     speed_max_mps: float = Field(44.5, ge=0.0, le=100.0)
     ground_reflection: bool = True
-    road_surface: str = "dry asphalt/concrete"
+    road_surface: Name = "dry asphalt/concrete"
     wheel_model: Literal["knife_edge", "installed_pattern"] = "installed_pattern"
 
     @property
@@ -247,16 +273,16 @@ class Radio(_Strict):
 class Vehicle(_Strict):
     """One body style: body, zones, wheels, candidate spots, regions and radio setup."""
 
-    format: str = FORMAT_TAG
+    format: Name = FORMAT_TAG
     name: Name
     body_style: Name
-    description: str = ""
+    description: Annotated[str, Field(max_length=MAX_DESCRIPTION_CHARS)] = ""
     body: Body
-    zones: tuple[Zone, ...] = ()
-    materials: dict[Name, UserMaterial] = {}
-    wheels: Annotated[tuple[Wheel, ...], Field(min_length=1, max_length=16)]
-    spots: Annotated[tuple[Spot, ...], Field(max_length=500)] = ()
-    regions: tuple[Region, ...] = ()
+    zones: Annotated[tuple[Zone, ...], Field(max_length=MAX_ZONES)] = ()
+    materials: Annotated[dict[Name, UserMaterial], Field(max_length=MAX_MATERIALS)] = {}
+    wheels: Annotated[tuple[Wheel, ...], Field(min_length=1, max_length=MAX_WHEELS)]
+    spots: Annotated[tuple[Spot, ...], Field(max_length=MAX_SPOTS)] = ()
+    regions: Annotated[tuple[Region, ...], Field(max_length=MAX_REGIONS)] = ()
     radio: Radio = Radio()
 
     # ----- derived landmarks -------------------------------------------------
@@ -342,8 +368,8 @@ def _loc(loc: tuple) -> str:
 
 
 # Names pydantic puts into an error location for the branch of a union (not part of the file's path).
-_UNION_TAGS = ("str", "ExplicitTire", "tuple[float, float, float]", "function-after[_tire_code(), str]")
-MAX_NESTING = 32
+_UNION_TAGS = ("str", "ExplicitTire", "tuple[float, float, float]", "function-after[_tire_code(), str]",
+               "constrained-str", "function-after[_tire_code(), constrained-str]")
 
 
 def _pick_error(errors: list[dict]) -> dict:
@@ -359,14 +385,39 @@ def _pick_error(errors: list[dict]) -> dict:
     return first
 
 
+class _KeysSeenTwice(dict):
+    """A JSON object in which a key appeared more than once (``duplicates`` names them, in order)."""
+
+    duplicates: tuple[str, ...] = ()
+
+
+def _object_pairs(pairs: list[tuple[str, object]]) -> dict:
+    """json ``object_pairs_hook``: a plain dict, or a _KeysSeenTwice that remembers the repeated keys
+    (json.loads would silently keep the last value; the file is refused instead, with the key's place)."""
+    d = dict(pairs)
+    if len(d) == len(pairs):
+        return d
+    seen: set[str] = set()
+    dups = [k for k, _ in pairs if k in seen or seen.add(k)]
+    out = _KeysSeenTwice(d)
+    out.duplicates = tuple(dict.fromkeys(dups))
+    return out
+
+
 def _json_problem(data) -> tuple[str, str] | None:
     """(field, problem) for JSON data pydantic's parser would reject without naming the field:
-    nesting deeper than MAX_NESTING, or text with an unpaired UTF-16 surrogate escape. Iterative."""
+    nesting deeper than MAX_NESTING, text with an unpaired UTF-16 surrogate escape, or a key given
+    twice in one object. Iterative."""
     stack = [(data, (), 0)]
     while stack:
         node, loc, depth = stack.pop()
         if depth > MAX_NESTING:
             return _loc(loc[:3]), f"nested more than {MAX_NESTING} levels deep"
+        if isinstance(node, _KeysSeenTwice):
+            key = node.duplicates[0]
+            return _loc((*loc, key)) if isinstance(key, str) and _encodable(key) else _loc(loc), (
+                f"key {key[:MAX_NAME_CHARS]!r} is given more than once in the same object (JSON keeps only one; "
+                f"remove the other)")
         if isinstance(node, dict):
             for k, val in node.items():
                 if isinstance(k, str) and not _encodable(k):
@@ -391,6 +442,9 @@ def _polygon_problem(outline) -> str | None:
     pts = np.asarray(outline, float)
     if len(pts) < 3:
         return "needs at least 3 points"
+    collinear = _collinear_problem(pts)
+    if collinear:
+        return collinear
     poly = Polygon(pts)
     # validity first: a symmetric bow tie has zero signed area but is a crossing, not a sliver
     if not poly.is_valid:
@@ -401,6 +455,43 @@ def _polygon_problem(outline) -> str | None:
     if poly.area < 1e-6:
         return "encloses no area"
     return None
+
+
+def _collinear_problem(pts: np.ndarray) -> str | None:
+    """Degenerate outlines that shapely reports as self-intersections: every point on one line, or a
+    point where the outline turns straight back along itself (a zero-width spike). Points in a row
+    along an edge (the outline goes straight on) are fine and are accepted as they are."""
+    p = pts[np.r_[True, np.any(np.diff(pts, axis=0) != 0.0, axis=1)]]  # repeated points are harmless
+    if len(p) > 1 and np.all(p[-1] == p[0]):
+        p = p[:-1]  # a closed ring: the last point repeats the first
+    scale = max(float(np.ptp(p, axis=0).max()) if len(p) else 0.0, 1e-9)
+    if len(p) < 3 or np.linalg.matrix_rank(p - p.mean(axis=0), tol=1e-9 * scale) < 2:
+        return "encloses no area: all its points lie on one straight line"
+    prev = p - np.roll(p, 1, axis=0)
+    nxt = np.roll(p, -1, axis=0) - p
+    cross = prev[:, 0] * nxt[:, 1] - prev[:, 1] * nxt[:, 0]
+    dot = np.einsum("ij,ij->i", prev, nxt)
+    norms = np.linalg.norm(prev, axis=1) * np.linalg.norm(nxt, axis=1)
+    spike = (np.abs(cross) <= 1e-9 * norms) & (dot < 0)
+    if spike.any():
+        i = int(np.argmax(spike))
+        k = int(np.nonzero(np.all(pts == p[i], axis=1))[0][0])
+        return (f"turns straight back along itself at point {k} ({p[i, 0]:g}, {p[i, 1]:g}): the points before and "
+                f"after it lie on one line with it on the same side (a zero-width spike); remove that point")
+    return None
+
+
+def _reach_problem(outline, lo, hi, what: str) -> str | None:
+    """Whether an outline leaves the body's bounding box (lo, hi) grown by REACH_MARGIN_M."""
+    pts = np.asarray(outline, float)
+    lo = np.asarray(lo, float) - REACH_MARGIN_M
+    hi = np.asarray(hi, float) + REACH_MARGIN_M
+    out = np.any((pts < lo) | (pts > hi), axis=1)
+    if not out.any():
+        return None
+    i = int(np.argmax(out))
+    return (f"point {i} ({pts[i, 0]:g}, {pts[i, 1]:g}) m lies outside the body's {what} "
+            f"({lo[0]:g}..{hi[0]:g}, {lo[1]:g}..{hi[1]:g} m: the body's extent plus {REACH_MARGIN_M:g} m)")
 
 
 def check_vehicle(v: Vehicle) -> None:
@@ -438,6 +529,9 @@ def check_vehicle(v: Vehicle) -> None:
             raise VehicleFileError(f"outline {problem}", f"zones[{i}].outline")
         if z.z_min_m is not None and z.z_max_m is not None and z.z_min_m >= z.z_max_m:
             raise VehicleFileError("z_min_m must be below z_max_m", f"zones[{i}].z_min_m")
+        reach = _reach_problem(z.outline, *_view_box(v, z.view), f"{z.view} view")
+        if reach:
+            raise VehicleFileError(f"zone outline {reach}", f"zones[{i}].outline")
     _unique([w.id for w in v.wheels], "wheels", "id")
     _unique([s.name for s in v.spots], "spots", "name")
     _unique([r.name for r in v.regions], "regions", "name")
@@ -450,6 +544,11 @@ def check_vehicle(v: Vehicle) -> None:
                 f"tire is {t.outer_diameter_m:.3f} m across; the limit is {MAX_TIRE_DIAMETER_M:.0f} m",
                 f"wheels[{i}].tire",
             )
+        for size, lo, what in ((t.outer_diameter_m, MIN_TIRE_DIAMETER_M, "overall diameter"),
+                               (t.rim_diameter_m, MIN_RIM_DIAMETER_M, "rim diameter"),
+                               (t.section_width_m, MIN_SECTION_WIDTH_M, "section width")):
+            if size < lo:
+                raise VehicleFileError(f"tire {what} is {size:.3f} m; the smallest allowed is {lo:g} m", f"wheels[{i}].tire")
         if t.rim_diameter_m >= t.outer_diameter_m:
             raise VehicleFileError("rim diameter must be smaller than the overall diameter", f"wheels[{i}].tire")
         tol = t.section_width_m
@@ -461,6 +560,9 @@ def check_vehicle(v: Vehicle) -> None:
             )
         if w.sensor_radius > t.outer_radius_m:
             raise VehicleFileError("sensor radius is larger than the tire radius", f"wheels[{i}].sensor_radius_m")
+        if w.sensor_radius < MIN_SENSOR_RADIUS_M:
+            raise VehicleFileError(f"sensor radius is {w.sensor_radius:.3f} m; the smallest allowed is "
+                                   f"{MIN_SENSOR_RADIUS_M:g} m", f"wheels[{i}].sensor_radius_m")
         if abs(w.sensor_offset) > 0.5 * w.rim_width_m:
             raise VehicleFileError("sensor offset lies outside the rim width", f"wheels[{i}].sensor_offset_m")
     for i, s in enumerate(v.spots):
@@ -476,6 +578,17 @@ def check_vehicle(v: Vehicle) -> None:
             raise VehicleFileError("a top-view region needs height_m", f"regions[{i}].height_m")
         if r.view == "side" and r.lateral_m is None:
             raise VehicleFileError("a side-view region needs lateral_m", f"regions[{i}].lateral_m")
+        lo, hi = _view_box(v, r.view)
+        reach = _reach_problem(r.outline, lo, hi, f"{r.view} view")
+        if reach:
+            raise VehicleFileError(f"region outline {reach}", f"regions[{i}].outline")
+        # a top region's height lies within the side view's z extent; a side region's y within the top view's
+        key, value = ("height_m", r.height_m) if r.view == "top" else ("lateral_m", r.lateral_m)
+        box = _view_box(v, "side" if r.view == "top" else "top")
+        lo_f, hi_f = box[0][1] - REACH_MARGIN_M, box[1][1] + REACH_MARGIN_M
+        if not lo_f <= value <= hi_f:
+            raise VehicleFileError(f"{value:g} m lies outside the body's extent plus {REACH_MARGIN_M:g} m "
+                                   f"({lo_f:g}..{hi_f:g} m)", f"regions[{i}].{key}")
     radio = v.radio
     if not MIN_FREQUENCY_HZ <= radio.frequency_hz <= MAX_FREQUENCY_HZ:
         raise VehicleFileError(
@@ -486,6 +599,9 @@ def check_vehicle(v: Vehicle) -> None:
         raise VehicleFileError("give eirp_dbm, or both conducted_power_dbm and antenna_gain_dbi", "radio.sensor")
     if s.eirp_dbm is not None and (s.conducted_power_dbm is not None or s.antenna_gain_dbi is not None):
         raise VehicleFileError("give eirp_dbm or conducted_power_dbm + antenna_gain_dbi, not both", "radio.sensor")
+    work = check_rank_work(len(v.spots), len(v.wheels), radio.angles_per_turn)
+    if work:
+        raise VehicleFileError(work, "spots" if len(v.spots) * len(v.wheels) > MAX_SPOTS else "radio.angles_per_turn")
     if radio.speed_max_mps < radio.speed_min_mps:
         raise VehicleFileError("speed_max_mps is below speed_min_mps", "radio.speed_max_mps")
     _check_timing(radio)
@@ -513,6 +629,12 @@ def _check_timing(radio: Radio) -> None:
                                "(an assumed factor), not both", "radio.averaging_factor_db")
 
 
+def _view_box(v: Vehicle, view: str) -> tuple[np.ndarray, np.ndarray]:
+    """The body's bounding box in one view: (x, y) for top, (x, z) for side, m."""
+    pts = np.asarray(v.body.top_outline if view == "top" else v.body.side_outline, float)
+    return pts.min(axis=0), pts.max(axis=0)
+
+
 def _unique(names: list[str], group: str, key: str) -> None:
     seen: dict[str, int] = {}
     for i, n in enumerate(names):
@@ -525,7 +647,7 @@ def _unique(names: list[str], group: str, key: str) -> None:
 def parse_vehicle(text: str | bytes, path: str | os.PathLike | None = None) -> Vehicle:
     """Parse and validate a vehicle document; raise VehicleFileError (never another error)."""
     try:
-        data = json.loads(text)
+        data = json.loads(text, object_pairs_hook=_object_pairs)
     except json.JSONDecodeError as e:
         raise VehicleFileError(f"not valid JSON: {e.msg} at line {e.lineno}, column {e.colno}", "", path) from None
     except RecursionError:

@@ -266,7 +266,7 @@ def test_negative_sizes(tmp_path, path, value, field):
 def test_negative_explicit_tire_diameter(tmp_path):
     d = sedan()
     d["wheels"][0]["tire"] = {"outer_diameter_m": -0.66, "rim_diameter_m": 0.43, "section_width_m": 0.22}
-    located(load_error(tmp_path, d), "wheels[0].tire.outer_diameter_m", "greater than 0")
+    located(load_error(tmp_path, d), "wheels[0].tire.outer_diameter_m", "greater than or equal to 0.3")
 
 
 def test_body_longer_than_30_m(tmp_path):

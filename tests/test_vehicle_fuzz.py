@@ -5,7 +5,11 @@ Mutations: dropped keys and list items, values replaced by the wrong type, NaN/i
 numbers, integers of hundreds of digits, shuffled and truncated outlines, duplicated wheels/spots,
 unknown keys, deep nesting, other nodes swapped in, non-object top level, and damaged JSON text.
 Each test counts its outcomes and asserts how many documents it tried and how many were refused,
-so a strategy that silently stops producing bad documents fails the test.
+so a strategy that silently stops producing bad documents fails the test; the mutation test also
+asserts that every kind of mutation was applied.
+
+Deterministic: hypothesis runs derandomized (the same examples every run, no database), and the
+outline shuffle draws its seed from hypothesis, so a failure reproduces exactly.
 """
 
 from __future__ import annotations
@@ -26,6 +30,7 @@ SAMPLE_TEXTS = [p.read_text() for p in sorted((ROOT / "sample_vehicles").glob("*
 FUZZ = settings(
     deadline=None,
     database=None,
+    derandomize=True,  # a fixed sequence of examples: no flaky runs (DEVELOPERS.md, no flaky tests)
     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large, HealthCheck.nested_given],
 )
 
@@ -74,29 +79,40 @@ def _get(doc, path):
     return doc
 
 
-def _mutate(data, doc):
-    """Apply one drawn mutation to doc (in place where possible); return the new document."""
+OPS = ("drop", "junk", "scale", "shuffle", "shuffle_outline", "truncate", "duplicate", "add_key", "wrap", "swap",
+       "top_level")
+
+
+def _mutate(data, doc, applied: Counter | None = None):
+    """Apply one drawn mutation to doc (in place where possible); return the new document.
+    ``applied`` counts the mutations that changed something, by kind."""
     paths = _nodes(doc)
-    op = data.draw(
-        st.sampled_from(
-            ["drop", "junk", "junk", "scale", "shuffle", "shuffle_outline", "truncate", "duplicate",
-             "add_key", "wrap", "swap", "top_level"]
-        )
-    )
+    op = data.draw(st.sampled_from(["junk", *OPS]))  # junk twice as often as the others
     if op == "top_level":
+        if applied is not None:
+            applied[op] += 1
         return data.draw(st.one_of(JUNK, st.just([doc]), st.just(json.dumps(doc))))
     if not paths:
         return doc
     if op == "shuffle_outline":
-        outlines = [p for p in paths if p[-1] in ("top_outline", "side_outline", "outline")]
+        # only outlines that are still lists: an earlier "junk" may have replaced one by null, a number or text
+        outlines = [p for p in paths if p[-1] in ("top_outline", "side_outline", "outline")
+                    and isinstance(_get(doc, p), list) and len(_get(doc, p)) > 1]
         if outlines:
             p = data.draw(st.sampled_from(outlines))
             seed = data.draw(st.integers(0, 2**32 - 1))
             random.Random(seed).shuffle(_get(doc, p))
+            if applied is not None:
+                applied[op] += 1
         return doc
     path = data.draw(st.sampled_from(paths))
     parent, key = _get(doc, path[:-1]), path[-1]
     value = parent[key]
+    if applied is not None and (op in ("drop", "junk", "scale", "wrap", "swap")
+                                or (op in ("shuffle", "truncate") and isinstance(value, list))
+                                or (op == "duplicate" and isinstance(value, list) and value)
+                                or (op == "add_key" and isinstance(value, dict))):
+        applied[op] += 1
     if op == "drop":
         del parent[key]
     elif op == "junk":
@@ -145,13 +161,14 @@ def _outcome(load) -> str:
 
 def test_mutated_documents_raise_only_vehicle_file_error():
     counts: Counter = Counter()
+    applied: Counter = Counter()
 
     @settings(FUZZ, max_examples=1100)
     @given(data=st.data(), which=st.integers(0, len(SAMPLE_TEXTS) - 1), n=st.integers(1, 4))
     def run(data, which, n):
         doc = json.loads(SAMPLE_TEXTS[which])
         for _ in range(n):
-            doc = _mutate(data, doc)
+            doc = _mutate(data, doc, applied)
         text = json.dumps(doc, allow_nan=True)
         counts[_outcome(lambda: parse_vehicle(text, "fuzz.json"))] += 1
         if isinstance(doc, dict):  # the in-memory entry point the GUI uses must behave the same
@@ -160,6 +177,8 @@ def test_mutated_documents_raise_only_vehicle_file_error():
     run()
     assert sum(counts.values()) >= 1100
     assert counts["refused"] >= 700, counts  # most mutations break the document
+    assert set(applied) == set(OPS), applied  # every kind of mutation was exercised
+    assert min(applied.values()) >= 10, applied
 
 
 def test_damaged_json_text_raises_only_vehicle_file_error():

@@ -28,7 +28,8 @@ import tracemalloc
 
 import numpy as np
 
-from app.cli.engine import _Progress
+from app.cli import options
+from app.cli.engine import _Progress, add_progress_options
 from core.vehicle import load_vehicle
 
 MAIN_STEP_M = 0.05
@@ -38,6 +39,7 @@ GROWTH_SPOTS = (600, 2400, 9600)
 QUICK_MAIN_SPOTS = 150
 QUICK_MEMORY_SPOTS = 400
 QUICK_GROWTH_SPOTS = (40, 80, 160)
+MAX_REPEATS = 100
 
 
 def cpu_model() -> str:
@@ -233,7 +235,7 @@ def _cmd_bench(args) -> int:
         models = ["knife_edge", "installed_pattern"]
     elif args.wheel_model:
         models = [args.wheel_model]
-    repeats = max(1, args.repeats if args.repeats else (1 if args.quick else 5))
+    repeats = args.repeats if args.repeats else (1 if args.quick else 5)
     show = args.progress or (sys.stderr.isatty() and not args.quiet)
     figures = []
     for m in models:
@@ -262,10 +264,10 @@ def register(sub) -> None:
     b = sub.add_parser("bench", help="speed and memory benchmark of the engine against the scalar reference")
     b.add_argument("file", nargs="?", default=None, help="vehicle file (default: the sample sedan)")
     b.add_argument("--quick", action="store_true", help="small grids and few repeats (a smoke run, not a measurement)")
-    b.add_argument("--repeats", type=int, help="timed repeats of the heatmap (default 5; 1 with --quick)")
+    b.add_argument("--repeats", type=options.count(1, MAX_REPEATS), metavar="N",
+                   help=f"timed repeats of the heatmap, 1-{MAX_REPEATS} (default 5; 1 with --quick)")
     b.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern", "both"],
                    help="wheel model to bench (default: both; the summary line is the knife-edge model's, "
                         "which the scalar reference covers)")
-    b.add_argument("--progress", action="store_true", help="show progress bars even when not on a terminal")
-    b.add_argument("--quiet", action="store_true", help="no progress bars")
+    add_progress_options(b)
     b.set_defaults(func=_cmd_bench)

@@ -2,52 +2,63 @@
 
 from __future__ import annotations
 
+import argparse
 import json
 import sys
 
 import numpy as np
-from pydantic import ValidationError
 
+from app.caution import SAFETY_NOTE, print_safety_note
+from app.cli import options
 from app.report.rank_json import rank_document
-from core.vehicle import Spot
-
-
-def _parse_spot(text: str) -> Spot:
-    """NAME=X,Y,Z in metres, vehicle axes."""
-    name, sep, rest = text.partition("=")
-    try:
-        if not sep or not name:
-            raise ValueError
-        x, y, z = (float(p) for p in rest.split(","))
-    except ValueError:
-        raise SystemExit(f"error: --spot {text!r}: expected NAME=X,Y,Z in metres, e.g. 'console=-1.3,0,0.5'") from None
-    try:
-        return Spot(name=name, x_m=x, y_m=y, z_m=z)
-    except ValidationError as e:  # non-finite or out-of-range coordinate, over-long name
-        err = e.errors()[0]
-        field = ".".join(str(p) for p in err["loc"])
-        raise SystemExit(f"error: --spot {text!r}: {field}: {err['msg']}") from None
+from core.bounds import (
+    MAX_ANGLES_PER_TURN,
+    MAX_HEATMAP_CELLS,
+    MIN_ANGLES_PER_TURN,
+    check_heatmap_work,
+    require_finite_heatmap,
+    require_finite_scores,
+)
+from core.vehicle import MAX_BODY_HEIGHT_M, MAX_BODY_WIDTH_M, VehicleFileError
 
 
 def _load_with_spots(args):
-    """(vehicle with the command's overrides, its ``vehicle_file`` record, the overrides) - core.provenance."""
+    """(vehicle with the command's overrides, its ``vehicle_file`` record, the overrides) - core.provenance.
+
+    A problem the overrides cause names the file and the option (``--spot NAME``, ``--angles``)."""
     from core.provenance import apply_overrides, load_with_source
 
     v, source = load_with_source(args.file)
-    extra = [_parse_spot(s) for s in (args.spot or [])]
+    n_file = len(v.spots)
+    extra = list(args.spot or ())  # Spot objects (app.cli.options.spot)
     overrides = {
         "angles_per_turn": getattr(args, "angles", None),
         "ground_reflection": False if getattr(args, "no_ground", False) else None,
         "wheel_model": getattr(args, "wheel_model", None),
         "extra_spots": [s.model_dump(mode="json", exclude_none=True) for s in extra],
     }
-    return apply_overrides(v, overrides, args.file), source, overrides
+    try:
+        v = apply_overrides(v, overrides, args.file)
+    except VehicleFileError as e:
+        problem = e.problem
+        if e.field.startswith("spots[") and extra:
+            i = int(e.field[6:e.field.index("]")])
+            if i >= n_file:  # a spot of the command line
+                problem = f"--spot {extra[i - n_file].name!r}: {problem}"
+        elif e.field == "spots" or e.field == "radio.angles_per_turn":
+            problem = f"with the command line's --spot/--angles: {problem}"
+        raise VehicleFileError(problem, e.field, args.file) from None
+    return v, source, overrides
 
 
 def _setup(args, v, scene, source, overrides, extra=None) -> dict:
     from core.provenance import setup_record
 
     return setup_record(v, scene, source, getattr(args, "command_line", None), overrides, extra)
+
+
+def _show_progress(args) -> bool:
+    return args.progress or (sys.stderr.isatty() and not args.quiet)
 
 
 def _cmd_rank(args) -> int:
@@ -62,10 +73,12 @@ def _cmd_rank(args) -> int:
     from core.placement import classify
 
     scene = Scene.from_vehicle(v)
-    scores = score_vehicle(v, scene)
+    scores = score_vehicle(v, scene, progress=_Progress(_show_progress(args), "spots"))
+    require_finite_scores(scores, args.file)
     placement = classify(scene, scores.positions)
     if args.json:
-        print(json.dumps(rank_document(v, scores, _setup(args, v, scene, source, overrides), placement), indent=1))
+        doc = rank_document(v, scores, _setup(args, v, scene, source, overrides), placement)
+        print(json.dumps({**doc, "caution": SAFETY_NOTE}, indent=1))
         return 0
     check = check_sensor_eirp(v.radio)
     if check.over_ceiling:
@@ -90,22 +103,23 @@ def _cmd_rank(args) -> int:
               f"{scores.wheel_ids[w]:<11} {scores.worst_angle_deg[i, w]:6.0f}  {flag}")
     for i, msg in placement.messages():
         print(f"warning: spots[{i}] {scores.names[i]!r}: {msg}")
-    print("Results are approximate: confirm by detailed simulation and vehicle measurement.")
+    print_safety_note()
     return 0
 
 
 class _Progress:
-    """A text progress bar on stderr for long grids."""
+    """A text progress bar on stderr for long work (``unit``: what is counted)."""
 
-    def __init__(self, enabled: bool):
+    def __init__(self, enabled: bool, unit: str = "spots"):
         self.enabled = enabled
+        self.unit = unit
 
     def __call__(self, done: int, total: int) -> None:
         if not self.enabled:
             return
         n = 30
         k = int(n * done / max(total, 1))
-        sys.stderr.write(f"\r[{'#' * k}{'.' * (n - k)}] {done}/{total} spots")
+        sys.stderr.write(f"\r[{'#' * k}{'.' * (n - k)}] {done}/{total} {self.unit}")
         if done >= total:
             sys.stderr.write("\n")
         sys.stderr.flush()
@@ -133,8 +147,10 @@ def _cmd_heatmap(args) -> int:
     if args.view == "side" and args.y is not None:
         region = Region(**{**region.model_dump(), "lateral_m": args.y})
     scene = Scene.from_vehicle(v)
-    show = args.progress or (sys.stderr.isatty() and not args.quiet)
-    hm = heatmap(scene, region, args.step, progress=_Progress(show))
+    check_heatmap_work([region], args.step, len(scene.wheels), len(scene.angles_rad),
+                       what=f"{args.file}: heatmap of region {region.name!r}")
+    hm = heatmap(scene, region, args.step, progress=_Progress(_show_progress(args), "cells"))
+    require_finite_heatmap(hm, region.name, args.file)
     check = check_sensor_eirp(v.radio)
     fixed = "z" if hm.view == "top" else "y"
     ok, cells = hm.meeting(0.0)
@@ -165,37 +181,47 @@ def _cmd_heatmap(args) -> int:
                 lines.append(f"{p[0]:.4f},{p[1]:.4f},{p[2]:.4f},{m:.3f},{scene.wheel_ids[w]},{mc:.3f}")
         atomic_write_text(args.csv, "\n".join(lines) + "\n")
         print(f"wrote {args.csv}")
+    print_safety_note()
     return 0
 
 
+def add_progress_options(p) -> None:
+    """--progress / --quiet (one or the other): the progress bar on stderr, shown by default on a terminal."""
+    g = p.add_mutually_exclusive_group()
+    g.add_argument("--progress", action="store_true", help="show a progress bar on stderr even when not on a terminal")
+    g.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
 def register(sub) -> None:
+    angles_help = (f"wheel angles per turn, {MIN_ANGLES_PER_TURN}-{MAX_ANGLES_PER_TURN} "
+                   "(default: the file's)")
     r = sub.add_parser("rank", help="rank the receiver spots by worst-case link margin")
     r.add_argument("file")
-    r.add_argument("--spot", action="append", metavar="NAME=X,Y,Z", help="add a spot (m, vehicle axes)")
-    r.add_argument("--angles", type=int, metavar="N", help="wheel angles per turn (default: the file's)")
+    r.add_argument("--spot", action="append", type=options.spot, metavar="NAME=X,Y,Z",
+                   help="add a spot (m, vehicle axes)")
+    r.add_argument("--angles", type=options.angles, metavar="N", help=angles_help)
     r.add_argument("--no-ground", action="store_true", help="leave out the road reflection")
     r.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern"], help="override the file's wheel model")
     r.add_argument("--json", action="store_true", help="print the ranking as JSON with per-angle levels")
+    add_progress_options(r)
     r.set_defaults(func=_cmd_rank)
     h = sub.add_parser("heatmap", help="link margin over a mounting region grid")
     h.add_argument("file")
     h.add_argument("--view", choices=["top", "side"], default="top")
     h.add_argument("--region", help="region name (default: the first of the view)")
-    h.add_argument("--step", type=float, default=0.05, help="cell spacing, m (default 0.05)")
-    h.add_argument("--height", type=float, help="top view: height z of the grid, m (default: the region's)")
-    h.add_argument("--y", type=float, help="side view: lateral position y of the grid, m (default: the region's)")
-    h.add_argument("--top", type=int, default=10, help="how many best cells to print")
+    h.add_argument("--step", type=options.step, default=0.05,
+                   help=f"cell spacing, m, above 0 and at most {options.MAX_STEP_M:g} (default 0.05); the grid "
+                        "must fit the work limits (README, Limits)")
+    h.add_argument("--height", type=options.length(0.0, MAX_BODY_HEIGHT_M), metavar="Z",
+                   help=f"top view: height z of the grid, m, 0-{MAX_BODY_HEIGHT_M:g} (default: the region's)")
+    h.add_argument("--y", type=options.length(-MAX_BODY_WIDTH_M, MAX_BODY_WIDTH_M), metavar="Y",
+                   help="side view: lateral position y of the grid, m (default: the region's)")
+    h.add_argument("--top", type=options.count(1, MAX_HEATMAP_CELLS), default=10, metavar="N",
+                   help="how many best cells to print (default 10)")
     h.add_argument("--csv", metavar="OUT.csv", help="write every cell to a CSV file")
-    h.add_argument("--progress", action="store_true", help="show a progress bar even when not on a terminal")
-    h.add_argument("--quiet", action="store_true", help="no progress bar")
-    h.add_argument("--spot", action="append", help=argparse_suppress())
-    h.add_argument("--angles", type=int, metavar="N", help="wheel angles per turn")
+    add_progress_options(h)
+    h.add_argument("--spot", action="append", type=options.spot, help=argparse.SUPPRESS)
+    h.add_argument("--angles", type=options.angles, metavar="N", help=angles_help)
     h.add_argument("--no-ground", action="store_true", help="leave out the road reflection")
     h.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern"])
     h.set_defaults(func=_cmd_heatmap)
-
-
-def argparse_suppress():
-    import argparse
-
-    return argparse.SUPPRESS

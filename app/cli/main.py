@@ -1,6 +1,8 @@
 """Command line: ``wheelreach`` (GUI), ``check``, ``schema``, and the batch commands.
 
-A bad vehicle file prints its located message and exits with status 1, never a traceback.
+A bad option value prints one line and exits with status 2 (app.cli.options); a bad vehicle file,
+a bad output path, or work beyond a documented limit (core.bounds) prints one located line and
+exits with status 1; never a traceback.
 """
 
 from __future__ import annotations
@@ -9,9 +11,10 @@ import argparse
 import json
 import sys
 
+from app.cli.options import Parser
+from core.bounds import NonFiniteResultError, WorkLimitError
 from core.files import install_signal_cleanup
 from core.vehicle import VehicleFileError, json_schema, load_vehicle
-
 
 
 def _cmd_check(args) -> int:
@@ -47,13 +50,16 @@ def _cmd_schema(args) -> int:
 
 
 def _cmd_gui(args) -> int:
+    from core.files import check_outputs
+
+    check_outputs({"--screenshot": args.screenshot}, [args.file])  # OutputPathError: one line, exit 1
     from app.gui.main import run_gui
 
     return run_gui(args.file, screenshot=getattr(args, "screenshot", None))
 
 
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(
+    p = Parser(
         prog="wheelreach",
         description="Placement aid for tire-pressure sensor receivers. With no command, opens the desktop program.",
     )
@@ -90,7 +96,7 @@ def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     parser = build_parser()
     # "wheelreach [FILE] [--screenshot OUT]" opens the GUI; a first word that is a command runs it.
-    commands = set(parser._subparsers._group_actions[0].choices)  # noqa: SLF001
+    commands = set(parser._subparsers._group_actions[0].choices)
     if not argv or (argv[0] not in commands and argv[0] not in ("-h", "--help")):
         argv = ["gui", *argv]
     args = parser.parse_args(argv)
@@ -99,7 +105,7 @@ def main(argv: list[str] | None = None) -> int:
         install_signal_cleanup()
     try:
         return args.func(args)
-    except VehicleFileError as e:
+    except (VehicleFileError, WorkLimitError, NonFiniteResultError) as e:
         print(f"error: {e}", file=sys.stderr)
         return 1
     except KeyboardInterrupt:

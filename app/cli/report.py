@@ -4,7 +4,11 @@ from __future__ import annotations
 
 import sys
 
+from app.caution import SAFETY_NOTE, print_safety_note
+from app.cli import options
+from app.cli.engine import _Progress, add_progress_options
 from core.compare import LANDMARKS
+from core.vehicle import MAX_BODY_HEIGHT_M
 
 
 def _cmd_report(args) -> int:
@@ -17,11 +21,9 @@ def _cmd_report(args) -> int:
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     from app.report.pdf import write_report
 
-    if not args.step > 0:
-        print("error: --step must be positive", file=sys.stderr)
-        return 1
+    show = args.progress or (sys.stderr.isatty() and not args.quiet)
     d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step,
-                        command_line=getattr(args, "command_line", None))
+                        progress=_Progress(show, "spots and cells"), command_line=getattr(args, "command_line", None))
     s = d.scores
     b = d.best_index()  # the best-ranked spot that is a receiver position (core.placement)
     if d.eirp_check.over_ceiling:
@@ -31,6 +33,7 @@ def _cmd_report(args) -> int:
     for p in (args.csv, args.json):
         if p:
             print(f"wrote {p}")
+    print_safety_note()
     return 0
 
 
@@ -48,10 +51,15 @@ def _cmd_compare(args) -> int:
     search, err = None, ""
     if not args.no_search:
         try:
-            search = search_common_position(vehicles, args.landmark, args.search_step, args.above_floor, scenes)
+            search = search_common_position(vehicles, args.landmark, args.search_step, args.above_floor, scenes,
+                                            progress=_Progress(args.progress or (sys.stderr.isatty() and not args.quiet),
+                                                               "bodies"))
         except NoSharedRegion as e:
             err = str(e)
-    print(comparison_text(c, search, err))
+    text = comparison_text(c, search, err)
+    if text.endswith(SAFETY_NOTE):  # the note ends the text; here it is printed last, after the files
+        text = text[: -len(SAFETY_NOTE)].rstrip("\n")
+    print(text)
     if args.csv:
         atomic_write_text(args.csv, comparison_csv(c, search))
         print(f"wrote {args.csv}")
@@ -63,6 +71,7 @@ def _cmd_compare(args) -> int:
 
         n = write_comparison_pdf(args.output, vehicles, list(args.files), c, search, err)
         print(f"wrote {args.output}: {n} pages")
+    print_safety_note()
     return 0
 
 
@@ -72,7 +81,10 @@ def register(sub) -> None:
     r.add_argument("-o", "--output", required=True, metavar="OUT.pdf", help="PDF to write")
     r.add_argument("--csv", metavar="OUT.csv", help="also write the report's numbers as CSV")
     r.add_argument("--json", metavar="OUT.json", help="also write the report's numbers as JSON")
-    r.add_argument("--step", type=float, default=0.05, help="heatmap cell spacing, m (default 0.05)")
+    r.add_argument("--step", type=options.step, default=0.05,
+                   help=f"heatmap cell spacing, m, above 0 and at most {options.MAX_STEP_M:g} (default 0.05); the "
+                        "report's heatmaps must fit the work limits (README, Limits)")
+    add_progress_options(r)
     r.set_defaults(func=_cmd_report)
     c = sub.add_parser("compare", help="compare spots across several bodies; name the platform-common best spot")
     c.add_argument("files", nargs="+", metavar="FILE")
@@ -80,8 +92,12 @@ def register(sub) -> None:
     c.add_argument("--csv", metavar="OUT.csv", help="also write the table as CSV")
     c.add_argument("--landmark", choices=[x for x in LANDMARKS], default="rear_axle",
                    help="landmark the shared mounting region is measured from (default rear_axle)")
-    c.add_argument("--above-floor", type=float, metavar="H",
-                   help="search at H m above each body's floor (default: each body's own region height)")
-    c.add_argument("--search-step", type=float, default=0.10, help="grid spacing of the search, m (default 0.10)")
+    c.add_argument("--above-floor", type=options.length(0.0, MAX_BODY_HEIGHT_M), metavar="H",
+                   help=f"search at H m above each body's floor, 0-{MAX_BODY_HEIGHT_M:g} (default: each body's own "
+                        "region height)")
+    c.add_argument("--search-step", type=options.step, default=0.10,
+                   help=f"grid spacing of the search, m, above 0 and at most {options.MAX_STEP_M:g} (default 0.10); "
+                        "the search must fit the work limits (README, Limits)")
     c.add_argument("--no-search", action="store_true", help="skip the shared-region search")
+    add_progress_options(c)
     c.set_defaults(func=_cmd_compare)

@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
+from app.caution import SAFETY_NOTE
 from app.report.data import CAUTION, file_sha256, program_version
 from core.compare import CommonSearch, Comparison
 from core.vehicle import read_vehicle_bytes
@@ -69,7 +70,7 @@ def comparison_text(c: Comparison, search: CommonSearch | None = None, search_er
                          f"({search.best_worst_wheel[b]})")
     elif search_error:
         lines.append(f"Shared-region search: {search_error}")
-    lines.append("Results are approximate: confirm by detailed simulation and vehicle measurement.")
+    lines.append(SAFETY_NOTE)
     return "\n".join(lines)
 
 

@@ -17,7 +17,9 @@ from datetime import UTC, datetime
 
 import numpy as np
 
+from app.caution import CAUTION
 from app.report.rank_json import rank_document
+from core.bounds import check_heatmap_work, require_finite_heatmap, require_finite_scores
 from core.burst import BurstResult, burst_for_spot
 from core.distinctness import Distinctness, wheel_distinctness
 from core.materials import BUILTIN_MATERIALS, ROAD_SURFACES, material_loss_db
@@ -32,12 +34,6 @@ from core.vehicle import Region, Vehicle
 DETAIL_SPOTS = 3
 MPS_TO_KMH = 3.6
 
-CAUTION = (
-    "Caution: the tire-pressure warning is a safety function required by law in many markets. "
-    "Wheelreach is an early placement aid built on simplified models, so its results are approximate: "
-    "confirm the receiver location by detailed simulation and by measurements on the vehicle. "
-    "Radio limits follow the rules of each market and licensed practice."
-)
 
 
 __all__ = ["CAUTION", "ReportData", "build_report_data", "file_sha256", "program_version", "report_csv",
@@ -181,6 +177,14 @@ def _kmh_list(values) -> str:
     return ", ".join(f"{v * MPS_TO_KMH:.0f}" for v in values)
 
 
+def resonant_kmh(burst: BurstResult, k: int) -> str:
+    """Wheel k's listed resonant speeds in km/h; says how many more the range holds when the list is cut."""
+    rs = burst.resonant_mps[k]
+    total = burst.resonant_count[k] if burst.resonant_count else len(rs)
+    more = f" (the lowest {len(rs)} of {total:,})" if total > len(rs) else ""
+    return _kmh_list(rs) + more
+
+
 def _placement_findings(scores: SpotScores, placement: Placement) -> list[str]:
     """Sentences on the spots that are not clean receiver positions (core.placement), loudest first."""
     out = []
@@ -237,9 +241,9 @@ def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, r
     br = d0.burst
     wi, vi = br.worst()
     res = {}
-    for wid, rs in zip(br.wheel_ids, br.resonant_mps):
+    for k, (wid, rs) in enumerate(zip(br.wheel_ids, br.resonant_mps)):
         if len(rs):
-            res.setdefault(_kmh_list(rs), []).append(wid)
+            res.setdefault(resonant_kmh(br, k), []).append(wid)
     if res:
         txt = "; ".join(f"{k} km/h ({', '.join(ids)})" for k, ids in res.items())
         parts.append(f"At the best spot the burst frames land on the same wheel angle every turn (resonant "
@@ -287,24 +291,39 @@ def build_report_data(
     now: datetime | None = None,
     command_line: list[str] | None = None,
 ) -> ReportData:
-    """Run the engine for a report. ``progress(done, total)`` counts heatmap cells over all regions;
-    ``command_line`` (the command's words, None from the desktop program) goes into the setup record."""
+    """Run the engine for a report. ``progress(done, total)`` counts positions: the spots, then the
+    heatmap cells over all regions; ``command_line`` (the command's words, None from the desktop
+    program) goes into the setup record.
+
+    Before any computing, the report's heatmaps are held to the work limits of core.bounds
+    (WorkLimitError names the limit and the step that fits); afterwards every level, margin and
+    heatmap cell is checked to be finite (NonFiniteResultError) before it reaches a table or figure."""
     v, src = load_for_report(path_or_vehicle)
     if not v.spots:
         from core.vehicle import VehicleFileError
 
         raise VehicleFileError("the file has no receiver spots; a placement report needs at least one", "spots",
                                src["path"])
+    source = src["path"] or "unsaved document"
     scene = Scene.from_vehicle(v)
-    scores = score_vehicle(v, scene)
-    placement = classify(scene, scores.positions)
-    ranking = rank_document(v, scores, placement=placement)
     regions = tuple(v.regions)
+    n_wheels, n_angles = len(scene.wheels), len(scene.angles_rad)
+    check_heatmap_work(regions, step_m, n_wheels, n_angles, what=f"{source}: the report's heatmaps")
     from core.scoring import grid_for_region
 
     sizes = [int(grid_for_region(r, step_m, scene.hull)[2].sum()) for r in regions]  # the cells computed
-    total = max(1, sum(sizes))
-    done = [0]
+    n_spots = len(v.spots)
+    total = max(1, n_spots + sum(sizes))
+
+    def spots_done(d, t):
+        if progress:
+            progress(d, total)
+
+    scores = score_vehicle(v, scene, progress=spots_done, cancel=cancel)
+    require_finite_scores(scores, source)
+    placement = classify(scene, scores.positions)
+    ranking = rank_document(v, scores, placement=placement)
+    done = [n_spots]
     maps = []
     for r, n in zip(regions, sizes):
         base = done[0]
@@ -313,7 +332,9 @@ def build_report_data(
             if progress:
                 progress(base + d, total)
 
-        maps.append(heatmap(scene, r, step_m, progress=sub, cancel=cancel))
+        hm = heatmap(scene, r, step_m, progress=sub, cancel=cancel)
+        require_finite_heatmap(hm, r.name, source)
+        maps.append(hm)
         done[0] += n
     # detail pages for the best spots that are receiver positions (rank as in the ranking table)
     rank_of = {int(i): k + 1 for k, i in enumerate(scores.order())}
@@ -381,6 +402,7 @@ def report_json(d: ReportData) -> dict:
                 "success": {wid: [_r(p, 4) for p in b.success[k]] for k, wid in enumerate(b.wheel_ids)},
                 "parked": {wid: _r(b.parked[k], 4) for k, wid in enumerate(b.wheel_ids)},
                 "resonant_mps": {wid: [_r(s, 4) for s in rs] for wid, rs in zip(b.wheel_ids, b.resonant_mps)},
+                "resonant_count": {wid: int(n) for wid, n in zip(b.wheel_ids, b.resonant_count)},
             },
             "distinctness": {
                 "medians_dbm": {wid: _r(m) for wid, m in zip(dd.wheel_ids, dd.medians_dbm)},

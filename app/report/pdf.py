@@ -40,6 +40,7 @@ from app.report.data import (
     excluded_text,
     report_csv,
     report_json_text,
+    resonant_kmh,
 )
 from core.files import OutputPathError, atomic_path, atomic_write_text, check_outputs
 
@@ -430,7 +431,7 @@ def _details(f: Flow, d: ReportData) -> None:
         rows = []
         for k, wid in enumerate(sc.wheel_ids):
             vi = int(np.argmin(b.success[k]))
-            rs = ", ".join(f"{x * MPS_TO_KMH:.0f}" for x in b.resonant_mps[k]) or "none in range"
+            rs = resonant_kmh(b, k) or "none in range"
             rows.append([esc(wid), f"{sc.worst_dbm[i, k]:.1f}", f"{sc.worst_angle_deg[i, k]:.0f}",
                          f"{sc.median_dbm[i, k]:.1f}", f"{sc.swing_db()[i, k]:.1f}", f"{100 * b.parked[k]:.0f}",
                          f"{100 * b.success[k, vi]:.0f} at {b.speeds_mps[vi] * MPS_TO_KMH:.0f}", rs])
