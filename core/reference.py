@@ -29,9 +29,10 @@ Model, as the reference reads it:
   axial distance to the nearer flange when the path never reaches a flange plane), tread or
   sidewall exit; see ``wheel_loss_db``.
 - Link: direct ray plus, optionally, the road-reflected ray (image method, Fresnel TE/TM
-  coefficients, the TM coefficient referred to the field component normal to the road); each
-  ray's coupling floored at the null floor; the reflected ray's legs shadowed like the direct
-  ray.
+  coefficients, the TM coefficient referred to the field component normal to the road); the
+  reflected ray's legs shadowed like the direct ray. Null floor: the received power is at least
+  the null floor squared times the sum of the rays' powers with a matched, peak coupling
+  (10^(-L/10) / d^2 per ray).
 
 References
 ----------
@@ -388,12 +389,6 @@ class ReferenceModel:
         n = _norm(ref)
         return _scale(1.0 / max(n, 1e-12), ref)
 
-    def _floored(self, c: complex) -> complex:
-        mag = abs(c)
-        if mag >= self.floor_amp:
-            return c
-        return self.floor_amp * (c / mag if mag > 0 else 1.0)
-
     def level_dbm(self, spot, wheel_index: int, angle_index: int, r_axis=None) -> float:
         """Received level, dBm, at ``spot`` (m) from the sensor of one wheel at one angle index.
 
@@ -415,7 +410,9 @@ class ReferenceModel:
         else:
             c_d = complex(_norm(e_d))
             pol = _scale(1.0 / max(_norm(e_d), 1e-12), e_d)  # the direct ray's polarization
-        field = self._floored(c_d) * 10.0 ** (-loss_d / 20.0) * cmath.exp(-1j * self.k * dist) / dist
+        g_d = 10.0 ** (-loss_d / 20.0) / dist
+        field = c_d * g_d * cmath.exp(-1j * self.k * dist)
+        matched_power = g_d * g_d  # the rays' powers with a matched, peak coupling
 
         if self.ground:
             image = (src[0], src[1], -src[2])
@@ -444,7 +441,11 @@ class ReferenceModel:
                 + self.body_loss_db(road_pt, spot)
                 + self.wheel_loss_db(wheel_index, src, road_pt)
             )
-            field += self._floored(c_r) * 10.0 ** (-loss_r / 20.0) * cmath.exp(-1j * self.k * dist_r) / dist_r
+            g_r = 10.0 ** (-loss_r / 20.0) / dist_r
+            field += c_r * g_r * cmath.exp(-1j * self.k * dist_r)
+            matched_power += g_r * g_r
 
-        amp = abs(field) * self.lam / (4.0 * math.pi)
+        # the null floor: the power is held at floor^2 times the rays' matched power sum
+        power = max(abs(field) ** 2, self.floor_amp**2 * matched_power)
+        amp = math.sqrt(power) * self.lam / (4.0 * math.pi)
         return self.eirp_dbm + self.rx_gain_dbi + 20.0 * math.log10(max(amp, 1e-30))

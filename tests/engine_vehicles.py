@@ -28,8 +28,12 @@ def open_space_vehicle(
     receiver_axis=(0.0, 0.0, 1.0),
     ground: bool = False,
     angles: int = 72,
+    null_floor_db: float = -30.0,
 ) -> Vehicle:
     """One 225/50R17 wheel at the origin (centre plane y = 0) and a 10 cm body 1.9-2.0 m up.
+
+    ``null_floor_db``: the radio's null floor (core.links.link_field); the two-ray checks far
+    beyond the crossover distance set it deep, where the rays cancel by more than the default 30 dB.
 
     The body only satisfies the file rules (a wheel must sit under its outline); paths from the
     sensor to spots below 1.9 m, and their road reflections, never reach it.
@@ -44,6 +48,7 @@ def open_space_vehicle(
         receiver=Receiver(gain_dbi=0.0, pattern=receiver_pattern, axis=tuple(receiver_axis)),
         angles_per_turn=angles,
         ground_reflection=ground,
+        null_floor_db=null_floor_db,
     )
     v = Vehicle(name="open space", body_style="test", body=body, wheels=(wheel,), radio=radio)
     check_vehicle(v)

@@ -127,7 +127,7 @@ def test_bad_output_folder_is_one_located_line_and_exit_1_before_computing(argv,
     lines = err.splitlines()
     assert len(lines) == 1, err
     path = argv[argv.index(option) + 1]
-    assert lines[0].startswith(f"error: {argv[0]} {option} {path}: "), err
+    assert lines[0].startswith(f"error: {path} ({option}): "), err  # core.files.check_outputs names path and option
     assert "does not exist" in lines[0] or "is a folder" in lines[0]
     assert not list(tmp_path.iterdir())  # nothing written
 

@@ -59,9 +59,13 @@ def test_rank_json_matches_the_engine(capsys):
             lv = np.array(wd["levels_dbm"])
             assert lv.shape == (v.radio.angles_per_turn,)
             np.testing.assert_allclose(lv, s.levels_dbm[i, w], atol=1e-3)
-            assert wd["worst_dbm"] == pytest.approx(lv.min(), abs=1e-3)  # worst case = minimum (percentile 0)
+            # worst case = the minimum over the continuous turn (core.turn_minimum): the engine's, and never
+            # above the sampled levels' minimum
+            assert wd["worst_dbm"] == pytest.approx(s.worst_dbm[i, w], abs=1e-3)
+            assert wd["worst_dbm"] <= lv.min() + 1e-3
+            assert wd["worst_angle_deg"] == pytest.approx(s.worst_angle_deg[i, w], abs=1e-3)
+            assert 0.0 <= wd["worst_angle_deg"] < 360.0
             assert wd["median_dbm"] == pytest.approx(np.median(lv), abs=1e-3)
-            assert wd["worst_angle_deg"] == pytest.approx(doc["angles_deg"][int(np.argmin(lv))], abs=1e-3)
         # margin = worst wheel's worst case - sensitivity - required margin (DESIGN.md section 5)
         worst = min(wd["worst_dbm"] for wd in d["wheels"])
         assert d["margin_db"] == pytest.approx(worst - doc["sensitivity_dbm"] - doc["required_margin_db"], abs=2e-3)

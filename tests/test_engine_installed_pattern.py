@@ -65,7 +65,7 @@ def test_two_ray_distance_law_with_installed_patterns():
     # loss grows as 40 log10 d; with the installed pattern and the road on, the level from 200 m to
     # 400 m must drop as core.propagation.two_ray_loss_db says for the same heights (within 0.5 dB:
     # the pattern toward the road and toward the receiver differ slightly at these grazing angles).
-    v = open_space_vehicle(sensor_axis="axial", receiver_axis=(0.0, 1.0, 0.0), ground=True)
+    v = open_space_vehicle(sensor_axis="axial", receiver_axis=(0.0, 1.0, 0.0), ground=True, null_floor_db=-80.0)
     scene = Scene.from_vehicle(v, wheel_model="installed_pattern")
     c = np.asarray(scene.wheels[0].centre)
     h_r = 1.0

@@ -139,7 +139,7 @@ def test_unobstructed_level_follows_two_ray_model_with_ground_on_horizontal_pola
     # along x) at the grazing angle atan((h_t + h_r)/d); core.propagation.two_ray_loss_db is checked
     # against Rappaport's asymptote in tests/test_propagation.py. Both rays leave the tire through
     # the tread (10 dB, same on both), so the level is EIRP + G_r - L_two_ray - L_tread.
-    v = open_space_vehicle(sensor_axis="axial", receiver_axis=(0.0, 1.0, 0.0), ground=True)
+    v = open_space_vehicle(sensor_axis="axial", receiver_axis=(0.0, 1.0, 0.0), ground=True, null_floor_db=-80.0)
     scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     src = scene.sensor_pos[0, FRONT]
     h_t = src[2]
@@ -163,7 +163,7 @@ def test_unobstructed_level_follows_two_ray_model_with_ground_on_vertical_polari
     # radial at the top of the wheel, receiver along z). two_ray_loss_db takes isotropic antennas,
     # so the comparison holds once the two rays' dipole patterns agree (elevations of a few
     # degrees: d >= 8 m gives cos(elevation) > 0.99).
-    v = open_space_vehicle(sensor_axis="radial", receiver_axis=(0.0, 0.0, 1.0), ground=True)
+    v = open_space_vehicle(sensor_axis="radial", receiver_axis=(0.0, 0.0, 1.0), ground=True, null_floor_db=-80.0)
     scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     src = scene.sensor_pos[0, 0]
     h_t = src[2]

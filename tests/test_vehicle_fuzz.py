@@ -105,6 +105,8 @@ def _mutate(data, doc, applied: Counter | None = None):
             if applied is not None:
                 applied[op] += 1
         return doc
+    if op == "add_key":  # aim at the objects of the document (most nodes are leaves)
+        paths = [p for p in paths if isinstance(_get(doc, p), dict)] or paths
     path = data.draw(st.sampled_from(paths))
     parent, key = _get(doc, path[:-1]), path[-1]
     value = parent[key]
