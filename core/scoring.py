@@ -197,18 +197,29 @@ class TurnLevels:
                           np.concatenate([p.worst_angle_rad for p in parts]))
 
 
-def spot_turns(scene: Scene, spots, axes=None, refine: bool = True) -> TurnLevels:
+def spot_turns(scene: Scene, spots, axes=None, refine: bool = True, chunk_links: int = CHUNK_LINKS,
+               tick: Callable[[int], None] | None = None) -> TurnLevels:
     """Levels over the turn for spots (S, 3) m with receiver axes (S, 3), and (with ``refine`` and
-    no percentile score) the minimum of each (spot, wheel) over the continuous turn."""
+    no percentile score) the minimum of each (spot, wheel) over the continuous turn.
+
+    The sampled levels are computed in chunks of about ``chunk_links`` links (bounded memory);
+    ``tick(done)`` is called after each chunk with the number of spots done (it may raise
+    Cancelled). The refinement then runs over all S spots at once, so call this with a few hundred
+    spots at a time for speed (core.turn_minimum: each of its steps is one vectorised call)."""
     spots, axes, bits = _spot_inputs(scene, spots, axes)
     S, W, A = len(spots), len(scene.wheels), len(scene.angles_rad)
     refine = refine and scene.worst_percentile <= 0
     re = np.empty((S, W, A))
     im = np.empty((S, W, A))
     floor2 = np.empty((S, W, A))
-    for wi in range(W):
-        f = turn_field(scene, wi, spots, axes, bits)
-        re[:, wi], im[:, wi], floor2[:, wi] = f.re, f.im, f.floor2
+    per_chunk = max(1, chunk_links // max(1, W * A))
+    for start in range(0, S, per_chunk):
+        sl = slice(start, min(S, start + per_chunk))
+        for wi in range(W):
+            f = turn_field(scene, wi, spots[sl], axes[sl], None if bits is None else bits[sl])
+            re[sl, wi], im[sl, wi], floor2[sl, wi] = f.re, f.im, f.floor2
+        if tick is not None:
+            tick(sl.stop)
     field = LinkField(re, im, floor2)
     levels = level_dbm(scene, field.power())
     if not refine:
@@ -316,6 +327,31 @@ def near_field_flags(scene: Scene, positions: np.ndarray) -> np.ndarray:
     return near
 
 
+#: spots refined together (core.turn_minimum works on all of them in each vectorised step)
+REFINE_BLOCK = 512
+
+
+def _turns_in_blocks(scene: Scene, positions: np.ndarray, axes, progress, cancel, chunk_links: int) -> TurnLevels:
+    """spot_turns over many spots in blocks of REFINE_BLOCK, with progress (spots) and cancel per chunk."""
+    total = len(positions)
+    ax = None if axes is None else np.broadcast_to(np.asarray(axes, float), positions.shape)
+    parts = []
+    for start in range(0, total, REFINE_BLOCK):
+        sl = slice(start, min(total, start + REFINE_BLOCK))
+
+        def tick(done, base=start):
+            if progress is not None:
+                progress(base + done, total)
+            if cancel is not None and cancel():
+                raise Cancelled()
+
+        if cancel is not None and cancel():
+            raise Cancelled()
+        parts.append(spot_turns(scene, positions[sl], None if ax is None else ax[sl], chunk_links=chunk_links,
+                                tick=tick))
+    return TurnLevels.concatenate(parts)
+
+
 def score_spots(scene: Scene, positions, axes=None, names=None,
                 progress: Callable[[int, int], None] | None = None, cancel: Callable[[], bool] | None = None,
                 chunk_links: int = CHUNK_LINKS) -> SpotScores:
@@ -325,20 +361,8 @@ def score_spots(scene: Scene, positions, axes=None, names=None,
     bounded whatever S is; ``progress(done, total)`` (spots) is called after each chunk, and when
     ``cancel()`` returns True the computation raises Cancelled before the next chunk."""
     positions = np.atleast_2d(np.asarray(positions, float))
-    total = len(positions)
-    per_chunk = max(1, chunk_links // max(1, len(scene.wheels) * len(scene.angles_rad)))
-    if total <= per_chunk and progress is None and cancel is None:
-        return score_levels(scene, spot_turns(scene, positions, axes), names, positions)
-    ax = None if axes is None else np.broadcast_to(np.asarray(axes, float), positions.shape)
-    parts = []
-    for start in range(0, total, per_chunk):
-        if cancel is not None and cancel():
-            raise Cancelled()
-        sl = slice(start, min(total, start + per_chunk))
-        parts.append(spot_turns(scene, positions[sl], None if ax is None else ax[sl]))
-        if progress is not None:
-            progress(sl.stop, total)
-    return score_levels(scene, TurnLevels.concatenate(parts), names, positions)
+    turns = _turns_in_blocks(scene, positions, axes, progress, cancel, chunk_links)
+    return score_levels(scene, turns, names, positions)
 
 
 def score_vehicle(v: Vehicle, scene: Scene | None = None, progress: Callable[[int, int], None] | None = None,
@@ -482,25 +506,10 @@ def heatmap(
     pts = grid[mask]
     margin = np.full(in_region.shape, np.nan)
     worst = np.full(in_region.shape, -1, int)
-    m_flat = np.full(len(pts), np.nan)
-    w_flat = np.full(len(pts), -1, int)
-    links_per_spot = len(scene.wheels) * len(scene.angles_rad)
-    per_chunk = max(1, chunk_links // max(1, links_per_spot))
-    total = len(pts)
-    if axis is not None:
-        axis = np.broadcast_to(np.asarray(axis, float), (per_chunk, 3))
-    for start in range(0, total, per_chunk):
-        if cancel is not None and cancel():
-            raise Cancelled()
-        sl = slice(start, min(total, start + per_chunk))
-        ax = None if axis is None else axis[: sl.stop - sl.start]
-        sc = score_levels(scene, spot_turns(scene, pts[sl], ax), positions=pts[sl])
-        m_flat[sl] = sc.margin_db
-        w_flat[sl] = sc.worst_wheel
-        if progress is not None:
-            progress(sl.stop, total)
-    margin[mask] = m_flat
-    worst[mask] = w_flat
+    if len(pts):
+        sc = score_levels(scene, _turns_in_blocks(scene, pts, axis, progress, cancel, chunk_links), positions=pts)
+        margin[mask] = sc.margin_db
+        worst[mask] = sc.worst_wheel
     return Heatmap(region.view, fixed, u, v, step_m, margin, worst, cell_state=state)
 
 

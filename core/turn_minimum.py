@@ -43,9 +43,11 @@ from core.links import LinkField, link_field
 from core.wheel import sensor_axes, sensor_positions
 
 #: intervals refined per (spot, wheel)
-REFINE_INTERVALS = 2
+REFINE_INTERVALS = 3
 #: points of the quadratic's search grid per interval
 QUAD_GRID = 33
+#: intervals (of the REFINE_INTERVALS) whose best point gets the golden-section search
+GOLDEN_INTERVALS = 1
 #: golden-section steps around each refined interval's best point (each shrinks the bracket by 0.618)
 GOLDEN_STEPS = 7
 _T = np.linspace(0.0, 1.0, QUAD_GRID)
@@ -62,25 +64,27 @@ def _chord_minimum(v0: np.ndarray, v1: np.ndarray) -> tuple[np.ndarray, np.ndarr
     return t, p.real * p.real + p.imag * p.imag
 
 
-def _separated_lowest(predicted: np.ndarray, k: int) -> np.ndarray:
-    """Per row, the k intervals with the lowest prediction that are not neighbours of one already
-    taken (two basins of one turn get one interval each, rather than two neighbours of one basin);
-    neighbours fill in when a row has too few separate ones. (P, k) indices."""
+def _candidate_intervals(predicted: np.ndarray, k: int) -> np.ndarray:
+    """Per row, k intervals to refine, (P, k) indices: the lowest prediction; the lowest that is not
+    its neighbour (another basin of the turn, e.g. the sensor's mirror position); then the lowest of
+    the rest, neighbours allowed (a basin split by a jump of the body loss)."""
     P, A = predicted.shape
     pool = min(A, 4 * k)
     order = np.argsort(predicted, axis=1)[:, :pool]
+    rows = np.arange(P)
     taken = [order[:, 0]]
     free = np.ones((P, pool), bool)
     free[:, 0] = False
-    for _ in range(1, k):
-        for t in taken:
-            gap = np.abs(order - t[:, None]) % A
-            free &= np.minimum(gap, A - gap) > 1
-        has = free.any(axis=1)
-        j = np.where(has, np.argmax(free, axis=1), 1)
-        pick = order[np.arange(P), j]
-        taken.append(pick)
-        free[np.arange(P), j] = False
+    if k >= 2:
+        gap = np.abs(order - taken[0][:, None]) % A
+        apart = free & (np.minimum(gap, A - gap) > 1)
+        j = np.where(apart.any(axis=1), np.argmax(apart, axis=1), 1)
+        taken.append(order[rows, j])
+        free[rows, j] = False
+    for _ in range(2, k):
+        j = np.argmax(free, axis=1)
+        taken.append(order[rows, j])
+        free[rows, j] = False
     return np.stack(taken, axis=1)
 
 
@@ -146,7 +150,7 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     t, m = _chord_minimum(v, v_next)
     predicted = np.maximum(m, floor2 + t * (f_next - floor2))
     k = min(REFINE_INTERVALS, A)
-    cand = _separated_lowest(predicted, k)  # (P, k) interval starts
+    cand = _candidate_intervals(predicted, k)  # (P, k) interval starts
     rows = np.arange(S * W)[:, None]
     v0, v2 = v[rows, cand], v_next[rows, cand]
     f0, f2 = floor2[rows, cand], f_next[rows, cand]
@@ -174,7 +178,13 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     best_p = np.take_along_axis(pts_p, j, axis=-1)[..., 0]  # (P, k)
     best_t = np.take_along_axis(pts_t, j, axis=-1)[..., 0]
 
-    # golden-section search within one sample step either side of each interval's best point
+    # golden-section search within one sample step either side of the best point of the
+    # GOLDEN_INTERVALS best intervals
+    g = min(GOLDEN_INTERVALS, k)
+    pick = np.argsort(best_p, axis=1)[:, :g]
+    best_p = np.take_along_axis(best_p, pick, axis=1)
+    best_t = np.take_along_axis(best_t, pick, axis=1)
+    k = g
     lo, hi = best_t - step, best_t + step
     x1, x2 = hi - _GOLD * (hi - lo), lo + _GOLD * (hi - lo)
     f12 = pairs.evaluate(np.concatenate([x1, x2], axis=1))
