@@ -506,12 +506,15 @@ def _bilinear(grid: np.ndarray, theta_deg: np.ndarray, n_phi: int, t: np.ndarray
     return out
 
 
-#: Below this distance from the wheel centre the near-field term is held at its value there, m.
+#: Below this distance from the wheel centre the near-field term is held at its value there and the
+#: field at most at the bare sensor's peak, m (the expansion is checked from 1.5 m).
 NEAR_MIN_RADIUS_M = 0.8
 #: The near-field term is sampled at 1.5 m and checked against NEC-2 at 1.5-3 m; it is used in full
 #: out to NEAR_FULL_M and faded out linearly to NEAR_NONE_M, beyond which the far field is exact
 #: enough (a single sampled 1/r term would otherwise carry folded higher-order terms far out), m.
 NEAR_FULL_M = 3.5
+#: peak field magnitude of the bare short dipole in the tables' normalisation (|E|^2 = directivity 1.5)
+BARE_PEAK_FIELD = math.sqrt(1.5)
 NEAR_NONE_M = 7.0
 
 
@@ -583,6 +586,13 @@ def field_vectors(table: PatternTable, directions, theta_rad, outboard_sign=1.0,
         # (exp(-jkr)/r) / (exp(-jkd)/d)
         dd = np.maximum(dist, 1e-300)
         e = e * (dd / np.maximum(r, 1e-300) * np.exp(-1j * k * (r - dd)))[..., None]
+        # Inside NEAR_MIN_RADIUS_M of the wheel centre the expansion is not valid (it grows without
+        # bound toward the centre); there the field is held at most at the bare sensor's peak
+        # (|e|^2 = 1.5, a short dipole's directivity), so the level never exceeds the bare sensor's
+        # free-space level at that distance. Such spots are flagged near field (core.scoring).
+        mag = np.sqrt(np.sum(np.abs(e) ** 2, axis=-1))
+        cap = (r < NEAR_MIN_RADIUS_M) & (mag > BARE_PEAK_FIELD)
+        e = e * np.where(cap, BARE_PEAK_FIELD / np.maximum(mag, 1e-300), 1.0)[..., None]
     # back to vehicle axes: M R(theta) e
     ex = c * e[..., 0] + s * e[..., 2]
     ey = sg * e[..., 1]

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from core.propagation import two_ray_loss_db
-from core.scoring import Scene, spot_levels, vehicle_spot_arrays
+from core.scoring import Scene, score_spots, spot_levels, vehicle_spot_arrays
 from tests.engine_vehicles import open_space_vehicle, sedan
 
 pytest.importorskip("core.wheel_patterns")
@@ -76,3 +76,25 @@ def test_two_ray_distance_law_with_installed_patterns():
     expected_drop = np.diff(two_ray_loss_db(d, h_t, h_r, scene.freq_hz, gamma=-1.0))[0]
     assert level[0] - level[1] == pytest.approx(expected_drop, abs=0.5)
     assert level[0] - level[1] == pytest.approx(40 * np.log10(2), abs=0.6)
+
+
+def test_spot_at_a_wheel_centre_is_finite_flagged_and_not_above_the_bare_sensor():
+    # Issue 18: the installed pattern's 1/r near-field term grew without bound toward the wheel
+    # centre (+37 dBm from a -12 dBm sensor). Inside the expansion's radius the field is held at the
+    # bare short dipole's peak (Balanis: directivity 1.5), so the level never exceeds the bare
+    # sensor's free-space level at that distance (Friis, ITU-R P.525), and the spot is flagged.
+    from core.propagation import free_space_loss_db
+
+    v = sedan()
+    v = v.model_copy(update={"radio": v.radio.model_copy(update={"ground_reflection": False})})
+    scene = Scene.from_vehicle(v, wheel_model="installed_pattern")
+    for wi, w in enumerate(scene.wheels):
+        centre = np.asarray(w.centre)
+        for p in (centre, centre + [0.0, 0.05, 0.0], scene.sensor_pos[wi, 0]):  # the centre, beside it, on the sensor
+            s = score_spots(scene, [p])
+            lv = s.levels_dbm[0, wi]
+            assert np.all(np.isfinite(lv)) and np.isfinite(s.worst_dbm[0, wi])
+            assert s.near_field[0]
+            d = np.maximum(np.linalg.norm(scene.sensor_pos[wi] - p, axis=1), 1e-3)  # core.links.MIN_PATH_M
+            bare = scene.eirp_dbm + scene.receiver_gain_dbi - free_space_loss_db(d, scene.freq_hz)
+            assert np.all(lv <= bare + 1e-6)
