@@ -312,12 +312,18 @@ def score_levels(scene: Scene, levels, names=None, positions=None) -> SpotScores
 
 def near_field_flags(scene: Scene, positions: np.ndarray) -> np.ndarray:
     """(S,) True where the link model is indicative only: a sensor comes nearer than lambda / 2 pi
-    (core.propagation.near_field_limit_m), or, with the installed wheel patterns, the spot lies
-    within the radius below which the pattern's near-field term is held
-    (core.wheel_patterns.NEAR_MIN_RADIUS_M) of a wheel centre."""
+    (core.propagation.near_field_limit_m) anywhere on its circle over the turn, or, with the
+    installed wheel patterns, the spot lies within the radius below which the pattern's near-field
+    term is held (core.wheel_patterns.NEAR_MIN_RADIUS_M) of a wheel centre."""
     positions = np.atleast_2d(np.asarray(positions, float))
-    d_min = np.linalg.norm(positions[:, None, None, :] - scene.sensor_pos[None], axis=-1).min(axis=(1, 2))
-    near = d_min < float(near_field_limit_m(scene.freq_hz))
+    near = np.zeros(len(positions), bool)
+    limit = float(near_field_limit_m(scene.freq_hz))
+    for w in scene.wheels:
+        # distance to the sensor's circle: radius r_s in the plane y = centre + offset, about the centre
+        cx, cy, cz = w.centre
+        dy = positions[:, 1] - (cy + w.outboard_sign * w.sensor_offset_m)
+        rho = np.hypot(positions[:, 0] - cx, positions[:, 2] - cz)
+        near |= np.hypot(dy, rho - w.sensor_radius_m) < limit
     if scene.sensor_kind == "table":
         from core.wheel_patterns import NEAR_MIN_RADIUS_M
 
@@ -328,7 +334,7 @@ def near_field_flags(scene: Scene, positions: np.ndarray) -> np.ndarray:
 
 
 #: spots refined together (core.turn_minimum works on all of them in each vectorised step)
-REFINE_BLOCK = 512
+REFINE_BLOCK = 2048
 
 
 def _turns_in_blocks(scene: Scene, positions: np.ndarray, axes, progress, cancel, chunk_links: int) -> TurnLevels:

@@ -14,10 +14,12 @@ refines its smallest magnitude:
    evaluations of the true link: first at the predicted point (mid-interval when the prediction
    sits at an end), then at the minimum of a complex quadratic through the interval's two ends and
    that point (searched on a grid of ``QUAD_GRID`` points). This lands in narrow smooth nulls.
-3. Golden-section search: around the best point of each of those intervals, within one sample
-   step either side, ``GOLDEN_STEPS`` steps of a golden-section search on the true link. This finds
-   a minimum at the edge of a jump of the body loss (the path moving from one panel to another,
-   where the field is not smooth and the interpolation cannot help).
+3. Golden-section search: where the interpolation cannot be trusted (its quadratic missed the
+   true level at its minimum by more than ``SMOOTH_DB``, or the best point found is a sample rather
+   than an interior point), ``GOLDEN_STEPS`` steps of a golden-section search on the true link
+   within one sample step either side of the best point. This finds a minimum at the edge of a
+   jump of the body loss (the path moving from one panel to another, where the field is not smooth
+   and the interpolation cannot help).
 4. The worst case is the smallest floored power among the samples and every evaluated point:
    always a level computed at a real wheel angle, never an extrapolation, so it can only come down
    toward the true minimum as the sampling gets finer. Its angle is that point's.
@@ -46,22 +48,35 @@ from core.wheel import sensor_axes, sensor_positions
 REFINE_INTERVALS = 3
 #: points of the quadratic's search grid per interval
 QUAD_GRID = 33
-#: intervals (of the REFINE_INTERVALS) whose best point gets the golden-section search
-GOLDEN_INTERVALS = 1
+#: the interpolation is trusted where its quadratic predicts the true level at its minimum within this, dB
+SMOOTH_DB = 0.1
 #: golden-section steps around each refined interval's best point (each shrinks the bracket by 0.618)
 GOLDEN_STEPS = 7
 _T = np.linspace(0.0, 1.0, QUAD_GRID)
 _GOLD = (np.sqrt(5.0) - 1.0) / 2.0
 
 
-def _chord_minimum(v0: np.ndarray, v1: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Parameter t in [0, 1] of the smallest |v0 + t (v1 - v0)| and that |.|^2 (complex arrays)."""
-    d = v1 - v0
-    dd = d.real * d.real + d.imag * d.imag
-    t = -(v0.real * d.real + v0.imag * d.imag) / np.maximum(dd, 1e-300)
-    t = np.clip(t, 0.0, 1.0)
-    p = v0 + t * d
-    return t, p.real * p.real + p.imag * p.imag
+def _chord_minimum(r0, i0, r1, i1) -> tuple[np.ndarray, np.ndarray]:
+    """Parameter t in [0, 1] of the smallest |v0 + t (v1 - v0)| and that |.|^2, for complex v0, v1
+    given as real and imaginary parts (real arithmetic, in place: this runs over every interval)."""
+    dr = r1 - r0
+    di = i1 - i0
+    dd = dr * dr
+    dd += di * di
+    np.maximum(dd, 1e-300, out=dd)
+    t = r0 * dr
+    t += i0 * di
+    t /= dd
+    np.negative(t, out=t)
+    np.clip(t, 0.0, 1.0, out=t)
+    dr *= t
+    dr += r0
+    di *= t
+    di += i0
+    dr *= dr
+    di *= di
+    dr += di
+    return t, dr
 
 
 def _candidate_intervals(predicted: np.ndarray, k: int) -> np.ndarray:
@@ -100,6 +115,13 @@ class _Pairs:
         kind = scene.vehicle.radio.sensor.axis
         self._axis = lambda th: sensor_axes(th, kind)
 
+    def subset(self, idx: np.ndarray) -> "_Pairs":
+        """The pairs ``idx`` only."""
+        sub = object.__new__(_Pairs)
+        sub.__dict__.update(self.__dict__)
+        sub.spot, sub.wheel = self.spot[idx], self.wheel[idx]
+        return sub
+
     def evaluate(self, theta: np.ndarray) -> np.ndarray:
         """Floored field power (1/m^2) of every pair at wheel angles theta (P, K) rad: (P, K)."""
         return self.field(theta).power()
@@ -119,6 +141,29 @@ class _Pairs:
         sb = None if self.spot_bits is None else self.spot_bits[spot]
         f = link_field(sc, wheel, th, src, self._axis(th), bits0, self.spots[spot], self.axes[spot], sb)
         return LinkField(f.re.reshape(P, K), f.im.reshape(P, K), f.floor2.reshape(P, K))
+
+
+def _golden(pairs: "_Pairs", best_p: np.ndarray, best_t: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
+    """GOLDEN_STEPS golden-section steps on [best_t - step, best_t + step] for every pair; the best
+    power and angle seen (never worse than the given ones). Arrays (n,)."""
+    lo, hi = best_t - step, best_t + step
+    x1, x2 = hi - _GOLD * (hi - lo), lo + _GOLD * (hi - lo)
+    f12 = pairs.evaluate(np.stack([x1, x2], axis=1))
+    f1, f2 = f12[:, 0], f12[:, 1]
+    for x, fx in ((x1, f1), (x2, f2)):
+        better = fx < best_p
+        best_p, best_t = np.where(better, fx, best_p), np.where(better, x, best_t)
+    for _ in range(GOLDEN_STEPS):
+        left = f1 < f2  # the minimum lies in [lo, x2]
+        hi = np.where(left, x2, hi)
+        lo = np.where(left, lo, x1)
+        new_x = np.where(left, hi - _GOLD * (hi - lo), lo + _GOLD * (hi - lo))
+        fx = pairs.evaluate(new_x[:, None])[:, 0]
+        x1, x2 = np.where(left, new_x, x2), np.where(left, x1, new_x)
+        f1, f2 = np.where(left, fx, f2), np.where(left, f1, fx)
+        better = fx < best_p
+        best_p, best_t = np.where(better, fx, best_p), np.where(better, new_x, best_t)
+    return best_p, best_t
 
 
 def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkField,
@@ -142,17 +187,18 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     angles = scene.angles_rad
     step = 2.0 * np.pi / A
     pairs = _Pairs(scene, spots, axes, spot_bits)
-    v = (sampled.re + 1j * sampled.im).reshape(S * W, A)
+    re = sampled.re.reshape(S * W, A)
+    im = sampled.im.reshape(S * W, A)
     floor2 = sampled.floor2.reshape(S * W, A)
-    p = np.maximum(v.real * v.real + v.imag * v.imag, floor2)
-    v_next = np.roll(v, -1, axis=1)
-    f_next = np.roll(floor2, -1, axis=1)
-    t, m = _chord_minimum(v, v_next)
+    p = np.maximum(re * re + im * im, floor2)
+    re_n, im_n, f_next = (np.concatenate([x[:, 1:], x[:, :1]], axis=1) for x in (re, im, floor2))
+    t, m = _chord_minimum(re, im, re_n, im_n)
     predicted = np.maximum(m, floor2 + t * (f_next - floor2))
     k = min(REFINE_INTERVALS, A)
     cand = _candidate_intervals(predicted, k)  # (P, k) interval starts
     rows = np.arange(S * W)[:, None]
-    v0, v2 = v[rows, cand], v_next[rows, cand]
+    v0 = re[rows, cand] + 1j * im[rows, cand]
+    v2 = re_n[rows, cand] + 1j * im_n[rows, cand]
     f0, f2 = floor2[rows, cand], f_next[rows, cand]
     base = angles[cand]
 
@@ -162,46 +208,36 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     t1 = np.where((t1 > 0.02) & (t1 < 0.98), t1, 0.5)
     e1 = pairs.field(base + t1 * step)
     p1, v1 = e1.power(), e1.re + 1j * e1.im
+    # V(t) = v0 + B t + C t^2 through the three nodes
+    cq = ((v1 - v0) - t1 * (v2 - v0)) / (t1 * (t1 - 1.0))
+    bq = (v2 - v0) - cq
     tt = _T[None, None, :]
-    a = t1[..., None]
-    q = (v0[..., None] * (tt - a) * (tt - 1.0) / a  # Lagrange basis on the nodes 0, t1, 1
-         + v1[..., None] * tt * (tt - 1.0) / (a * (a - 1.0))
-         + v2[..., None] * tt * (tt - a) / (1.0 - a))
-    qp = np.maximum(q.real * q.real + q.imag * q.imag, f0[..., None] + tt * (f2 - f0)[..., None])
+    qr = v0.real[..., None] + tt * (bq.real[..., None] + tt * cq.real[..., None])
+    qi = v0.imag[..., None] + tt * (bq.imag[..., None] + tt * cq.imag[..., None])
+    qp = np.maximum(qr * qr + qi * qi, f0[..., None] + tt * (f2 - f0)[..., None])
     t2 = _T[np.argmin(qp, axis=-1)]
     p2 = pairs.evaluate(base + t2 * step)
 
     # per interval, the best of its ends and the two evaluations
-    pts_p = np.stack([p[rows, cand], np.roll(p, -1, axis=1)[rows, cand], p1, p2], axis=-1)
+    pts_p = np.stack([p[rows, cand], np.maximum(v2.real**2 + v2.imag**2, f2), p1, p2], axis=-1)
     pts_t = np.stack([base, base + step, base + t1 * step, base + t2 * step], axis=-1)
     j = np.argmin(pts_p, axis=-1)[..., None]
     best_p = np.take_along_axis(pts_p, j, axis=-1)[..., 0]  # (P, k)
     best_t = np.take_along_axis(pts_t, j, axis=-1)[..., 0]
 
-    # golden-section search within one sample step either side of the best point of the
-    # GOLDEN_INTERVALS best intervals
-    g = min(GOLDEN_INTERVALS, k)
-    pick = np.argsort(best_p, axis=1)[:, :g]
-    best_p = np.take_along_axis(best_p, pick, axis=1)
-    best_t = np.take_along_axis(best_t, pick, axis=1)
-    k = g
-    lo, hi = best_t - step, best_t + step
-    x1, x2 = hi - _GOLD * (hi - lo), lo + _GOLD * (hi - lo)
-    f12 = pairs.evaluate(np.concatenate([x1, x2], axis=1))
-    f1, f2_ = f12[:, :k], f12[:, k:]
-    for x, fx in ((x1, f1), (x2, f2_)):
-        better = fx < best_p
-        best_p, best_t = np.where(better, fx, best_p), np.where(better, x, best_t)
-    for _ in range(GOLDEN_STEPS):
-        left = f1 < f2_  # the minimum lies in [lo, x2]
-        hi = np.where(left, x2, hi)
-        lo = np.where(left, lo, x1)
-        new_x = np.where(left, hi - _GOLD * (hi - lo), lo + _GOLD * (hi - lo))
-        fx = pairs.evaluate(new_x)
-        x1, x2 = np.where(left, new_x, x2), np.where(left, x1, new_x)
-        f1, f2_ = np.where(left, fx, f2_), np.where(left, f1, fx)
-        better = fx < best_p
-        best_p, best_t = np.where(better, fx, best_p), np.where(better, new_x, best_t)
+    # golden-section search within one sample step either side of the best interval's best point,
+    # for the pairs where the interpolation cannot be trusted: the quadratic missed the true level
+    # at its own minimum by more than SMOOTH_DB, or the best point is an interval end (a sample)
+    q2 = np.take_along_axis(qp, np.argmin(qp, axis=-1)[..., None], axis=-1)[..., 0]
+    pick = np.argmin(best_p, axis=1)[:, None]
+    bp = np.take_along_axis(best_p, pick, axis=1)[:, 0]
+    bt = np.take_along_axis(best_t, pick, axis=1)[:, 0]
+    smooth = (np.abs(10.0 * np.log10(np.maximum(q2, 1e-300) / np.maximum(p2, 1e-300))) < SMOOTH_DB)
+    interior = np.take_along_axis(j[..., 0], pick, axis=1)[:, 0] >= 2
+    rough = np.flatnonzero(~(np.take_along_axis(smooth, pick, axis=1)[:, 0] & interior))
+    if len(rough):
+        bp[rough], bt[rough] = _golden(pairs.subset(rough), bp[rough], bt[rough], step)
+    best_p, best_t = bp[:, None], bt[:, None]
 
     # the smallest of the samples and every refined interval
     i_s = np.argmin(p, axis=1)
