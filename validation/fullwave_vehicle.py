@@ -132,6 +132,14 @@ def summary() -> list[dict]:
                              "statistic": k, "rho": float(np.min(rhos)) if rhos else float("nan"),
                              "mean_change_db": float(np.mean(spread)), "rms_change_db": float("nan"),
                              "max_change_db": float(np.max(spread)), "spots": len(spread)})
+        for (body, config), e in sorted(data.items()):
+            if body == "small_box" or len(e["freq_mhz"]) < 5:
+                continue
+            for k in STATS:  # the engine as it is at this commit (free space) against the reference
+                a = vr.compare_stored(_vehicle(body), e, k)
+                rows.append({"body": body, "step": "engine (this commit, no ground) vs reference", "config": config,
+                             "statistic": k, "rho": a["rho"], "mean_change_db": a["offset_db"],
+                             "rms_change_db": a["rms_db"], "max_change_db": a["max_db"], "spots": a["n"]})
         bodies = {b for b, _ in data}
         for body in bodies:
             for step, c0, c1 in STEPS:

@@ -153,15 +153,6 @@ def _cache_write(folder: Path, key: str, result: dict) -> None:
 # --------------------------------------------------------------------------------------------
 
 
-def _engine_levels(vehicle, spots, angles_per_turn: int) -> np.ndarray:
-    """The fast engine's levels (S, W, A) for the spots, free space (no road), at the reference's angles."""
-    from core.scoring import Scene, spot_levels
-
-    radio = vehicle.radio.model_copy(update={"angles_per_turn": angles_per_turn, "ground_reflection": False})
-    scene = Scene.from_vehicle(vehicle.model_copy(update={"radio": radio}))
-    return spot_levels(scene, spots[1], spots[2])
-
-
 def select_spots(vehicle, spots=None, angles_per_turn: int = 36):
     """(names, positions (S, 3), axes (S, 3)) to confirm.
 
@@ -310,7 +301,8 @@ def _client(workers: int | None, scheduler: str | None, timeout_s: float):
 def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.ReferenceSetup | None = None,
             workers: int | None = None, scheduler: str | None = None, serial: bool = False,
             cache_dir=None, use_cache: bool = True, progress: Callable[[int, int], None] | None = None,
-            task_function: Callable | None = None, retries: int = 2, timeout_s: float = 10.0) -> list[Confirmation]:
+            task_function: Callable | None = None, retries: int = 2, timeout_s: float = 10.0,
+            cancel: Callable[[], bool] | None = None) -> list[Confirmation]:
     """Confirm spots of each vehicle with the full-wave reference (one task per body and frequency).
 
     Parameters
@@ -325,7 +317,11 @@ def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.Reference
     cache_dir : cache folder (default :func:`fullwave_cache_dir`); use_cache False recomputes.
     progress : progress(done, total) after each task (cached tasks count at once).
     task_function : replaces :func:`run_task` (tests); called as f(task, cache_dir).
+    cancel : checked after each finished task; when it returns True the outstanding tasks are
+        cancelled and core.scoring.Cancelled is raised (finished tasks stay cached).
     """
+    from core.scoring import Cancelled
+
     base = setup or vr.ReferenceSetup(n_frequencies=n_frequencies)
     if setup is not None and setup.n_frequencies != n_frequencies:
         base = vr.ReferenceSetup(**{**asdict(setup), "contents": setup.contents, "n_frequencies": n_frequencies})
@@ -360,6 +356,8 @@ def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.Reference
             done += 1
             if progress is not None:
                 progress(done, total)
+            if cancel is not None and cancel() and done < total:
+                raise Cancelled()
     elif todo:
         from distributed import as_completed
 
@@ -375,6 +373,9 @@ def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.Reference
                 done += 1
                 if progress is not None:
                     progress(done, total)
+                if cancel is not None and cancel() and done < total:
+                    client.cancel(list(futures))
+                    raise Cancelled()
         finally:
             client.close()
             if cluster is not None:
@@ -387,7 +388,7 @@ def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.Reference
             body=v.name, file=str(label), setup=base, freq_hz=np.array([r["freq_hz"] for r in rs]),
             spots=list(sel[0]), positions_m=np.asarray(sel[1]), wheel_ids=list(first["wheel_ids"]),
             angles_deg=np.asarray(first["angles_deg"]), levels_dbm=np.array([r["levels_dbm"] for r in rs]),
-            engine_levels_dbm=_engine_levels(v, sel, base.angles_per_turn), segments=int(first["segments"]),
+            engine_levels_dbm=vr.engine_levels(v, sel, base.angles_per_turn), segments=int(first["segments"]),
             solve_s=float(sum(r["solve_s"] for r in rs)), cached=sum(k in cached for _, k in tks),
             notes=list(first["notes"])))
     return out

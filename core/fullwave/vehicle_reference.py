@@ -66,7 +66,9 @@ __all__ = [
     "agreement",
     "band_frequencies",
     "block_absorption",
+    "compare_stored",
     "coupling_to_level_dbm",
+    "engine_levels",
     "frequency_average_db",
     "load_reference_csv",
     "solve_frequency",
@@ -251,6 +253,36 @@ def agreement(engine_db, reference_db) -> dict:
     rho = float(spearmanr(e, f).statistic) if d.size > 2 and np.ptp(e) > 0 and np.ptp(f) > 0 else float("nan")
     return {"rho": rho, "offset_db": off, "rms_db": float(np.sqrt(np.mean(res**2))) if d.size else float("nan"),
             "max_db": float(np.max(np.abs(res))) if d.size else float("nan"), "n": int(d.size)}
+
+
+def engine_levels(vehicle, spots, angles_per_turn: int) -> np.ndarray:
+    """The fast engine's levels (S, W, A), dBm, for spots (names, positions, axes), free space (no road:
+    the reference has no ground, i.e. ``wheelreach rank --no-ground``), at the reference's angles."""
+    from core.scoring import Scene, spot_levels
+
+    radio = vehicle.radio.model_copy(update={"angles_per_turn": int(angles_per_turn), "ground_reflection": False})
+    scene = Scene.from_vehicle(vehicle.model_copy(update={"radio": radio}))
+    return spot_levels(scene, np.atleast_2d(spots[1]), np.atleast_2d(spots[2]))
+
+
+def compare_stored(vehicle, entry: dict, statistic: str = "median", percentile: float = 10.0) -> dict:
+    """Agreement of the engine with one stored reference entry (:func:`load_reference_csv`) for a body.
+
+    The reference's spot statistic (``"min"``, ``"p10"`` or ``"median"`` over the turn of the
+    frequency-averaged level, worst wheel) against the same statistic of the engine's levels at the
+    stored angles, free space. Returns :func:`agreement` plus ``engine_db`` and ``reference_db`` (S,).
+    """
+    from core.scoring import vehicle_spot_arrays
+
+    names, pos, axes = vehicle_spot_arrays(vehicle)
+    idx = [names.index(s) for s in entry["spots"]]
+    ang = entry["angles_deg"]
+    n = round(360.0 / float(ang[1] - ang[0])) if len(ang) > 1 else 1
+    eng = engine_levels(vehicle, ([names[i] for i in idx], pos[idx], axes[idx]), n)
+    key = statistic if statistic != "p10" else f"p{percentile:g}"
+    e = turn_statistics(eng, percentile)[key]["spot"]
+    f = turn_statistics(frequency_average_db(entry["levels_dbm"]), percentile)[key]["spot"]
+    return agreement(e, f) | {"engine_db": e, "reference_db": f}
 
 
 # --------------------------------------------------------------------------------------------

@@ -92,3 +92,13 @@ def test_bad_scheduler_address_is_one_clear_line_and_exit_1(tmp_path, monkeypatc
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 1
     assert len(err) == 1 and err[0].startswith("error: cannot reach the Dask scheduler at tcp://127.0.0.1:9")
+
+
+@pytest.mark.nec
+def test_cancel_stops_after_the_running_task_and_keeps_it_cached(tmp_path):
+    from core.scoring import Cancelled
+
+    with pytest.raises(Cancelled):
+        cf.confirm([small_box()], spots=["centre"], n_frequencies=2, setup=SETUP, serial=True, cache_dir=tmp_path,
+                   cancel=lambda: True)
+    assert len(list(tmp_path.glob("task_*.json"))) == 1  # the finished task is kept, the second never ran
