@@ -254,7 +254,8 @@ class Confirmation:
         a = s["agreement"]
         lines = [f"Full-wave confirmation: {self.body} ({self.file})",
                  f"  {s['method']}", f"  setup: {s['setup']}; {self.segments} segments",
-                 f"  frequencies: {', '.join(f'{f:.2f}' for f in s['frequencies_mhz'])} MHz (power average)",
+                 f"  frequencies: {', '.join(f'{f:.2f}' for f in s['frequencies_mhz'])} MHz"
+                 + (" (power average)" if len(self.freq_hz) > 1 else " (one frequency: not averaged)"),
                  f"  statistic: {statistic} over the turn of the worst wheel",
                  f"  {'spot':<24} {'full-wave dBm':>13} {'fast dBm':>9} {'worst wheel':>11} {'fw min dBm':>10}"]
         for sp in s["spots"]:

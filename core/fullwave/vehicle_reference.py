@@ -92,9 +92,11 @@ class ReferenceSetup:
 
     def label(self) -> str:
         occ = 0 if self.contents is None else self.contents.occupants
+        freqs = (f"{self.n_frequencies} frequencies over +-{100 * self.span:g} %" if self.n_frequencies > 1
+                 else "band centre only")
         return (f"lambda/{self.cells_per_wavelength:g} body, lambda/{self.wheel_cells_per_wavelength:g} rims"
-                f"{f', belt lambda/{self.belt_cells_per_wavelength:g}' if self.belt else ''}, {occ} occupants, {self.n_frequencies} frequencies "
-                f"over +-{100 * self.span:g} %, {self.angles_per_turn} angles")
+                f"{f', belt lambda/{self.belt_cells_per_wavelength:g}' if self.belt else ''}, {occ} occupants, {freqs}, "
+                f"{self.angles_per_turn} angles")
 
     def as_dict(self) -> dict:
         return asdict(self)
