@@ -3,7 +3,8 @@
 At 315 and 433.92 MHz a rim is under half a wavelength across: it re-radiates the sensor's field
 rather than casting a knife-edge shadow. The installed pattern of the sensor dipole on a wire-grid
 wheel (rim barrel with flanges, outboard hub and spokes, optionally the tire's steel belt) is solved
-once with NEC-2 (method of moments; ``tools/make_wheel_patterns.py``) for standard rim sizes, both
+once with NEC-2 (method of moments; ``tools/make_wheel_patterns.py`` with the models of
+``core.fullwave.nec_models``) for standard rim sizes, both
 bands and the three sensor axes, and stored in ``core/data/wheel_patterns.npz``. This module (numpy
 only) selects or interpolates a table for a wheel, turns it with the wheel and looks it up.
 
@@ -37,7 +38,7 @@ References
   (exp(j k r.r0) for a displaced source), short-dipole pattern 1.5 sin^2 (sec. 4.2).
 - C. H. Wilcox, "An expansion theorem for electromagnetic fields", Comm. Pure Appl. Math. 9
   (1956) (from memory): E = exp(-jkr)/r sum_n F_n / r^n outside the sphere enclosing the sources.
-- Wire-grid rules and mesh: see tools/nec_models.py and docs/VALIDATION.md.
+- Wire-grid rules and mesh: see core/fullwave/nec_models.py and docs/VALIDATION.md.
 """
 
 from __future__ import annotations
@@ -601,7 +602,7 @@ def field_vectors(table: PatternTable, directions, theta_rad, outboard_sign=1.0,
 
 
 # --------------------------------------------------------------------------------------------
-# On-demand NEC-2 computation (needs PyNEC and the source checkout's tools/nec_models.py)
+# On-demand NEC-2 computation (needs PyNEC: the fullwave extra)
 # --------------------------------------------------------------------------------------------
 
 
@@ -620,21 +621,12 @@ def user_cache_dir() -> Path:
 
 
 def _nec_models():
-    """Import tools/nec_models.py (with PyNEC); RuntimeError with the reason when unavailable."""
+    """The wire-grid models (core.fullwave.nec_models); RuntimeError naming the extra when PyNEC is missing."""
     if importlib.util.find_spec("PyNEC") is None:
-        raise RuntimeError("computing a wheel pattern needs PyNEC (pip install '.[validation]')")
-    try:
-        from tools import nec_models  # source checkout on sys.path
+        raise RuntimeError("computing a wheel pattern needs PyNEC: pip install 'wheelreach[fullwave]'")
+    from core.fullwave import nec_models
 
-        return nec_models
-    except ImportError:
-        path = Path(__file__).resolve().parents[1] / "tools" / "nec_models.py"
-        if not path.exists():
-            raise RuntimeError(f"computing a wheel pattern needs the source checkout's {path}") from None
-        spec = importlib.util.spec_from_file_location("wheelreach_nec_models", path)
-        module = importlib.util.module_from_spec(spec)
-        spec.loader.exec_module(module)
-        return module
+    return nec_models
 
 
 def compute_table(
@@ -652,7 +644,7 @@ def compute_table(
 ) -> PatternTable:
     """Solve the installed pattern of one wheel with NEC-2 now (PyNEC needed), cached on disk.
 
-    The wheel is built by ``tools/nec_models.py`` (``WheelSpec`` defaults for what is not given:
+    The wheel is built by ``core.fullwave.nec_models`` (``WheelSpec`` defaults for what is not given:
     sensor at the bead-seat radius, a quarter rim width outboard). All three axes come from one
     solve and are cached together; the cache key is a hash of every parameter and MODEL_VERSION.
     """

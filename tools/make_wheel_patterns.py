@@ -1,7 +1,7 @@
 """Compute the installed wheel-pattern tables (NEC-2) and store them in core/data/wheel_patterns.npz.
 
 For every rim size (diameter x width), band, and with and without the tire's steel belt, the
-sensor dipole on its wire-grid wheel is solved once with NEC-2 (tools/nec_models.py, PyNEC from
+sensor dipole on its wire-grid wheel is solved once with NEC-2 (core/fullwave/nec_models.py, PyNEC from
 the ``validation`` extra) and its installed far field over the whole sphere (5 deg grid) and the
 near-field correction term (10 deg grid, sampled on a 1.5 m sphere) are stored for the three sensor
 axes. The wheel is mirror-symmetric about its x = 0 plane (sensor midway between two spokes), so
@@ -40,9 +40,9 @@ ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
+from core.fullwave import nec_models as nm
 from core.tires import parse_tire_code
 from core.wheel_patterns import AXES, BELT_DEPTH_M, BELT_WIDTH_FRACTION, MODEL_VERSION, _parity
-from tools import nec_models as nm
 
 INCH_M = 0.0254
 TYPICAL_TIRES = {

@@ -28,9 +28,9 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from core import wheel_patterns as wp
+from core.fullwave import nec_checks
+from core.fullwave import nec_models as nm
 from core.tires import parse_tire_code
-from tools import nec_checks
-from tools import nec_models as nm
 
 DATA = ROOT / "tests" / "data"
 INCH = 0.0254

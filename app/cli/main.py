@@ -82,7 +82,7 @@ def _register_more(sub) -> None:
     """Commands of the engine, benchmark and report modules (registered when present)."""
     import importlib
 
-    for mod in ("app.cli.engine", "app.cli.bench", "app.cli.report"):
+    for mod in ("app.cli.engine", "app.cli.bench", "app.cli.report", "app.cli.confirm"):
         try:
             m = importlib.import_module(mod)
         except ModuleNotFoundError as e:

@@ -8,8 +8,8 @@ import pytest
 
 pytest.importorskip("PyNEC", exc_type=ImportError)  # absent or broken install: skip
 
+from core.fullwave import nec_models as nm
 from core.propagation import SHORT_DIPOLE_DIRECTIVITY, free_space_loss_db, wavelength_m
-from tools import nec_models as nm
 
 pytestmark = pytest.mark.nec
 

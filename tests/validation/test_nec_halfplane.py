@@ -2,7 +2,7 @@
 from the lit region into the shadow behind the straight edge, against the UTD half-plane and the
 engine's knife edge (ITU-R P.526).
 
-Geometry (tools/nec_checks.halfplane): plate 3.6 m along the edge x 4.5 m deep, lambda/10 grid at
+Geometry (core/fullwave/nec_checks.halfplane): plate 3.6 m along the edge x 4.5 m deep, lambda/10 grid at
 315 MHz, equal-area wire radius; source 1 m in front of the plate and 0.6 m below the edge,
 receivers 1 m behind it at heights giving v = -0.5 ... 2.5 in steps of 0.25. The paths bend by up
 to about 90 deg at these distances (the knife edge's paraxial assumption is stretched, as it is on a
@@ -18,7 +18,7 @@ import pytest
 
 pytest.importorskip("PyNEC", exc_type=ImportError)  # absent or broken install: skip
 
-from tools import nec_checks
+from core.fullwave import nec_checks
 
 pytestmark = pytest.mark.nec
 

@@ -1,7 +1,7 @@
 """Rim barrel over a wheel turn: NEC-2 against the engine's rim knife-edge model and against the
 installed-pattern method.
 
-Model (tools/nec_checks.rim_barrel): a wire-grid 17 in (0.432 m) open cylinder, 0.2 m wide, at
+Model (core/fullwave/nec_checks.rim_barrel): a wire-grid 17 in (0.432 m) open cylinder, 0.2 m wide, at
 315 MHz; a short radial dipole 20 mm above its surface at mid-width; the receiver 1.16 m away on the
 inboard side at (0.5, -1.0, 0.3) m from the wheel centre; 36 sensor angles. Levels are for the same
 radiated power as the bare dipole, relative to its peak field at the receiver's distance.
@@ -18,7 +18,7 @@ import pytest
 
 pytest.importorskip("PyNEC", exc_type=ImportError)  # absent or broken install: skip
 
-from tools import nec_checks
+from core.fullwave import nec_checks
 
 pytestmark = pytest.mark.nec
 

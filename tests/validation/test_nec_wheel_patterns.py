@@ -16,9 +16,9 @@ import pytest
 pytest.importorskip("PyNEC", exc_type=ImportError)  # absent or broken install: skip
 
 from core import wheel_patterns as wp
+from core.fullwave import nec_checks
+from core.fullwave import nec_models as nm
 from core.tires import parse_tire_code
-from tools import nec_checks
-from tools import nec_models as nm
 
 pytestmark = pytest.mark.nec
 

@@ -73,6 +73,7 @@ __all__ = [
     "dipole_far_field",
     "dipole_field",
     "equal_area_radius_m",
+    "fit_radii",
     "grid_spacing_m",
     "installed_pattern",
     "pattern_with_near",
@@ -103,12 +104,14 @@ INCH_M = 0.0254
 
 @dataclass(frozen=True)
 class Wire:
-    """One straight NEC-2 wire: end points in m, number of segments, radius in m."""
+    """One straight NEC-2 wire: end points in m, number of segments, radius in m, and an optional
+    distributed series resistance in ohm/m (NEC-2 LD type 2; 0: perfectly conducting)."""
 
     start: tuple[float, float, float]
     end: tuple[float, float, float]
     segments: int
     radius_m: float
+    load_ohm_per_m: float = 0.0
 
     @property
     def length_m(self) -> float:
@@ -142,7 +145,7 @@ class WireModel:
         for w in self.wires:
             a = tuple(float(x) for x in m @ np.asarray(w.start))
             b = tuple(float(x) for x in m @ np.asarray(w.end))
-            out.append(Wire(a, b, w.segments, w.radius_m))
+            out.append(Wire(a, b, w.segments, w.radius_m, w.load_ohm_per_m))
         return WireModel(out, list(self.notes))
 
 
@@ -190,24 +193,36 @@ def check_model(model: WireModel, max_segment_m: float | None = None) -> list[st
         for p in (w.start, w.end):
             key = tuple(round(x, 6) for x in p)
             ends.setdefault(key, []).append((seg, w.radius_m))
-    # necpp refuses a wire whose first or last segment midpoint lies inside an earlier wire
+    # necpp refuses a wire whose first or last segment midpoint lies inside an earlier wire; the
+    # candidates are found with a k-d tree of the wire centres (scipy), so large grids check quickly
     if model.wires:
+        from scipy.spatial import cKDTree
+
         a = np.array([w.start for w in model.wires])
         b = np.array([w.end for w in model.wires])
         rad = np.array([w.radius_m for w in model.wires])
+        nseg = np.array([w.segments for w in model.wires])
         ab = b - a
         ab2 = np.maximum(np.sum(ab * ab, axis=1), 1e-30)
-        for i, w in enumerate(model.wires):
-            if i == 0:
+        step = ab / nseg[:, None]
+        mids = np.concatenate([a + 0.5 * step, b - 0.5 * step])  # (2N, 3)
+        owner = np.concatenate([np.arange(len(a)), np.arange(len(a))])
+        reach = 0.5 * float(np.sqrt(ab2.max())) + float(rad.max())
+        tree = cKDTree(0.5 * (a + b))
+        flagged = set()
+        for q, cand in enumerate(tree.query_ball_point(mids, reach)):
+            i = owner[q]
+            if i in flagged:
                 continue
-            step = (np.asarray(w.end) - np.asarray(w.start)) / w.segments
-            for mid in (np.asarray(w.start) + 0.5 * step, np.asarray(w.end) - 0.5 * step):
-                t = np.clip(np.sum((mid - a[:i]) * ab[:i], axis=1) / ab2[:i], 0.0, 1.0)
-                dist = np.linalg.norm(a[:i] + t[:, None] * ab[:i] - mid, axis=1)
-                hit = np.nonzero(dist < rad[:i])[0]
-                if hit.size:
-                    problems.append(f"wire {i}: end-segment midpoint inside wire {int(hit[0])}")
-                    break
+            cand = np.asarray([c for c in cand if c < i], dtype=int)
+            if not cand.size:
+                continue
+            t = np.clip(np.sum((mids[q] - a[cand]) * ab[cand], axis=1) / ab2[cand], 0.0, 1.0)
+            dist = np.linalg.norm(a[cand] + t[:, None] * ab[cand] - mids[q], axis=1)
+            hit = cand[dist < rad[cand]]
+            if hit.size:
+                flagged.add(i)
+                problems.append(f"wire {i}: end-segment midpoint inside wire {int(hit.min())}")
     for key, items in ends.items():
         if len(items) < 2:
             continue
@@ -218,6 +233,42 @@ def check_model(model: WireModel, max_segment_m: float | None = None) -> list[st
         if max(rads) / min(rads) > 10.0:
             problems.append(f"junction {key}: radius ratio {max(rads) / min(rads):.1f} > 10")
     return problems
+
+
+def fit_radii(model: WireModel, margin: float = 0.9) -> WireModel:
+    """A copy whose wire radii are capped so that no end-segment midpoint lies inside another wire.
+
+    necpp refuses such a model (see :func:`check_model`); where two wires meet at an acute angle (a
+    chamfered corner of a body grid) the equal-area radius of one of them is reduced to ``margin``
+    times the distance to the nearest foreign end-segment midpoint. Other radii are unchanged.
+    """
+    from scipy.spatial import cKDTree
+
+    if not model.wires:
+        return model
+    a = np.array([w.start for w in model.wires])
+    b = np.array([w.end for w in model.wires])
+    rad = np.array([w.radius_m for w in model.wires])
+    nseg = np.array([w.segments for w in model.wires])
+    ab = b - a
+    ab2 = np.maximum(np.sum(ab * ab, axis=1), 1e-30)
+    step = ab / nseg[:, None]
+    mids = np.concatenate([a + 0.5 * step, b - 0.5 * step])
+    owner = np.concatenate([np.arange(len(a)), np.arange(len(a))])
+    reach = 0.5 * float(np.sqrt(ab2.max())) + float(rad.max())
+    tree = cKDTree(0.5 * (a + b))
+    new = rad.copy()
+    for q, cand in enumerate(tree.query_ball_point(mids, reach)):
+        cand = np.asarray([c for c in cand if c != owner[q]], dtype=int)
+        if not cand.size:
+            continue
+        t = np.clip(np.sum((mids[q] - a[cand]) * ab[cand], axis=1) / ab2[cand], 0.0, 1.0)
+        dist = np.linalg.norm(a[cand] + t[:, None] * ab[cand] - mids[q], axis=1)
+        hit = dist < new[cand]
+        new[cand[hit]] = np.minimum(new[cand[hit]], margin * dist[hit])
+    wires = [w if new[i] == w.radius_m else Wire(w.start, w.end, w.segments, float(new[i]), w.load_ohm_per_m)
+             for i, w in enumerate(model.wires)]
+    return WireModel(wires, list(model.notes))
 
 
 def plate(width_m: float, depth_m: float, spacing_m: float, *, symmetric_half: bool = False) -> WireModel:
@@ -647,9 +698,13 @@ class NecSolver:
             for i, w in enumerate(model.wires):
                 geo.wire(i + 1, int(w.segments), *w.start, *w.end, float(w.radius_m), 1.0, 1.0)
             if mirror_y_plane:
-                geo.reflect(0, 1, 0, 0)
+                geo.reflect(0, 1, 0, 0)  # tag increment 0: images keep their tags (and loads)
             ctx.geometry_complete(0)
             ctx.fr_card(0, 1, self.freq_hz / 1e6, 0.0)
+            for i, w in enumerate(model.wires):
+                if w.load_ohm_per_m:
+                    # LD type 2: distributed series R (ohm/m), L = 0, C = 0 (no capacitor) on every segment
+                    ctx.ld_card(2, i + 1, 0, 0, float(w.load_ohm_per_m), 0.0, 0.0)
             self._ctx = ctx
 
     def set_source(self, position_m, axis, moment_am: float = 1.0) -> None:

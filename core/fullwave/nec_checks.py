@@ -1,13 +1,13 @@
 """Comparison harnesses of the engine's simple models against NEC-2 (used by tests and sweeps).
 
-Each function builds a small wire-grid model (tools/nec_models.py), runs NEC-2 through PyNEC, runs
+Each function builds a small wire-grid model (core/fullwave/nec_models.py), runs NEC-2 through PyNEC, runs
 the engine's model on the same geometry and returns the numbers side by side, so that the tests in
 tests/validation/ and the longer sweeps in validation/ share one definition of every check.
 
 - :func:`halfplane`: short dipole in front of a large plate, receivers moving from the lit region
   into the shadow behind the straight edge; NEC-2 shadow loss (relative to the same dipole in free
   space) for both polarizations, the UTD half-plane reference, and the engine's knife edge
-  (core.propagation: v from h, d1, d2 as in tools/edge_reference.knife_edge_geometry; ITU-R P.526
+  (core.propagation: v from h, d1, d2 as in core.fullwave.edge_reference.knife_edge_geometry; ITU-R P.526
   eq. 31 and the exact eq. 30).
 - :func:`rim_barrel`: short radial dipole 20 mm above a bare rim barrel (open cylinder), field at an
   inboard receiver over a full turn; NEC-2 versus the engine's rim knife-edge model
@@ -27,6 +27,8 @@ import time
 
 import numpy as np
 
+from core.fullwave import edge_reference as er
+from core.fullwave import nec_models as nm
 from core.propagation import (
     dipole_pattern_rel_db,
     knife_edge_loss_db,
@@ -35,8 +37,6 @@ from core.propagation import (
 )
 from core.wheel import WheelGeometry, wheel_loss_db
 from core.wheel_patterns import PatternTable, axis_vector, field_vectors, rotation_y
-from tools import edge_reference as er
-from tools import nec_models as nm
 
 
 def db20(x) -> np.ndarray:
