@@ -32,7 +32,9 @@ ITU-R P.2040 (road permittivity and conductivity).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -91,16 +93,71 @@ class LinkField:
 
     ``re``, ``im`` (N,): the coherent sum over the rays of c_ray 10^(-L_ray/20) / d_ray, phase
     referred to the direct ray, 1/m; ``floor2`` (N,): the null floor's power, f^2 times the sum over
-    the rays of 10^(-L_ray/10) / d_ray^2 (1/m^2), f = 10^(null_floor_db/20).
+    the rays of 10^(-L_ray/10) / d_ray^2 (1/m^2), f = 10^(null_floor_db/20); ``diffuse`` (N,): the
+    diffuse power of the cavity inside the hull (core.cavity), added incoherently, same units.
     """
 
     re: np.ndarray
     im: np.ndarray
     floor2: np.ndarray
+    diffuse: np.ndarray | float = 0.0
+    fade_q: float = 0.0
+
+    def coherent_power(self) -> np.ndarray:
+        """|field|^2 of the rays held at the null floor, 1/m^2."""
+        return np.maximum(self.re * self.re + self.im * self.im, self.floor2)
+
+    def mean_power(self) -> np.ndarray:
+        """The mean power: the coherent rays plus the mean diffuse cavity power (core.cavity), 1/m^2."""
+        return self.coherent_power() + self.diffuse
 
     def power(self) -> np.ndarray:
-        """|field|^2 held at the null floor, 1/m^2."""
-        return np.maximum(self.re * self.re + self.im * self.im, self.floor2)
+        """The power the scores use: the level exceeded with probability 1 - fade_q when the diffuse
+        part fades (:func:`fade_power`); the mean power when fade_q is 0 or there is no diffuse part."""
+        return fade_power(self.coherent_power(), self.diffuse, self.fade_q)
+
+
+@lru_cache(maxsize=8)
+def _fade_table(q: float) -> tuple[np.ndarray, np.ndarray, float]:
+    """log10 K grid, log10 g(K) with g = x_q / (P_c + P_d) the Rician power's q-quantile, the
+    Rayleigh value -ln(1 - q) and the standard normal q-quantile."""
+    from scipy.special import ndtri
+    from scipy.stats import ncx2
+
+    lk = np.linspace(-6.0, 4.0, 1001)
+    k = 10.0**lk
+    g = 0.5 * ncx2.ppf(q, 2, 2.0 * k) / (k + 1.0)
+    return lk, np.log10(g), -math.log1p(-q), float(ndtri(q))
+
+
+def fade_power(coherent: np.ndarray, diffuse, q: float) -> np.ndarray:
+    """Power exceeded with probability 1 - q when a steady part ``coherent`` adds to a diffuse part
+    of mean power ``diffuse`` that fades (a circular complex Gaussian field: Rayleigh amplitude;
+    their sum is Rician with K = coherent / diffuse). q = 0: the mean power coherent + diffuse.
+
+    The power X = |c + d|^2 with d ~ CN(0, P_d) is (P_d / 2) times a noncentral chi-square variable
+    with 2 degrees of freedom and noncentrality 2 K, so x_q = (P_d / 2) F^-1(q; 2, 2K) (scipy
+    ncx2.ppf, tabulated over K once per q; Rayleigh: x_q = -ln(1 - q) P_d).
+
+    References: S. O. Rice, "Mathematical analysis of random noise" (1944-45); the Rician model of
+    a steady component in a diffuse field, e.g. Hill, Electromagnetic Fields in Cavities (2009),
+    ch. 7 (from memory)."""
+    total = coherent + diffuse
+    if q <= 0.0 or np.all(np.asarray(diffuse) == 0.0):
+        return total
+    lk_grid, g, _rayleigh, z_q = _fade_table(float(q))
+    d = np.broadcast_to(np.asarray(diffuse, float), np.shape(total))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lk = np.log10(coherent / d)
+    # log g interpolated in log K (within 0.001 dB of scipy's quantile); below K = 1e-6 the Rayleigh
+    # value; above K = 1e4 the amplitude is nearly normal, N(sqrt(P_c), P_d / 2), so
+    # g = (sqrt(K) + z_q / sqrt(2))^2 / (K + 1) with z_q the standard normal q-quantile
+    gk = 10.0 ** np.interp(lk, lk_grid, g, left=g[0], right=g[-1])
+    with np.errstate(invalid="ignore", over="ignore"):
+        kk = 10.0 ** np.minimum(lk, 300.0)
+        g_big = (np.sqrt(kk) + z_q / math.sqrt(2.0)) ** 2 / (kk + 1.0)
+    gk = np.where(lk > lk_grid[-1], g_big, gk)
+    return np.where(d > 0.0, total * gk, total)
 
 
 def level_dbm(scene, power: np.ndarray) -> np.ndarray:
@@ -142,7 +199,7 @@ def _wheel_losses(scene, groups, src, dst) -> np.ndarray:
 
 def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: np.ndarray,
                bits0: np.ndarray, dst: np.ndarray, r_axis: np.ndarray,
-               spot_bits: np.ndarray | None = None) -> LinkField:
+               spot_bits: np.ndarray | None = None, diffuse_factor: np.ndarray | None = None) -> LinkField:
     """The received field of N links (arrays of N links).
 
     wheel_index : the wheel whose sensor sends, an int for all links or (N,) per link (the body
@@ -150,7 +207,11 @@ def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: n
     theta : (N,) wheel angle, rad; src, s_axis : (N, 3) sensor position (m) and unit antenna axis;
     bits0 : (N,) the sensor positions' hull membership bits (core.geometry.start_bits); dst, r_axis :
     (N, 3) receiver position (m) and unit antenna axis; spot_bits : (N,) the receivers' membership
-    bits (computed when None and the road ray is on).
+    bits (computed when None and the road ray is on); diffuse_factor : (N,) the receivers' diffuse
+    factor (core.cavity.spot_factor; computed when None and the scene has a cavity).
+
+    Inside the hull the diffuse level of the cavity fed through the openings (core.cavity) is
+    added to the power of the coherent rays.
 
     Null floor: exact nulls are not physical (antennas have finite cross-polar discrimination, and
     the road's roughness and the surroundings scatter some power into a two-ray null), so the
@@ -219,11 +280,19 @@ def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: n
         field_im = field_im + (b.imag * cos - b.real * sin)
         floor2 = floor2 + g_r * g_r
 
-    return LinkField(field_re, field_im, floor2_amp * floor2)
+    diffuse = 0.0
+    if getattr(scene, "cavity", None) is not None:
+        from core.cavity import spot_factor
+
+        if diffuse_factor is None:
+            diffuse_factor = spot_factor(scene, dst, r_axis)
+        wheel = np.broadcast_to(np.asarray(wheel_index), np.shape(theta))
+        diffuse = scene.cavity.input_at(wheel, theta) * diffuse_factor
+    return LinkField(field_re, field_im, floor2_amp * floor2, diffuse, getattr(scene, "fade_probability", 0.0))
 
 
 def turn_field(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
-               spot_bits: np.ndarray | None = None) -> LinkField:
+               spot_bits: np.ndarray | None = None, spot_diffuse: np.ndarray | None = None) -> LinkField:
     """The received field for spots (S, 3) with receiver axes (S, 3) from one wheel at the scene's
     sampled angles; arrays (S, A)."""
     S = len(spots)
@@ -239,8 +308,16 @@ def turn_field(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
         if spot_bits is None:
             spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2])
         bits_p = np.broadcast_to(spot_bits[:, None], (S, A)).reshape(-1)
-    f = link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, bits_p)
-    return LinkField(f.re.reshape(S, A), f.im.reshape(S, A), f.floor2.reshape(S, A))
+    dif = None
+    if getattr(scene, "cavity", None) is not None:
+        if spot_diffuse is None:
+            from core.cavity import spot_factor
+
+            spot_diffuse = spot_factor(scene, spots, axes)
+        dif = np.broadcast_to(spot_diffuse[:, None], (S, A)).reshape(-1)
+    f = link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, bits_p, dif)
+    return LinkField(f.re.reshape(S, A), f.im.reshape(S, A), f.floor2.reshape(S, A), np.reshape(f.diffuse, (S, A))
+                     if np.ndim(f.diffuse) else f.diffuse, f.fade_q)
 
 
 def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,

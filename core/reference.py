@@ -99,7 +99,8 @@ def _j_db(v: float) -> float:
 class ReferenceModel:
     """The link model of one vehicle, evaluated one link at a time (levels in dBm)."""
 
-    def __init__(self, vehicle, ground_reflection: bool | None = None):
+    def __init__(self, vehicle, ground_reflection: bool | None = None, cavity: bool = True,
+                 cavity_spacing_m: float | None = None, cavity_angles: int | None = None):
         r = vehicle.radio
         self.vehicle = vehicle
         self.freq_hz = r.frequency_hz
@@ -162,6 +163,133 @@ class ReferenceModel:
         self.sensor_axis_kind = r.sensor.axis
         self.floor_amp = 10.0 ** (r.null_floor_db / 20.0)
         self.road_eps = complex(road_permittivity(r.road_surface, self.freq_hz))
+        self.fade_q = r.fade_probability
+        self.cavity = self._cavity_patches(cavity_spacing_m, cavity_angles) if cavity else None
+        self._input_cache: dict[tuple[int, int], float] = {}
+
+    # ----- the cavity ----------------------------------------------------------------------
+    def _cavity_patches(self, spacing_m, n_angles):
+        """Opening patches (centre, outward normal, area, tau) and the absorption cross-section.
+
+        The patches are the engine's discretisation of the hull surface (core.cavity.surface_samples:
+        centres, normals, areas - the one piece shared with the engine, a description of where to
+        sample); their materials, the losses of the paths to them and the power balance are
+        computed here from the model's statement (core.cavity module notes)."""
+        from core import cavity as cav
+        from core.geometry import build_hull  # only to obtain the same sample points
+
+        v = self.vehicle
+        wh = [(h["xc"], h["zc"], h["r"], h["sign"], h["inner"]) for h in self.wheelhouses]
+        hull = build_hull(v.body.top_outline, v.body.side_outline, wh, [], [], 0.0, 0.0)
+        pts, nrm, area, _ = cav.surface_samples(hull, spacing_m or cav.SAMPLE_SPACING_M)
+        patches, leak, metal_area = [], 0.0, 0.0
+        for p, n, a in zip(pts, nrm, area):
+            p, n = tuple(float(c) for c in p), tuple(float(c) for c in n)
+            # on a wall of the top outline (also an end face drawn in both views), or a roof/floor face
+            kind = "wall" if self.top.exterior.distance(Point(p[0], p[1])) < 1e-7 else "roof"
+            loss = self.panel_loss_db(kind, p)
+            if loss >= cav.OPENING_LOSS_DB:
+                metal_area += float(a)
+                continue
+            tau = 10.0 ** (-loss / 10.0)
+            patches.append((p, n, float(a), tau))
+            leak += tau * float(a) / 4.0
+        delta = 1.0 / math.sqrt(math.pi * self.freq_hz * 4e-7 * math.pi * cav.WALL_CONDUCTIVITY_S_PER_M)
+        sigma = (leak + v.body.cabin_absorption_m2 + 4.0 * math.pi / 3.0 * delta * metal_area / self.lam
+                 + self.lam**2 / (8.0 * math.pi))
+        return {"patches": patches, "sigma_m2": sigma, "angles": n_angles or cav.INPUT_ANGLES,
+                "incidence": cav.INCIDENCE_FACTOR, "opening_db": cav.OPENING_LOSS_DB}
+
+    def _sensor_at(self, wheel_index: int, th: float):
+        w = self.wheels[wheel_index]
+        cx, cy, cz = w["centre"]
+        pos = (cx + w["sensor_r"] * math.sin(th), cy + w["sign"] * w["sensor_off"], cz + w["sensor_r"] * math.cos(th))
+        axis = {"radial": (math.sin(th), 0.0, math.cos(th)), "tangential": (math.cos(th), 0.0, -math.sin(th)),
+                "axial": (0.0, 1.0, 0.0)}[self.sensor_axis_kind]
+        return pos, axis
+
+    def cavity_input(self, wheel_index: int, k: int) -> float:
+        """P_t / EIRP of a wheel at the k-th of the cavity's input angles: the sensor's power density at
+        every opening patch (direct and, with the road, its image times the unpolarized mean |Gamma|^2)
+        times tau * incidence factor * area."""
+        key = (wheel_index, k)
+        if key in self._input_cache:
+            return self._input_cache[key]
+        c = self.cavity
+        th = 2.0 * math.pi * k / c["angles"]
+        src, s_axis = self._sensor_at(wheel_index, th)
+        total = 0.0
+        for p, n, a, tau in c["patches"]:
+            out = _add(p, _scale(1e-3, n))
+            w = tau * a * c["incidence"] / (4.0 * math.pi)
+            d = _sub(out, src)
+            dist = max(_norm(d), 1e-3)
+            e = self._sensor_field(s_axis, _scale(1.0 / dist, d), (0.0, 0.0, 1.0))
+            loss = self.body_loss_db(src, out) + self.wheel_loss_db(wheel_index, src, out)
+            total += w * _dot(e, e) * 10.0 ** (-loss / 10.0) / dist**2
+            if self.ground:
+                img = (src[0], src[1], -src[2])
+                dr = _sub(out, img)
+                dist_r = max(_norm(dr), 1e-3)
+                up = _scale(1.0 / dist_r, dr)
+                f = src[2] / (src[2] + out[2])
+                road = (img[0] + f * dr[0], img[1] + f * dr[1], 0.0)
+                e_i = self._sensor_field(s_axis, (up[0], up[1], -up[2]), (0.0, 0.0, 1.0))
+                g_te, g_tm = (complex(g) for g in fresnel_reflection(self.road_eps, math.asin(min(max(up[2], 0.0), 1.0))))
+                refl = 0.5 * (abs(g_te) ** 2 + abs(g_tm) ** 2)
+                loss_r = self.body_loss_db(src, road) + self.body_loss_db(out, road) + self.wheel_loss_db(wheel_index, src, road)
+                total += w * _dot(e_i, e_i) * refl * 10.0 ** (-loss_r / 10.0) / dist_r**2
+        self._input_cache[key] = total
+        return total
+
+    def _wall(self, poly: Polygon, u: float, v: float):
+        """(distance, unit normal in the view's plane) of the point (u, v) to the polygon's outline."""
+        q = Point(u, v)
+        near = poly.exterior.interpolate(poly.exterior.project(q))
+        du, dv = u - near.x, v - near.y
+        dist = math.hypot(du, dv)
+        n = (du / dist, dv / dist) if dist > 0 else (0.0, 0.0)
+        # the panel is looked up a micrometre off the foot toward the point (a corner takes the panel faced)
+        return dist, n, (near.x + 1e-6 * n[0], near.y + 1e-6 * n[1])
+
+    def diffuse_factor(self, spot, r_axis) -> float:
+        """Diffuse power per unit cavity input at a receiver (LinkField units, core.cavity.spot_factor)."""
+        if self.cavity is None or not self.inside(spot):
+            return 0.0
+        k = 2.0 * math.pi / self.lam
+
+        def factors(z):
+            x = max(2.0 * k * z, 1e-6)
+            ft = 1.0 - 1.5 * (math.sin(x) / x + math.cos(x) / x**2 - math.sin(x) / x**3)
+            fn = 1.0 - 3.0 * (math.cos(x) / x**2 - math.sin(x) / x**3)
+            return ft, fn
+
+        f = 1.0
+        d, n2, foot = self._wall(self.top, spot[0], spot[1])
+        if self.panel_loss_db("wall", (foot[0], foot[1], spot[2])) >= self.cavity["opening_db"]:
+            ft, fn = factors(d)
+            c2 = (r_axis[0] * n2[0] + r_axis[1] * n2[1]) ** 2 if self.rx_pattern == "dipole" else None
+            f *= c2 * fn + (1.0 - c2) * ft if c2 is not None else (fn + 2.0 * ft) / 3.0
+        d, n2, foot = self._wall(self.side, spot[0], spot[2])
+        if self.panel_loss_db("roof", (foot[0], spot[1], foot[1])) >= self.cavity["opening_db"]:
+            ft, fn = factors(d)
+            c2 = (r_axis[0] * n2[0] + r_axis[2] * n2[1]) ** 2 if self.rx_pattern == "dipole" else None
+            f *= c2 * fn + (1.0 - c2) * ft if c2 is not None else (fn + 2.0 * ft) / 3.0
+        kr = 4.0 * math.pi / 3.0 if self.rx_pattern == "dipole" else 2.0 * math.pi
+        return kr * f / self.cavity["sigma_m2"]
+
+    def diffuse_power(self, spot, wheel_index: int, theta: float, r_axis) -> float:
+        """The cavity's mean diffuse power at the spot (LinkField units): the input interpolated
+        linearly in dB between the input angles, times the spot's factor."""
+        fac = self.diffuse_factor(spot, r_axis)
+        if fac == 0.0:
+            return 0.0
+        n = self.cavity["angles"]
+        f = (theta % (2.0 * math.pi)) / (2.0 * math.pi) * n
+        k0 = int(math.floor(f)) % n
+        t = f - math.floor(f)
+        a, b = self.cavity_input(wheel_index, k0), self.cavity_input(wheel_index, (k0 + 1) % n)
+        return fac * 10.0 ** ((10.0 * math.log10(a) * (1.0 - t) + 10.0 * math.log10(b) * t) / 10.0)
 
     # ----- the sensor --------------------------------------------------------------------
     def sensor(self, wheel_index: int, angle_index: int):
@@ -447,5 +575,16 @@ class ReferenceModel:
 
         # the null floor: the power is held at floor^2 times the rays' matched power sum
         power = max(abs(field) ** 2, self.floor_amp**2 * matched_power)
+        # the cavity's diffuse power (mean), and the level exceeded with probability 1 - q when it fades
+        diffuse = 0.0
+        if self.cavity is not None:
+            th = 2.0 * math.pi * angle_index / self.angles_per_turn
+            diffuse = self.diffuse_power(spot, wheel_index, th, r_axis)
+        if diffuse > 0.0 and self.fade_q > 0.0:
+            from scipy.stats import ncx2
+
+            power = 0.5 * diffuse * float(ncx2.ppf(self.fade_q, 2, 2.0 * power / diffuse))
+        else:
+            power += diffuse
         amp = math.sqrt(power) * self.lam / (4.0 * math.pi)
         return self.eirp_dbm + self.rx_gain_dbi + 20.0 * math.log10(max(amp, 1e-30))

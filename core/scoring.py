@@ -12,6 +12,7 @@ computes the received level for any set of spots, shape (S, W, A) in dBm.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -58,6 +59,8 @@ class Scene:
     tread_loss_db: float
     wheel_tables: tuple = ()
     wheel_model_label: str = "knife edge"
+    cavity: object = None  # core.cavity.Cavity: the diffuse level inside the hull, or None
+    fade_probability: float = 0.0  # the scores' level is the one exceeded with probability 1 - this (core.links.fade_power)
 
     @property
     def wheel_ids(self) -> tuple[str, ...]:
@@ -79,8 +82,10 @@ class Scene:
                 f"refined by complex-field interpolation (core.turn_minimum); {floor}")
 
     @classmethod
-    def from_vehicle(cls, v: Vehicle, wheel_model: str | None = None, ground_reflection: bool | None = None) -> "Scene":
-        """Prepare a scene; ``wheel_model`` and ``ground_reflection`` override the file's radio setup."""
+    def from_vehicle(cls, v: Vehicle, wheel_model: str | None = None, ground_reflection: bool | None = None,
+                     cavity: bool = True) -> "Scene":
+        """Prepare a scene; ``wheel_model`` and ``ground_reflection`` override the file's radio setup;
+        ``cavity=False`` leaves out the diffuse level inside the hull (core.cavity)."""
         r = v.radio
         f = r.frequency_hz
         overrides = {name: m.loss_db for name, m in v.materials.items()}
@@ -130,7 +135,7 @@ class Scene:
         elif model == "installed_pattern":
             label = "knife edge (installed patterns need a dipole sensor)"
         rx_gain = r.receiver.gain_dbi
-        return cls(
+        scene = cls(
             vehicle=v,
             hull=hull,
             wheels=wheels,
@@ -156,7 +161,13 @@ class Scene:
             tread_loss_db=loss("tire_tread"),
             wheel_tables=tables,
             wheel_model_label=label,
+            fade_probability=r.fade_probability,
         )
+        if cavity:
+            from core.cavity import build_cavity
+
+            scene = dataclasses.replace(scene, cavity=build_cavity(scene, v.body.cabin_absorption_m2))
+        return scene
 
 
 def _spot_inputs(scene: Scene, spots, axes):
@@ -212,19 +223,27 @@ def spot_turns(scene: Scene, spots, axes=None, refine: bool = True, chunk_links:
     re = np.empty((S, W, A))
     im = np.empty((S, W, A))
     floor2 = np.empty((S, W, A))
+    diffuse = np.zeros((S, W, A))
+    dfac = None
+    if scene.cavity is not None:
+        from core.cavity import spot_factor
+
+        dfac = spot_factor(scene, spots, axes)
     per_chunk = max(1, chunk_links // max(1, W * A))
     for start in range(0, S, per_chunk):
         sl = slice(start, min(S, start + per_chunk))
         for wi in range(W):
-            f = turn_field(scene, wi, spots[sl], axes[sl], None if bits is None else bits[sl])
+            f = turn_field(scene, wi, spots[sl], axes[sl], None if bits is None else bits[sl],
+                           None if dfac is None else dfac[sl])
             re[sl, wi], im[sl, wi], floor2[sl, wi] = f.re, f.im, f.floor2
+            diffuse[sl, wi] = f.diffuse
         if tick is not None:
             tick(sl.stop)
-    field = LinkField(re, im, floor2)
+    field = LinkField(re, im, floor2, diffuse, scene.fade_probability)
     levels = level_dbm(scene, field.power())
     if not refine:
         return TurnLevels(levels)
-    p, th = refine_minimum(scene, spots, axes, field, bits)
+    p, th = refine_minimum(scene, spots, axes, field, bits, dfac)
     return TurnLevels(levels, level_dbm(scene, p), th)
 
 

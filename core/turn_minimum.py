@@ -41,7 +41,7 @@ from __future__ import annotations
 import numpy as np
 
 from core.geometry import start_bits
-from core.links import LinkField, link_field
+from core.links import LinkField, fade_power, link_field
 from core.wheel import sensor_axes, sensor_positions
 
 #: intervals refined per (spot, wheel)
@@ -106,8 +106,14 @@ def _candidate_intervals(predicted: np.ndarray, k: int) -> np.ndarray:
 class _Pairs:
     """The (spot, wheel) pairs being refined, flattened: pair p is spot p // W, wheel p % W."""
 
-    def __init__(self, scene, spots: np.ndarray, axes: np.ndarray, spot_bits: np.ndarray | None):
+    def __init__(self, scene, spots: np.ndarray, axes: np.ndarray, spot_bits: np.ndarray | None,
+                 spot_diffuse: np.ndarray | None = None):
         self.scene = scene
+        if spot_diffuse is None and getattr(scene, "cavity", None) is not None:
+            from core.cavity import spot_factor
+
+            spot_diffuse = spot_factor(scene, spots, axes)
+        self.spot_diffuse = spot_diffuse
         S, W = len(spots), len(scene.wheels)
         self.spot = np.repeat(np.arange(S), W)
         self.wheel = np.tile(np.arange(W), S)
@@ -139,8 +145,10 @@ class _Pairs:
             src[g] = sensor_positions(w, th[g])
         bits0 = start_bits(sc.hull, src[:, 0], src[:, 1], src[:, 2])
         sb = None if self.spot_bits is None else self.spot_bits[spot]
-        f = link_field(sc, wheel, th, src, self._axis(th), bits0, self.spots[spot], self.axes[spot], sb)
-        return LinkField(f.re.reshape(P, K), f.im.reshape(P, K), f.floor2.reshape(P, K))
+        dif = None if self.spot_diffuse is None else self.spot_diffuse[spot]
+        f = link_field(sc, wheel, th, src, self._axis(th), bits0, self.spots[spot], self.axes[spot], sb, dif)
+        d = np.reshape(f.diffuse, (P, K)) if np.ndim(f.diffuse) else f.diffuse
+        return LinkField(f.re.reshape(P, K), f.im.reshape(P, K), f.floor2.reshape(P, K), d, f.fade_q)
 
 
 def _golden(pairs: "_Pairs", best_p: np.ndarray, best_t: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
@@ -167,7 +175,8 @@ def _golden(pairs: "_Pairs", best_p: np.ndarray, best_t: np.ndarray, step: float
 
 
 def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkField,
-                   spot_bits: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+                   spot_bits: np.ndarray | None = None,
+                   spot_diffuse: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Smallest floored field power of every (spot, wheel) over the continuous turn, and its angle.
 
     Parameters
@@ -176,6 +185,7 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     spots, axes : (S, 3) receiver positions (m) and unit antenna axes
     sampled : the field at the scene's sampled angles, arrays (S, W, A) (core.links.turn_field per wheel)
     spot_bits : (S,) the spots' hull membership bits, or None
+    spot_diffuse : (S,) the spots' diffuse factor (core.cavity.spot_factor), or None
 
     Returns
     -------
@@ -186,20 +196,23 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     S, W, A = sampled.re.shape
     angles = scene.angles_rad
     step = 2.0 * np.pi / A
-    pairs = _Pairs(scene, spots, axes, spot_bits)
+    pairs = _Pairs(scene, spots, axes, spot_bits, spot_diffuse)
     re = sampled.re.reshape(S * W, A)
     im = sampled.im.reshape(S * W, A)
     floor2 = sampled.floor2.reshape(S * W, A)
-    p = np.maximum(re * re + im * im, floor2)
-    re_n, im_n, f_next = (np.concatenate([x[:, 1:], x[:, :1]], axis=1) for x in (re, im, floor2))
+    dif = np.broadcast_to(sampled.diffuse, (S, W, A)).reshape(S * W, A)
+    q = sampled.fade_q
+    p = fade_power(np.maximum(re * re + im * im, floor2), dif, q)
+    re_n, im_n, f_next, d_next = (np.concatenate([x[:, 1:], x[:, :1]], axis=1) for x in (re, im, floor2, dif))
     t, m = _chord_minimum(re, im, re_n, im_n)
-    predicted = np.maximum(m, floor2 + t * (f_next - floor2))
+    predicted = fade_power(np.maximum(m, floor2 + t * (f_next - floor2)), dif + t * (d_next - dif), q)
     k = min(REFINE_INTERVALS, A)
     cand = _candidate_intervals(predicted, k)  # (P, k) interval starts
     rows = np.arange(S * W)[:, None]
     v0 = re[rows, cand] + 1j * im[rows, cand]
     v2 = re_n[rows, cand] + 1j * im_n[rows, cand]
     f0, f2 = floor2[rows, cand], f_next[rows, cand]
+    g0, g2 = dif[rows, cand], d_next[rows, cand]
     base = angles[cand]
 
     # interpolation: at the chord's minimum (mid-interval when that sits at an end), then at the
@@ -214,12 +227,13 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     tt = _T[None, None, :]
     qr = v0.real[..., None] + tt * (bq.real[..., None] + tt * cq.real[..., None])
     qi = v0.imag[..., None] + tt * (bq.imag[..., None] + tt * cq.imag[..., None])
-    qp = np.maximum(qr * qr + qi * qi, f0[..., None] + tt * (f2 - f0)[..., None])
+    qp = fade_power(np.maximum(qr * qr + qi * qi, f0[..., None] + tt * (f2 - f0)[..., None]),
+                    g0[..., None] + tt * (g2 - g0)[..., None], q)
     t2 = _T[np.argmin(qp, axis=-1)]
     p2 = pairs.evaluate(base + t2 * step)
 
     # per interval, the best of its ends and the two evaluations
-    pts_p = np.stack([p[rows, cand], np.maximum(v2.real**2 + v2.imag**2, f2), p1, p2], axis=-1)
+    pts_p = np.stack([p[rows, cand], fade_power(np.maximum(v2.real**2 + v2.imag**2, f2), g2, q), p1, p2], axis=-1)
     pts_t = np.stack([base, base + step, base + t1 * step, base + t2 * step], axis=-1)
     j = np.argmin(pts_p, axis=-1)[..., None]
     best_p = np.take_along_axis(pts_p, j, axis=-1)[..., 0]  # (P, k)

@@ -56,6 +56,7 @@ from core.bounds import (
     REACH_MARGIN_M,
     check_rank_work,
 )
+from core.cavity import DEFAULT_CONTENTS_M2
 from core.materials import BUILTIN_MATERIALS
 from core.tires import TireSize, parse_tire_code
 
@@ -107,6 +108,7 @@ class Body(_Strict):
     wheelhouse_clearance_m: float = Field(0.04, ge=0.0, le=0.5)
     wheelhouse_material: Name = "metal"
     floor_height_m: float | None = Field(None, ge=0.0, le=3.0)
+    cabin_absorption_m2: float = Field(DEFAULT_CONTENTS_M2, ge=0.0, le=20.0)
 
 
 class Zone(_Strict):
@@ -244,6 +246,7 @@ class Radio(_Strict):
     receiver: Receiver = Receiver()
     required_margin_db: float = Field(6.0, ge=-50.0, le=50.0)
     null_floor_db: float = Field(-30.0, ge=-80.0, le=0.0)
+    fade_probability: float = Field(0.01, ge=0.0, le=0.5)
     angles_per_turn: int = Field(72, ge=MIN_ANGLES_PER_TURN, le=MAX_ANGLES_PER_TURN)
     worst_case_percentile: float = Field(0.0, ge=0.0, le=50.0)
     frames_per_burst: int = Field(4, ge=1, le=100)

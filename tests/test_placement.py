@@ -310,13 +310,15 @@ def test_shared_region_search_skips_positions_outside_a_body():
 
 
 def test_report_marks_a_flagged_spot_and_never_calls_it_best():
-    # a spot under the floor hears every wheel without crossing the body and ranks first; the report must
-    # name it first as a placement warning, mark it, and take the best spot and detail pages from the others
+    # with every panel metal (no openings, so no diffuse level inside), a spot under the floor hears every
+    # wheel without crossing the body and ranks first; the report must name it first as a placement
+    # warning, mark it, and take the best spot and detail pages from the others
     from app.report.data import build_report_data, report_csv
 
     d = json.loads((ROOT / "sample_vehicles" / "sedan.json").read_text())
     d["radio"]["angles_per_turn"] = 12
     d["regions"] = d["regions"][:1]
+    d["zones"] = []
     d["spots"].append({"name": "under the floor", "x_m": -1.4, "y_m": 0.0, "z_m": 0.1})
     from core.vehicle import vehicle_from_dict
 
