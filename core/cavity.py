@@ -97,7 +97,7 @@ INCIDENCE_FACTOR = 0.5
 #: spacing of the patches the openings are divided into, m
 SAMPLE_SPACING_M = 0.15
 #: wheel angles at which the cavity input is computed (interpolated between them)
-INPUT_ANGLES = 16
+INPUT_ANGLES = 8
 #: metal wall conductivity for the wall absorption, S/m (ITU-R P.2040 Table 3)
 WALL_CONDUCTIVITY_S_PER_M = 1.0e7
 _MU0 = 4e-7 * math.pi

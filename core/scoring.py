@@ -164,10 +164,34 @@ class Scene:
             fade_probability=r.fade_probability,
         )
         if cavity:
-            from core.cavity import build_cavity
-
-            scene = dataclasses.replace(scene, cavity=build_cavity(scene, v.body.cabin_absorption_m2))
+            scene = dataclasses.replace(scene, cavity=_cavity_of(scene))
         return scene
+
+
+#: cavities already built, by what they depend on (body, zones, materials, wheels, radio; not the
+#: spots or regions): an edit of a spot or a region, undo and redo reuse them
+_CAVITIES: dict[str, object] = {}
+_CAVITY_CACHE_SIZE = 16
+
+
+def _cavity_of(scene: Scene):
+    """core.cavity.build_cavity for the scene, reused when nothing it depends on has changed."""
+    import hashlib
+    import json
+
+    from core.cavity import build_cavity
+
+    v = scene.vehicle
+    data = v.model_dump(mode="json", exclude={"spots", "regions", "name", "description", "body_style"})
+    data["_scene"] = [scene.sensor_kind, scene.ground_reflection, scene.use_wheel_loss, scene.wheel_model_label]
+    key = hashlib.sha256(json.dumps(data, sort_keys=True).encode()).hexdigest()
+    cav = _CAVITIES.get(key)
+    if cav is None:
+        cav = build_cavity(scene, v.body.cabin_absorption_m2)
+        if len(_CAVITIES) >= _CAVITY_CACHE_SIZE:
+            _CAVITIES.pop(next(iter(_CAVITIES)))
+        _CAVITIES[key] = cav
+    return cav
 
 
 def _spot_inputs(scene: Scene, spots, axes):
