@@ -8,6 +8,7 @@ they redraw from the document's signals. A spot's x is shared by both views.
 
 from __future__ import annotations
 
+import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
 from PySide6.QtGui import QBrush, QPen, QPolygonF
@@ -23,8 +24,10 @@ from PySide6.QtWidgets import (
 
 from app.gui import edits
 from app.gui.document import Document
-from app.gui.look import BODY_COLOUR, material_colour
+from app.gui.look import BODY_COLOUR, lock_aspect, material_colour
 
+#: above this many spots a view draws them as one scatter item, with a marker for the selected one only
+MAX_SPOT_MARKERS = 40
 SPOT_BRUSH = pg.mkBrush(255, 255, 255, 220)
 SPOT_PEN = pg.mkPen(20, 20, 20, width=1.5)
 SELECTED_BRUSH = pg.mkBrush(250, 200, 40, 255)
@@ -87,7 +90,7 @@ class BodyView(QWidget):
         self._items: list = []
 
         self.plot = pg.PlotWidget(background="w")
-        self.plot.setAspectLocked(True)
+        lock_aspect(self.plot)
         self.plot.showGrid(x=True, y=True, alpha=0.25)
         vert = "y, left" if view == "top" else "z, up"
         for side, text in (("bottom", "x, forward"), ("left", vert)):
@@ -256,6 +259,9 @@ class BodyView(QWidget):
 
     def _draw_spots(self) -> None:
         sc = self.doc.scores
+        if len(sc.names) > MAX_SPOT_MARKERS:
+            self._draw_spot_cloud(sc)
+            return
         for i, name in enumerate(sc.names):
             m = SpotMarker(self.to_view(sc.positions[i]), size=11, symbol="o", movable=True,
                            label=str(i + 1), labelOpts={"offset": (7, -7), "color": (20, 20, 20), "anchor": (0, 1)})
@@ -267,7 +273,42 @@ class BodyView(QWidget):
             self.markers[name] = self._add(m)
         self._restyle_markers(self.doc.selected)
 
+    def _draw_spot_cloud(self, sc) -> None:
+        """Many spots: one scatter item for all of them (click one to select it); only the selected
+        spot is a draggable marker. Hundreds of marker items would take seconds per redraw."""
+        pts = np.array([self.to_view(p) for p in sc.positions]).reshape(-1, 2)
+        cloud = pg.ScatterPlotItem(pts[:, 0], pts[:, 1], data=list(sc.names), size=7, pen=SPOT_PEN, brush=SPOT_BRUSH,
+                                   hoverable=True, tip=lambda x, y, data: f"receiver spot '{data}': click to select")
+        cloud.setZValue(19)
+        cloud.sigClicked.connect(lambda _item, points, _ev: self.doc.select(points[0].data()) if len(points) else None)
+        self.spot_cloud = self._add(cloud)
+        self._selected_marker(self.doc.selected)
+
+    def _selected_marker(self, selected: str) -> None:
+        """Many-spot mode: a draggable marker for the selected spot only."""
+        for name, m in list(self.markers.items()):
+            self.plot.removeItem(m)
+            if m in self._items:
+                self._items.remove(m)
+        self.markers = {}
+        sc = self.doc.scores
+        if not selected or selected not in sc.names:
+            return
+        i = sc.names.index(selected)
+        m = SpotMarker(self.to_view(sc.positions[i]), size=11, symbol="o", movable=True,
+                       label=f"{i + 1} {selected}", labelOpts={"offset": (7, -7), "color": (0, 0, 0), "anchor": (0, 1)})
+        m.setBrush(SELECTED_BRUSH)
+        m.setPen(SELECTED_PEN)
+        m.setZValue(21)
+        m.sigPositionChanged.connect(lambda mk, n=selected: self._spot_dragging(n, mk))
+        m.sigPositionChangeFinished.connect(lambda mk, n=selected: self._spot_dropped(n, mk))
+        m.setToolTip(f"receiver spot '{selected}': drag to move")
+        self.markers[selected] = self._add(m)
+
     def _restyle_markers(self, selected: str) -> None:
+        if len(self.doc.scores.names) > MAX_SPOT_MARKERS:
+            self._selected_marker(selected)
+            return
         for i, (name, m) in enumerate(self.markers.items()):
             sel = name == selected
             m.setLabel(f"{i + 1} {name}" if sel else str(i + 1),
