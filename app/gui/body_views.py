@@ -47,6 +47,12 @@ def _on_white(c, alpha: float):
     return QColor(*(round(255 + alpha * (ch - 255)) for ch in (c.red(), c.green(), c.blue())))
 
 
+def _only_spots_moved(a, b) -> bool:
+    """True when vehicles ``a`` and ``b`` differ at most in where their spots are (same names, same order)."""
+    return ([s.name for s in a.spots] == [s.name for s in b.spots]
+            and a.model_copy(update={"spots": ()}) == b.model_copy(update={"spots": ()}))
+
+
 class SpotMarker(pg.TargetItem):
     """A draggable receiver spot; emits sigClicked on a left click."""
 
@@ -83,6 +89,8 @@ class BodyView(QWidget):
         self._sync = False  # True while the view moves its own items (no edits, no live scoring)
         self._rebuild_pending = False
         self.markers: dict[str, SpotMarker] = {}
+        self.spot_cloud: pg.ScatterPlotItem | None = None
+        self._drawn = None  # the vehicle the editable items were built from
         self.body_roi: pg.PolyLineROI | None = None
         self.zone_roi: pg.PolyLineROI | None = None
         self.region_roi: pg.PolyLineROI | None = None
@@ -142,8 +150,12 @@ class BodyView(QWidget):
 
     # ----- redraw ----------------------------------------------------------------------
     def _on_vehicle_changed(self) -> None:
+        v = self.doc.vehicle
+        drawn, self._drawn = self._drawn, v
+        if drawn is not None and v is not drawn and _only_spots_moved(drawn, v) and self._place_markers():
+            return  # a spot moved: its markers moved, nothing else needs drawing again
         self._place_markers()
-        self.schedule_rebuild()
+        self.schedule_rebuild()  # also when the vehicle is the one drawn: an edit was refused, undo the drag
 
     def schedule_rebuild(self) -> None:
         """Rebuild the editable items after the current event (an item may be handling a mouse event now)."""
@@ -153,6 +165,7 @@ class BodyView(QWidget):
 
     def rebuild(self) -> None:
         self._rebuild_pending = False
+        self._drawn = self.doc.vehicle
         self._sync = True
         try:
             pi = self.plot.getPlotItem()
@@ -160,6 +173,7 @@ class BodyView(QWidget):
                 pi.removeItem(it)
             self._items = []
             self.markers = {}
+            self.spot_cloud = None
             self.wheel_rois = {}
             v = self.doc.vehicle
             self._draw_zones(v)
@@ -317,17 +331,25 @@ class BodyView(QWidget):
             m.setPen(SELECTED_PEN if sel else SPOT_PEN)
             m.setZValue(21 if sel else 20)
 
-    def _place_markers(self) -> None:
-        """Move the markers to the document's spot positions (no rebuild)."""
+    def _place_markers(self) -> bool:
+        """Move the markers to the document's spot positions (no rebuild); False when the drawn
+        markers are not the document's spots."""
         sc = self.doc.scores
-        if set(sc.names) != set(self.markers):
-            return
+        cloud = len(sc.names) > MAX_SPOT_MARKERS
+        if cloud:
+            if self.spot_cloud is None or len(self.spot_cloud.data) != len(sc.names) or not set(self.markers) <= set(sc.names):
+                return False
+            pts = np.array([self.to_view(p) for p in sc.positions]).reshape(-1, 2)
+            self.spot_cloud.setData(pts[:, 0], pts[:, 1], data=list(sc.names))
+        elif set(sc.names) != set(self.markers):
+            return False
         self._sync = True
         try:
-            for i, name in enumerate(sc.names):
-                self.markers[name].setPos(*self.to_view(sc.positions[i]))
+            for name, m in self.markers.items():
+                m.setPos(*self.to_view(sc.positions[sc.names.index(name)]))
         finally:
             self._sync = False
+        return True
 
     # ----- user edits -> document ------------------------------------------------------
     def _spot_dragging(self, name: str, marker: SpotMarker) -> None:

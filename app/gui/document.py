@@ -66,23 +66,19 @@ def _without_spots(v: Vehicle) -> Vehicle:
     return v.model_copy(update={"spots": (), "regions": (), "name": "", "description": ""})
 
 
-def blank_scores(scene: Scene, names, positions) -> SpotScores:
-    """Scores of spots not computed yet: NaN levels and margins, worst wheel -1."""
+def blank_scores(scene: Scene, names, positions, levels=None) -> SpotScores:
+    """Scores of spots not computed yet: NaN margins, worst wheel -1. ``levels`` (S, W, A) may be
+    given; by default a read-only NaN view that takes no memory (the largest file's levels take 230 MB)."""
     s, w, a = len(names), len(scene.wheels), len(scene.angles_rad)
     return SpotScores(
         names=tuple(names), positions=np.asarray(positions, float).reshape(s, 3), wheel_ids=scene.wheel_ids,
-        angles_deg=np.degrees(scene.angles_rad), levels_dbm=np.full((s, w, a), np.nan),
+        angles_deg=np.degrees(scene.angles_rad),
+        levels_dbm=np.broadcast_to(np.nan, (s, w, a)) if levels is None else levels,
         worst_dbm=np.full((s, w), np.nan), worst_angle_deg=np.full((s, w), np.nan),
         median_dbm=np.full((s, w), np.nan), margin_db=np.full(s, np.nan), worst_wheel=np.full(s, -1, int),
         sensitivity_dbm=scene.sensitivity_dbm, required_margin_db=scene.required_margin_db,
         near_field=np.zeros(s, bool),
     )
-
-
-def _copy_rows(target: SpotScores, rows, source: SpotScores, source_rows=None) -> None:
-    src = slice(None) if source_rows is None else source_rows
-    for f in _SCORE_FIELDS:
-        getattr(target, f)[rows] = getattr(source, f)[src]
 
 
 def score_rows(scene: Scene, positions, axes, rows, progress=None, cancel=None) -> list[tuple[np.ndarray, SpotScores]]:
@@ -99,6 +95,21 @@ def score_rows(scene: Scene, positions, axes, rows, progress=None, cancel=None) 
         out.append((r, score_spots(scene, positions[r], axes[r])))
         if progress is not None:
             progress(min(len(rows), start + per), len(rows))
+    return out
+
+
+def assemble_scores(scene: Scene, names, positions, old: SpotScores, reuse: np.ndarray, parts) -> SpotScores:
+    """Complete scores: row i taken from ``old`` row ``reuse[i]`` (when >= 0) or from the scored ``parts``.
+
+    Builds new arrays (never writes into ``old``, which views may still show)."""
+    s, w, a = len(names), len(scene.wheels), len(scene.angles_rad)
+    out = blank_scores(scene, names, positions, levels=np.empty((s, w, a)))
+    have = reuse >= 0
+    for f in _SCORE_FIELDS:
+        if have.any():
+            getattr(out, f)[have] = getattr(old, f)[reuse[have]]
+        for rows, part in parts:
+            getattr(out, f)[rows] = getattr(part, f)
     return out
 
 
@@ -134,6 +145,7 @@ class Document(QObject):
         self.scores: SpotScores = blank_scores(self.scene, [], np.zeros((0, 3)))
         self.pending: np.ndarray = np.zeros(0, bool)
         self._score_task: Task | None = None
+        self._old_axes = np.zeros((0, 3))
         self._live_task: Task | None = None
         self._live_request: tuple[str, tuple[float, float, float]] | None = None
         self._generation = 0
@@ -170,19 +182,32 @@ class Document(QObject):
         old, old_pending, same_physics = self.scores, self.pending, p.physics == self.physics and not first
         self.vehicle, self.scene, self.physics = p.vehicle, p.scene, p.physics
         names, pos, ax = vehicle_spot_arrays(p.vehicle)
-        scores = blank_scores(p.scene, names, pos)
-        pending = np.ones(len(names), bool)
+        reuse = np.full(len(names), -1)  # row of the old scores that holds this spot's scores
         if same_physics and len(old.names):
             known = {}
-            for j, n in enumerate(old.names):
+            for j in range(len(old.names)):
                 if not old_pending[j]:
                     known[(tuple(old.positions[j]), tuple(self._old_axes[j]))] = j
             for i in range(len(names)):
-                j = known.get((tuple(pos[i]), tuple(ax[i])))
-                if j is not None:
-                    _copy_rows(scores, i, old, j)
-                    pending[i] = False
+                reuse[i] = known.get((tuple(pos[i]), tuple(ax[i])), -1)
         self._old_axes = ax
+        todo = np.nonzero(reuse < 0)[0]
+        scene = p.scene
+        if len(todo) * len(scene.wheels) * len(scene.angles_rad) <= SYNC_LINKS:
+            scores = assemble_scores(scene, names, pos, old, reuse, score_rows(scene, pos, ax, todo))
+            pending = np.zeros(len(names), bool)
+        else:
+            # until the worker is done: the reused rows are shown when they keep their places (a spot
+            # moved, the others did not), otherwise every row waits for the worker
+            in_place = len(old.names) == len(names) and bool(np.all((reuse == -1) | (reuse == np.arange(len(names)))))
+            scores = blank_scores(scene, names, pos, levels=old.levels_dbm if in_place else None)
+            pending = np.ones(len(names), bool)
+            if in_place:
+                keep = reuse >= 0
+                for f in _SCORE_FIELDS[1:]:
+                    getattr(scores, f)[keep] = getattr(old, f)[keep]
+                pending = ~keep
+            self._start_scoring(scene, names, pos, ax, old, reuse, todo)
         self.scores, self.pending = scores, pending
         self.live = None
         self._live_request = None
@@ -192,13 +217,6 @@ class Document(QObject):
             self.selected_zone = -1
         if self.region_index >= len(p.vehicle.regions):
             self.region_index = 0
-        todo = np.nonzero(pending)[0]
-        if len(todo) * len(p.scene.wheels) * len(p.scene.angles_rad) <= SYNC_LINKS:
-            for rows, part in score_rows(p.scene, pos, ax, todo):
-                _copy_rows(scores, rows, part)
-            pending[:] = False
-        else:
-            self._start_scoring(p.scene, pos, ax, todo)
         if not first:
             self.vehicleChanged.emit()
             self.scoresReady.emit()
@@ -224,11 +242,13 @@ class Document(QObject):
         return int(self.scores.order()[0]) if not self.pending.any() else 0
 
     # ----- scoring in a worker ----------------------------------------------------------
-    def _start_scoring(self, scene: Scene, pos, ax, rows) -> None:
-        gen = self._generation
-        task = Task(lambda progress, cancel: score_rows(scene, pos, ax, rows, progress, cancel),
-                    f"scoring {len(rows)} spots")
-        task.gen = gen
+    def _start_scoring(self, scene: Scene, names, pos, ax, old: SpotScores, reuse, rows) -> None:
+        def run(progress, cancel):
+            return assemble_scores(scene, names, pos, old, reuse, score_rows(scene, pos, ax, rows, progress, cancel))
+
+        task = Task(run, f"scoring {len(rows)} spots")
+        task.gen = self._generation
+        task.count = len(rows)
         task.progress.connect(self._score_progress)
         task.done.connect(self._score_done)
         task.failed.connect(self._score_failed)
@@ -241,16 +261,13 @@ class Document(QObject):
         if task is self._score_task:
             self.scoringProgress.emit(done, total)
 
-    def _score_done(self, task, parts) -> None:
+    def _score_done(self, task, scores: SpotScores) -> None:
         if task is not self._score_task or task.gen != self._generation:
             return
         self._score_task = None
-        for rows, part in parts:
-            _copy_rows(self.scores, rows, part)
-            self.pending[rows] = False
-        n = sum(len(r) for r, _p in parts)
+        self.scores, self.pending = scores, np.zeros(len(scores.names), bool)
         self.scoringProgress.emit(0, 0)
-        self.statusMessage.emit(f"Scored {n} spots.")
+        self.statusMessage.emit(f"Scored {task.count} spots.")
         if self._auto_select and self.vehicle.spots:
             self.select(self.vehicle.spots[self._best_row()].name, auto=True)
         self.scoresReady.emit()

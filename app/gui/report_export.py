@@ -2,7 +2,8 @@
 
 A non-modal progress dialog follows the computation (``app.report.data.build_report_data``, whose
 heatmaps check the cancel flag between chunks); Cancel is a request and nothing waits for the
-worker. The PDF is written (atomically, ``app.report.pdf.write_report_pdf``) when the data arrive.
+worker. The worker also lays out and writes the PDF (atomically, ``app.report.pdf.write_report_pdf``;
+Qt paints PDFs, text documents and fonts outside the GUI thread), which takes about a second.
 Closing the window cancels the export.
 """
 
@@ -14,7 +15,8 @@ from PySide6.QtCore import QObject, Qt, Signal
 from PySide6.QtWidgets import QFileDialog, QMessageBox, QProgressDialog
 
 from app.gui.tasks import Task
-from core.vehicle import Vehicle, VehicleFileError
+from core.scoring import Cancelled
+from core.vehicle import Vehicle
 
 TITLE = "Export placement report"
 
@@ -32,8 +34,18 @@ class ReportExport(QObject):
         self.source, self.out_pdf = source, out_pdf
         self._open = True
         stem = Path(source).stem if not isinstance(source, Vehicle) else "the edited vehicle"
-        self.task = Task(lambda progress, cancel: build_report_data(source, step_m, progress=progress, cancel=cancel),
-                         f"report of {stem}")
+        def run(progress, cancel):
+            from app.report.pdf import write_report_pdf
+
+            data = build_report_data(source, step_m, progress=progress, cancel=cancel)
+            if cancel():
+                raise Cancelled()
+            try:
+                return write_report_pdf(data, out_pdf)
+            except OSError as e:  # reported with the file the user chose, never a temporary name
+                raise OSError(f"{out_pdf}: {e.strerror or e}") from None
+
+        self.task = Task(run, f"report of {stem}")
         self.dialog = QProgressDialog(f"Computing the report of {stem}...", "Cancel", 0, 100, parent)
         self.dialog.setWindowTitle(TITLE)
         self.dialog.setWindowModality(Qt.WindowModality.NonModal)
@@ -81,20 +93,11 @@ class ReportExport(QObject):
         QMessageBox.warning(self.parent(), TITLE, f"The report was not written.\n\n{msg}")
         self.stopped.emit(msg)
 
-    def _done(self, _task, data) -> None:
-        from app.report.pdf import write_report_pdf
-
+    def _done(self, _task, pages: int) -> None:
         self._finish()
-        try:
-            n = write_report_pdf(data, self.out_pdf)
-        except (OSError, VehicleFileError) as e:
-            why = e.strerror if isinstance(e, OSError) and e.strerror else str(e)
-            QMessageBox.warning(self.parent(), TITLE, f"The report was not written.\n\nFile: {self.out_pdf}\nProblem: {why}")
-            self.stopped.emit(why)
-            return
         parent = self.parent()
         if parent is not None and hasattr(parent, "statusBar"):
-            parent.statusBar().showMessage(f"Wrote {self.out_pdf} ({n} pages)", 8000)
+            parent.statusBar().showMessage(f"Wrote {self.out_pdf} ({pages} pages)", 8000)
         self.written.emit(self.out_pdf)
 
 
