@@ -320,6 +320,8 @@ class BodyView(QWidget):
         self.markers[selected] = self._add(m)
 
     def _restyle_markers(self, selected: str) -> None:
+        if self._rebuild_pending:
+            return  # the rebuild draws the selection
         if len(self.doc.scores.names) > MAX_SPOT_MARKERS:
             self._selected_marker(selected)
             return

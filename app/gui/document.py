@@ -175,7 +175,7 @@ class Document(QObject):
             return Prepared(v, dc_replace(self.scene, vehicle=v), self.physics)
         return Prepared(v, Scene.from_vehicle(v), next(_physics_ids))
 
-    def _install(self, p: Prepared, first: bool = False) -> None:
+    def _install(self, p: Prepared, first: bool = False, emit: bool = True) -> None:
         """Show the prepared state: keep the scores of unchanged spots, score the others."""
         self._generation += 1
         self._drop_tasks()
@@ -217,7 +217,7 @@ class Document(QObject):
             self.selected_zone = -1
         if self.region_index >= len(p.vehicle.regions):
             self.region_index = 0
-        if not first:
+        if emit and not first:
             self.vehicleChanged.emit()
             self.scoresReady.emit()
 
@@ -231,9 +231,11 @@ class Document(QObject):
         self.selected_zone = -1
         self.region_index = 0
         self._auto_select = True
-        self._install(p)
-        if v.spots:
-            self.select(v.spots[self._best_row()].name, auto=True)
+        self._install(p, emit=False)
+        self.selected = v.spots[self._best_row()].name if v.spots else ""
+        self.vehicleChanged.emit()
+        self.scoresReady.emit()
+        self.selectionChanged.emit(self.selected)
         self.undo_stack.setClean()
         self.pathChanged.emit()
         self.documentReplaced.emit()

@@ -468,8 +468,12 @@ class SpotFigures(QWidget):
         self.burst_result = None
         self.distinctness = None
         self._burst_task: Task | None = None
-        doc.scoresReady.connect(self.refresh)
-        doc.selectionChanged.connect(lambda _n: self.refresh())
+        self._refresh_timer = QTimer(self)  # scores and selection often change together: draw once
+        self._refresh_timer.setSingleShot(True)
+        self._refresh_timer.setInterval(0)
+        self._refresh_timer.timeout.connect(self.refresh)
+        doc.scoresReady.connect(self._refresh_timer.start)
+        doc.selectionChanged.connect(lambda _n: self._refresh_timer.start())
         doc.liveScore.connect(self._live)
         self.refresh()
 
@@ -480,6 +484,7 @@ class SpotFigures(QWidget):
         return sc.names.index(self.doc.selected)
 
     def refresh(self) -> None:
+        self._refresh_timer.stop()
         i = self._row()
         for p in (self.levels, self.burst, self.separation):
             p.clear()
@@ -510,8 +515,8 @@ class SpotFigures(QWidget):
         task.start()
 
     def burst_pending(self) -> bool:
-        """True while the burst figure waits for its worker."""
-        return self._burst_task is not None
+        """True while the figures wait for a redraw or the burst figure for its worker."""
+        return self._burst_task is not None or self._refresh_timer.isActive()
 
     def _drop_burst(self) -> None:
         task, self._burst_task = self._burst_task, None
