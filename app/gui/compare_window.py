@@ -10,9 +10,8 @@ position is drawn as a square marker in every top view.
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
+from core.samples import SAMPLES_DIR
 from PySide6.QtCore import QRectF, QSize, Qt, Signal
 from PySide6.QtGui import QAction, QBrush, QColor, QFont, QPainter
 from PySide6.QtWidgets import (
@@ -35,7 +34,6 @@ from app.gui.tasks import Task
 from app.report import figures as fig
 from app.report.compare import body_labels, describe_position
 from core.compare import LANDMARKS, CommonSearch, Comparison, NoSharedRegion, compare_bodies, search_common_position
-from core.samples import SAMPLES_DIR
 from core.scoring import Scene
 from core.vehicle import Vehicle, VehicleFileError, load_vehicle
 

@@ -43,13 +43,13 @@ def run_gui(file: str | None = None, screenshot: str | None = None) -> int:
 
     if screenshot:
         os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+    from core.samples import DEFAULT_SAMPLE
     from PySide6.QtCore import QCoreApplication, QTimer
     from PySide6.QtWidgets import QApplication
 
     from app.gui import tasks
     from app.gui.document import Document
     from app.gui.window import MainWindow
-    from core.samples import DEFAULT_SAMPLE
     from core.vehicle import load_vehicle
 
     QCoreApplication.setOrganizationName("Wheelreach")

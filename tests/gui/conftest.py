@@ -39,9 +39,10 @@ def _no_worker_left(qapp):
 @pytest.fixture
 def window(qtbot, settings):
     """The main window on the sample sedan, heatmap auto-update off (tests start it when needed)."""
+    from core.samples import DEFAULT_SAMPLE
+
     from app.gui.document import Document
     from app.gui.window import MainWindow
-    from core.samples import DEFAULT_SAMPLE
     from core.vehicle import load_vehicle
 
     doc = Document(load_vehicle(DEFAULT_SAMPLE), DEFAULT_SAMPLE)

@@ -9,11 +9,11 @@ import json
 
 import numpy as np
 import pytest
+from core.samples import DEFAULT_SAMPLE
 from PySide6.QtCore import QEvent, QPoint, QPointF, Qt
 from PySide6.QtGui import QImage, QMouseEvent
 from PySide6.QtWidgets import QApplication
 
-from core.samples import DEFAULT_SAMPLE
 from core.scoring import Scene, heatmap, score_spots, score_vehicle
 from core.vehicle import check_vehicle, load_vehicle
 
