@@ -494,6 +494,7 @@ class SpotFigures(QWidget):
             self.levels.setTitle("Level over the wheel turn (select a spot)", size="9pt")
             return
         if self.doc.pending[i]:
+            self.separation.getAxis("bottom").setTicks(None)
             self.levels.setTitle(f"{self.doc.selected}: being scored in the background...", size="9pt")
             self.burst.setTitle("Burst success vs speed", size="8pt")
             self.separation.setTitle("Wheel separation by signal strength", size="8pt")
@@ -573,13 +574,14 @@ class SpotFigures(QWidget):
         self.burst_result = r
         kmh = r.speeds_mps * KMH_PER_MPS
         per_wheel = max(2, MAX_REPEAT_MARKERS // max(1, len(r.wheel_ids)))
-        skipped = 0
+        drawn = total = 0
         for w, wid in enumerate(r.wheel_ids):
             col = wheel_colour(w)
             p.plot(kmh, 100 * r.success[w], pen=pg.mkPen(col, width=1.8), name=wid)
             p.plot([0.0], [100 * r.parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
             rs = np.asarray(r.resonant_mps[w])
-            skipped += max(0, len(rs) - per_wheel)
+            total += len(rs)
+            drawn += min(len(rs), per_wheel)
             if len(rs):  # one item per wheel: vertical dotted segments at the lowest repeat speeds
                 xs = np.repeat(rs[:per_wheel] * KMH_PER_MPS, 2)
                 ys = np.tile([0.0, 100.0], len(xs) // 2)
@@ -589,8 +591,8 @@ class SpotFigures(QWidget):
         wi, vi = r.worst()
         rad = self.doc.vehicle.radio
         repeat = "dotted: frames repeat"
-        if skipped:
-            repeat += f" (lowest {per_wheel} per wheel drawn, {skipped:,} more not drawn)"
+        if drawn < total:
+            repeat += f" (lowest {drawn:,} of {total:,} drawn)"
         p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
                    f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
                    f"squares: parked; {repeat}", size="8pt")

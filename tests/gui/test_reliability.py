@@ -205,7 +205,7 @@ def test_burst_figure_draws_a_bounded_number_of_repeat_markers(window, qtbot):
     assert len(items) < 20
     drawn = sum(len(it.xData) // 2 for it in figs.burst.getPlotItem().listDataItems() if it.opts.get("connect") == "pairs")
     assert drawn <= MAX_REPEAT_MARKERS
-    assert "more not drawn" in figs.burst.getPlotItem().titleLabel.text
+    assert f"of {1_400_000 + 10:,} drawn" in figs.burst.getPlotItem().titleLabel.text
 
 
 # ----- smaller items -----------------------------------------------------------------------------------
