@@ -427,3 +427,26 @@ def test_compare_window_closes_during_its_search(qtbot):
     w.start_search()
     assert w._worker is not None
     assert_responsive(w.close)
+
+
+def test_dragging_a_spot_of_a_heavy_file_scores_in_a_worker(window, qtbot):
+    """One spot of 16 wheels x 3,600 angles is 57,600 links: the live margin comes from a worker,
+    only the latest mouse position is scored and shown."""
+    v = _largest_vehicle(spots=2)
+    doc = window.doc
+    doc.replace(v, None)
+    qtbot.wait(300)  # the views redraw the new body
+    name = v.spots[0].name
+    shown = []
+    doc.liveScore.connect(lambda n, sc: shown.append(tuple(sc.positions[0])))
+    moves = [(-1.0 - 0.05 * k, 0.1, 0.8) for k in range(6)]
+
+    def drag():
+        for p in moves:
+            assert doc.live_move(name, p) is None  # returns at once
+
+    assert_responsive(drag)
+    qtbot.waitUntil(lambda: bool(shown) and shown[-1] == moves[-1], timeout=120_000)
+    assert len(shown) < len(moves)  # positions the mouse left before they were scored are skipped
+    ref = doc.score_at(name, moves[-1])
+    assert doc.live[1].margin_db[0] == pytest.approx(float(ref.margin_db[0]), abs=1e-9)
