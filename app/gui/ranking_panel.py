@@ -524,6 +524,11 @@ class SpotFigures(QWidget):
         if task is not None:
             task.cancel()
 
+    def abandon(self) -> None:
+        """Drop the burst computation without waiting (the window closes)."""
+        self._refresh_timer.stop()
+        self._drop_burst()
+
     def _burst_done(self, task, r) -> None:
         if task is self._burst_task:
             self._burst_task = None

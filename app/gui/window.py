@@ -392,7 +392,10 @@ class MainWindow(QMainWindow):
             return
         # nothing waits for a worker: each is asked to stop and finishes its current chunk unseen
         self.ranking.heatmap.abandon()
+        self.ranking.figures.abandon()
         self.doc.abandon_work()
+        if getattr(self, "report_export", None) is not None:
+            self.report_export.cancel()
         self.recovery_timer.stop()
         if self.recovery is not None:
             self.recovery.close()  # a clean close: this window's copy is no longer needed
