@@ -97,15 +97,16 @@ class RecoveryDialog(QDialog):
                              "Tick the copies to open or to discard; the others are offered again next time."))
         self.list = QListWidget()
         for o in orphans:
-            where = o.original_path or "never saved"
-            text = f"{o.title}  -  unsaved work of {o.saved_at}  ({where})"
+            text = f"{o.title}: unsaved work of {o.saved_at}\n    {o.original_path or 'never saved to a file'}"
             if o.problem:
-                text += f"  -  {o.problem}"
+                text += f"\n    cannot be opened: {o.problem}"
             item = QListWidgetItem(text)
+            item.setToolTip(f"recovery copy {o.path}")
             item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
-            item.setCheckState(Qt.CheckState.Checked)
+            item.setCheckState(Qt.CheckState.Unchecked if o.problem else Qt.CheckState.Checked)
             self.list.addItem(item)
-        self.list.setMinimumWidth(640)
+        self.list.setMinimumWidth(720)
+        self.list.setWordWrap(True)
         lay.addWidget(self.list)
         bb = QDialogButtonBox()
         self.open_button = bb.addButton("Open ticked", QDialogButtonBox.ButtonRole.AcceptRole)
