@@ -585,7 +585,8 @@ class SpotFigures(QWidget):
             p.plot(kmh, 100 * r.success[w], pen=pg.mkPen(col, width=1.8), name=wid)
             p.plot([0.0], [100 * r.parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
             rs = np.asarray(r.resonant_mps[w])
-            total += len(rs)
+            counts = getattr(r, "resonant_count", ())  # core may list only the lowest ones and count them all
+            total += int(counts[w]) if len(counts) > w else len(rs)
             drawn += min(len(rs), per_wheel)
             if len(rs):  # one item per wheel: vertical dotted segments at the lowest repeat speeds
                 xs = np.repeat(rs[:per_wheel] * KMH_PER_MPS, 2)
