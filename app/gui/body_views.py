@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
+from PySide6.QtCore import QPointF, QRectF, Qt, Signal
 from PySide6.QtGui import QBrush, QPen, QPolygonF
 from PySide6.QtWidgets import (
     QGraphicsEllipseItem,
@@ -25,6 +25,7 @@ from PySide6.QtWidgets import (
 from app.gui import edits
 from app.gui.document import Document
 from app.gui.look import BODY_COLOUR, lock_aspect, material_colour
+from app.gui.tasks import run_soon
 
 #: above this many spots a view draws them as one scatter item, with a marker for the selected one only
 MAX_SPOT_MARKERS = 40
@@ -161,7 +162,14 @@ class BodyView(QWidget):
         """Rebuild the editable items after the current event (an item may be handling a mouse event now)."""
         if not self._rebuild_pending:
             self._rebuild_pending = True
-            QTimer.singleShot(0, self.rebuild)
+            run_soon(self, self._rebuild_if_pending)
+
+    def _rebuild_if_pending(self) -> None:
+        try:
+            if self._rebuild_pending:
+                self.rebuild()
+        except RuntimeError:  # the view was destroyed while its redraw waited
+            pass
 
     def rebuild(self) -> None:
         self._rebuild_pending = False

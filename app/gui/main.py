@@ -14,7 +14,10 @@ EXIT_WAIT_S = 10.0
 
 def window_busy(win) -> bool:
     """True while the window's document, heatmap or figures still wait for a worker."""
-    return win.doc.scoring or win.ranking.heatmap.is_running() or win.ranking.figures.burst_pending()
+    from app.gui import tasks
+
+    return (win.doc.scoring or win.ranking.heatmap.is_running() or win.ranking.figures.burst_pending()
+            or tasks.redraws_pending())
 
 
 def wait_until_idle(app, win, limit_s: float) -> bool:

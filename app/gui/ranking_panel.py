@@ -34,7 +34,7 @@ from app.gui import edits
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
 from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, wheel_colour
-from app.gui.tasks import Task
+from app.gui.tasks import Task, run_soon
 from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
 
@@ -468,12 +468,9 @@ class SpotFigures(QWidget):
         self.burst_result = None
         self.distinctness = None
         self._burst_task: Task | None = None
-        self._refresh_timer = QTimer(self)  # scores and selection often change together: draw once
-        self._refresh_timer.setSingleShot(True)
-        self._refresh_timer.setInterval(0)
-        self._refresh_timer.timeout.connect(self.refresh)
-        doc.scoresReady.connect(self._refresh_timer.start)
-        doc.selectionChanged.connect(lambda _n: self._refresh_timer.start())
+        self._refresh_pending = False  # scores and selection often change together: draw once
+        doc.scoresReady.connect(self.schedule_refresh)
+        doc.selectionChanged.connect(lambda _n: self.schedule_refresh())
         doc.liveScore.connect(self._live)
         self.refresh()
 
@@ -483,8 +480,21 @@ class SpotFigures(QWidget):
             return None
         return sc.names.index(self.doc.selected)
 
+    def schedule_refresh(self) -> None:
+        """Redraw on a coming turn of the event loop (after the views, one redraw per turn)."""
+        if not self._refresh_pending:
+            self._refresh_pending = True
+            run_soon(self, self._refresh_if_pending)
+
+    def _refresh_if_pending(self) -> None:
+        try:
+            if self._refresh_pending:
+                self.refresh()
+        except RuntimeError:  # destroyed while the redraw waited
+            pass
+
     def refresh(self) -> None:
-        self._refresh_timer.stop()
+        self._refresh_pending = False
         i = self._row()
         for p in (self.levels, self.burst, self.separation):
             p.clear()
@@ -517,7 +527,7 @@ class SpotFigures(QWidget):
 
     def burst_pending(self) -> bool:
         """True while the figures wait for a redraw or the burst figure for its worker."""
-        return self._burst_task is not None or self._refresh_timer.isActive()
+        return self._burst_task is not None or self._refresh_pending
 
     def _drop_burst(self) -> None:
         task, self._burst_task = self._burst_task, None
@@ -526,7 +536,7 @@ class SpotFigures(QWidget):
 
     def abandon(self) -> None:
         """Drop the burst computation without waiting (the window closes)."""
-        self._refresh_timer.stop()
+        self._refresh_pending = False
         self._drop_burst()
 
     def _burst_done(self, task, r) -> None:

@@ -133,6 +133,36 @@ def _lower_thread_priority() -> None:
         pass
 
 
+#: GUI redraws waiting for their turn: key -> callable, run one per turn of the event loop
+_SOON: dict[object, Callable[[], None]] = {}
+
+
+def run_soon(key, fn: Callable[[], None]) -> None:
+    """Run ``fn`` on a coming turn of the event loop, one queued redraw per turn (a later request
+    with the same ``key`` replaces an earlier one). Several views redrawing after one edit then
+    never hold the event loop together: input and timers are served between them."""
+    first = not _SOON
+    _SOON.pop(key, None)
+    _SOON[key] = fn
+    if first:
+        QTimer.singleShot(0, _run_next)
+
+
+def redraws_pending() -> bool:
+    """True while redraws queued with ``run_soon`` wait for their turn."""
+    return bool(_SOON)
+
+
+def _run_next() -> None:
+    if not _SOON:
+        return
+    key = next(iter(_SOON))
+    fn = _SOON.pop(key)
+    if _SOON:
+        QTimer.singleShot(0, _run_next)  # due on the next turn, after the events waiting now
+    fn()
+
+
 def running() -> list[Task]:
     """Tasks whose thread has not been reaped yet."""
     return [t for t in _RUNNING]
