@@ -25,11 +25,20 @@ def _send(widget, kind, pos: QPoint, buttons) -> None:
 
 
 def mouse_drag(plot, start: QPoint, end: QPoint, steps: int = 8) -> None:
-    """Press the left button at ``start``, move in steps to ``end`` and release (viewport pixels)."""
+    """Press the left button at ``start``, move in steps to ``end`` and release (viewport pixels).
+
+    pyqtgraph drops mouse moves that follow the previous one within 1/mouseRateLimit s (10 ms):
+    the moves are spaced wider, or the drag would stop short wherever the moves came too fast."""
+    import time
+
+    import pyqtgraph as pg
+
+    gap_s = 1.5 / max(1.0, float(pg.getConfigOption("mouseRateLimit")))
     vp = plot.viewport()
     _send(vp, QEvent.Type.MouseButtonPress, start, Qt.MouseButton.LeftButton)
     for k in range(1, steps + 1):
         p = start + (end - start) * (k / steps)
+        time.sleep(gap_s)
         _send(vp, QEvent.Type.MouseMove, p, Qt.MouseButton.LeftButton)
         QApplication.processEvents()
     _send(vp, QEvent.Type.MouseButtonRelease, end, Qt.MouseButton.NoButton)
