@@ -16,8 +16,6 @@ Rules every front-end task follows:
 from __future__ import annotations
 
 import gc
-import os
-import sys
 import threading
 import time
 import traceback
@@ -96,7 +94,8 @@ class Task(QThread):
         return self._stop.is_set()
 
     def run(self) -> None:
-        _lower_thread_priority()
+        # the worker keeps the GUI thread's CPU priority: a lowered one starves it on a busy machine
+        # whenever the worker holds the interpreter lock and waits for the CPU (priority inversion)
         try:
             result = self.fn(lambda d, t: self.progress.emit(self, int(d), int(t)), self._stop.is_set)
         except Cancelled:
@@ -115,22 +114,6 @@ class Task(QThread):
         _ENDED.append(self)  # the last reference may go only after this slot has returned
         QTimer.singleShot(0, _release_ended)
         self.ended.emit(self)
-
-
-#: niceness added to worker threads, so the GUI thread gets the CPU first on a busy machine
-WORKER_NICENESS = 10
-
-
-def _lower_thread_priority() -> None:
-    """Lower the calling worker thread's CPU priority (Linux schedules threads one by one, and
-    setpriority with a thread id affects that thread only; elsewhere this does nothing)."""
-    if not sys.platform.startswith("linux"):
-        return
-    try:
-        tid = threading.get_native_id()
-        os.setpriority(os.PRIO_PROCESS, tid, min(19, os.getpriority(os.PRIO_PROCESS, tid) + WORKER_NICENESS))
-    except (OSError, AttributeError):
-        pass
 
 
 #: GUI redraws waiting for their turn: key -> callable, run one per turn of the event loop
