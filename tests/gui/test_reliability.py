@@ -56,22 +56,39 @@ def responsiveness(action, follow_s: float = 1.2) -> tuple[float, float]:
     return t1 - t0, float(np.max(np.diff(beats)))
 
 
-def assert_responsive(action, follow_s: float = 1.2, tries: int = 1, before=None) -> None:
-    """The action returns within ACTION_S and the event loop then answers within ANSWER_S.
+#: on a busy machine the answer may take this many times what the same action takes with no
+#: worker running (the window's own redraw work, measured in the same test just before)
+BUSY_FACTOR = 3.0
+
+
+def idle_gap(action, tries: int = 2) -> float:
+    """The shortest gap after ``action(k)`` over ``tries`` tries, with no worker running: the
+    window's own work for that action on this machine at this moment."""
+    app, t0 = QApplication.instance(), time.monotonic()
+    while tasks.running() and time.monotonic() - t0 < 60:  # e.g. the burst figure of the selected spot
+        app.processEvents(QEventLoop.ProcessEventsFlag.AllEvents, 20)
+    return min(responsiveness(lambda k=k: action(k))[1] for k in range(tries))
+
+
+def assert_responsive(action, follow_s: float = 1.2, tries: int = 1, before=None, idle_s: float = 0.0) -> None:
+    """The action returns within ACTION_S and the event loop then answers within ANSWER_S, or
+    within BUSY_FACTOR x ``idle_s`` when the machine is so busy that the same action alone takes
+    longer (``idle_s`` from ``idle_gap``; a window that waits for a worker takes seconds more).
 
     With ``tries`` > 1 the action (called with the try number) is repeated until one try meets
     both limits: a window that waits for a worker fails every try, while a single slow turn of a
     shared, busy machine (the scheduler, a garbage collection) does not fail the test.
     ``before(k)`` runs ahead of each try (e.g. to check that the heatmap is still running)."""
+    limit = max(ANSWER_S, BUSY_FACTOR * idle_s)
     seen = []
     for k in range(tries):
         if before is not None:
             before(k)
         took, gap = responsiveness(lambda k=k: action(k) if tries > 1 else action(), follow_s)
         seen.append((round(took, 2), round(gap, 2)))
-        if took < ACTION_S and gap < ANSWER_S:
+        if took < ACTION_S and gap < limit:
             return
-    pytest.fail(f"the window did not answer in time (action s, longest gap s after it): {seen}")
+    pytest.fail(f"the window did not answer within {limit:.2f} s (action s, longest gap s after it): {seen}")
 
 
 def heatmap_jobs() -> list:
@@ -91,22 +108,32 @@ def new_window(qtbot, settings, path=DEFAULT_SAMPLE, vehicle=None, autosave=True
 # ----- long work never blocks the window ---------------------------------------------------------------
 def test_edit_open_and_close_during_a_heatmap_answer_at_once(window, qtbot):
     panel = window.ranking.heatmap
+    doc = window.doc
+    name = doc.vehicle.spots[0].name
+    files = ("cargo_van.json", "suv.json", "cargo_van.json")
+
+    def edit(k):
+        doc.apply(lambda v: edits.move_spot(v, name, (-1.0 - 0.05 * k, 0.1, 0.5)), "move")
+
+    def open_file(k):
+        window.open_path(SAMPLES_DIR / files[k], confirm=False)
+
+    # the same actions with no heatmap running, for the busy-machine allowance
+    idle_edit = idle_gap(lambda k: edit(10 + k))
+    idle_open = idle_gap(lambda k: open_file(1 - k))  # suv, then the van: ends on the van
+    window.open_path(DEFAULT_SAMPLE, confirm=False)
+    name = doc.vehicle.spots[0].name
+
     panel.auto.setChecked(True)
     panel.step.setCurrentIndex(panel.step.findData(0.025))  # a fine grid: many chunks, several seconds
-    doc = window.doc
     panel.start()
     assert panel.is_running()
-
-    name = doc.vehicle.spots[0].name
 
     def running(_k):  # each try happens while a heatmap runs (auto restarts it after an edit or open)
         qtbot.waitUntil(lambda: panel.is_running() and panel.job.scene.vehicle is doc.vehicle, timeout=10_000)
 
-    assert_responsive(lambda k: doc.apply(lambda v: edits.move_spot(v, name, (-1.0 - 0.05 * k, 0.1, 0.5)), "move"),
-                      tries=3, before=running)
-    running(0)  # the edit restarted the heatmap
-    files = ("cargo_van.json", "suv.json", "cargo_van.json")
-    assert_responsive(lambda k: window.open_path(SAMPLES_DIR / files[k], confirm=False), tries=3, before=running)
+    assert_responsive(edit, tries=3, before=running, idle_s=idle_edit)
+    assert_responsive(open_file, tries=3, before=running, idle_s=idle_open)
     assert doc.vehicle in (load_vehicle(SAMPLES_DIR / n) for n in files)
     assert panel.result is None or panel.result.fixed_m == panel.region().height_m  # nothing of the sedan's
     panel.step.setCurrentIndex(panel.step.findData(0.025))
@@ -438,9 +465,13 @@ def test_report_export_keeps_the_window_usable(window, qtbot, tmp_path, monkeypa
         nonlocal job
         job = report_export.export_report(window, DEFAULT_SAMPLE, step_m=0.2)
 
-    assert_responsive(start)
+    def select(k):
+        window.doc.select(window.doc.vehicle.spots[k % 10].name)
+
+    idle = idle_gap(lambda k: select(5 + k))
+    assert_responsive(start, idle_s=idle)
     with qtbot.waitSignal(job.written, timeout=180_000):
-        assert_responsive(lambda k: window.doc.select(window.doc.vehicle.spots[2 + k].name), tries=3)
+        assert_responsive(lambda k: select(2 + k), tries=3, idle_s=idle)
     assert out.read_bytes().startswith(b"%PDF")
 
 
