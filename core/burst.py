@@ -18,8 +18,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from core.bounds import MAX_RESONANT_SPEEDS
+from core.scoring import Cancelled
 
 START_ANGLES = 720
+#: frame angles evaluated at once (speeds x start angles x frames): bounds memory to a few tens of MB
+CHUNK_EVALUATIONS = 2_000_000
 
 
 @dataclass(frozen=True)
@@ -53,6 +56,7 @@ def burst_success(
     rolling_radius_m: np.ndarray,
     wheel_ids=None,
     start_angles: int = START_ANGLES,
+    cancel=None,
 ) -> BurstResult:
     """P(at least one of ``frames`` frames >= threshold) per wheel and speed.
 
@@ -65,6 +69,8 @@ def burst_success(
     interval_s : frame spacing dt, s
     speeds_mps : (V,) vehicle speeds, m/s
     rolling_radius_m : (W,) rolling radius per wheel, m
+    cancel : optional callable checked between chunks of speeds; when it returns True the
+        computation raises core.scoring.Cancelled
     """
     lv = np.atleast_2d(np.asarray(levels_dbm, float))
     W = lv.shape[0]
@@ -80,9 +86,14 @@ def burst_success(
         ok0 = _periodic_interp(lv[w], angles_rad, th0) >= threshold_dbm
         parked[w] = ok0.mean()
         step = speeds * interval_s / radius[w]  # (V,) rad between frames
-        ang = th0[None, :, None] + step[:, None, None] * k[None, None, :]  # (V, T, K)
-        ok = _periodic_interp(lv[w], angles_rad, ang.reshape(-1)).reshape(ang.shape) >= threshold_dbm
-        success[w] = ok.any(axis=2).mean(axis=1)
+        per = max(1, CHUNK_EVALUATIONS // (len(th0) * frames))
+        for a in range(0, len(speeds), per):
+            if cancel is not None and cancel():
+                raise Cancelled()
+            sl = slice(a, a + per)
+            ang = th0[None, :, None] + step[sl, None, None] * k[None, None, :]  # (v, T, K)
+            ok = _periodic_interp(lv[w], angles_rad, ang.reshape(-1)).reshape(ang.shape) >= threshold_dbm
+            success[w, sl] = ok.any(axis=2).mean(axis=1)
         period = 2 * np.pi * radius[w] / interval_s
         lo, hi = (speeds.min(), speeds.max()) if len(speeds) else (0.0, 0.0)
         n_lo, n_hi = max(1, int(np.ceil(lo / period))), int(np.floor(hi / period))
@@ -99,7 +110,7 @@ def speed_sweep(speed_min_mps: float, speed_max_mps: float, step_mps: float = 0.
     return np.linspace(speed_min_mps, speed_max_mps, n)
 
 
-def burst_for_spot(scene, scores, spot_index: int) -> BurstResult:
+def burst_for_spot(scene, scores, spot_index: int, cancel=None) -> BurstResult:
     """Burst success of one scored spot with the scene's radio setup (threshold = sensitivity)."""
     r = scene.vehicle.radio
     return burst_success(
@@ -111,4 +122,5 @@ def burst_for_spot(scene, scores, spot_index: int) -> BurstResult:
         speed_sweep(r.speed_min_mps, r.speed_max_mps),
         np.array([w.rolling_radius_m for w in scene.wheels]),
         scene.wheel_ids,
+        cancel=cancel,
     )

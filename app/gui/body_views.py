@@ -8,8 +8,9 @@ they redraw from the document's signals. A spot's x is shared by both views.
 
 from __future__ import annotations
 
+import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
+from PySide6.QtCore import QPointF, QRectF, Qt, Signal
 from PySide6.QtGui import QBrush, QPen, QPolygonF
 from PySide6.QtWidgets import (
     QGraphicsEllipseItem,
@@ -23,9 +24,12 @@ from PySide6.QtWidgets import (
 
 from app.gui import edits
 from app.gui.document import Document
-from app.gui.look import BODY_COLOUR, material_colour
+from app.gui.look import BODY_COLOUR, lock_aspect, material_colour
+from app.gui.tasks import run_soon
 from core.placement import INSIDE, NEAR_SURFACE, classify
 
+#: above this many spots a view draws them as one scatter item, with a marker for the selected one only
+MAX_SPOT_MARKERS = 40
 SPOT_BRUSH = pg.mkBrush(255, 255, 255, 220)
 SPOT_PEN = pg.mkPen(20, 20, 20, width=1.5)
 SELECTED_BRUSH = pg.mkBrush(250, 200, 40, 255)
@@ -47,6 +51,12 @@ def _on_white(c, alpha: float):
     from PySide6.QtGui import QColor
 
     return QColor(*(round(255 + alpha * (ch - 255)) for ch in (c.red(), c.green(), c.blue())))
+
+
+def _only_spots_moved(a, b) -> bool:
+    """True when vehicles ``a`` and ``b`` differ at most in where their spots are (same names, same order)."""
+    return ([s.name for s in a.spots] == [s.name for s in b.spots]
+            and a.model_copy(update={"spots": ()}) == b.model_copy(update={"spots": ()}))
 
 
 class SpotMarker(pg.TargetItem):
@@ -86,6 +96,8 @@ class BodyView(QWidget):
         self._rebuild_pending = False
         self.markers: dict[str, SpotMarker] = {}
         self.placement: dict[str, tuple[str, str]] = {}  # spot name -> (core.placement status, warning)
+        self.spot_cloud: pg.ScatterPlotItem | None = None
+        self._drawn = None  # the vehicle the editable items were built from
         self.body_roi: pg.PolyLineROI | None = None
         self.zone_roi: pg.PolyLineROI | None = None
         self.region_roi: pg.PolyLineROI | None = None
@@ -93,7 +105,7 @@ class BodyView(QWidget):
         self._items: list = []
 
         self.plot = pg.PlotWidget(background="w")
-        self.plot.setAspectLocked(True)
+        lock_aspect(self.plot)
         self.plot.showGrid(x=True, y=True, alpha=0.25)
         vert = "y, left" if view == "top" else "z, up"
         for side, text in (("bottom", "x, forward"), ("left", vert)):
@@ -145,17 +157,29 @@ class BodyView(QWidget):
 
     # ----- redraw ----------------------------------------------------------------------
     def _on_vehicle_changed(self) -> None:
+        v = self.doc.vehicle
+        drawn, self._drawn = self._drawn, v
+        if drawn is not None and v is not drawn and _only_spots_moved(drawn, v) and self._place_markers():
+            return  # a spot moved: its markers moved, nothing else needs drawing again
         self._place_markers()
-        self.schedule_rebuild()
+        self.schedule_rebuild()  # also when the vehicle is the one drawn: an edit was refused, undo the drag
 
     def schedule_rebuild(self) -> None:
         """Rebuild the editable items after the current event (an item may be handling a mouse event now)."""
         if not self._rebuild_pending:
             self._rebuild_pending = True
-            QTimer.singleShot(0, self.rebuild)
+            run_soon(self, self._rebuild_if_pending)
+
+    def _rebuild_if_pending(self) -> None:
+        try:
+            if self._rebuild_pending:
+                self.rebuild()
+        except RuntimeError:  # the view was destroyed while its redraw waited
+            pass
 
     def rebuild(self) -> None:
         self._rebuild_pending = False
+        self._drawn = self.doc.vehicle
         self._sync = True
         try:
             pi = self.plot.getPlotItem()
@@ -163,6 +187,7 @@ class BodyView(QWidget):
                 pi.removeItem(it)
             self._items = []
             self.markers = {}
+            self.spot_cloud = None
             self.wheel_rois = {}
             v = self.doc.vehicle
             self._draw_zones(v)
@@ -264,6 +289,9 @@ class BodyView(QWidget):
         sc = self.doc.scores
         pl = classify(self.doc.scene, sc.positions)
         self.placement = {name: (pl.status[i], pl.message(i)) for i, name in enumerate(sc.names)}
+        if len(sc.names) > MAX_SPOT_MARKERS:
+            self._draw_spot_cloud(sc)
+            return
         for i, name in enumerate(sc.names):
             m = SpotMarker(self.to_view(sc.positions[i]), size=11, symbol="o", movable=True,
                            label=str(i + 1), labelOpts={"offset": (7, -7), "color": (20, 20, 20), "anchor": (0, 1)})
@@ -274,7 +302,44 @@ class BodyView(QWidget):
             self.markers[name] = self._add(m)
         self._restyle_markers(self.doc.selected)
 
+    def _draw_spot_cloud(self, sc) -> None:
+        """Many spots: one scatter item for all of them (click one to select it); only the selected
+        spot is a draggable marker. Hundreds of marker items would take seconds per redraw."""
+        pts = np.array([self.to_view(p) for p in sc.positions]).reshape(-1, 2)
+        cloud = pg.ScatterPlotItem(pts[:, 0], pts[:, 1], data=list(sc.names), size=7, pen=SPOT_PEN, brush=SPOT_BRUSH,
+                                   hoverable=True, tip=lambda x, y, data: f"receiver spot '{data}': click to select")
+        cloud.setZValue(19)
+        cloud.sigClicked.connect(lambda _item, points, _ev: self.doc.select(points[0].data()) if len(points) else None)
+        self.spot_cloud = self._add(cloud)
+        self._selected_marker(self.doc.selected)
+
+    def _selected_marker(self, selected: str) -> None:
+        """Many-spot mode: a draggable marker for the selected spot only."""
+        for name, m in list(self.markers.items()):
+            self.plot.removeItem(m)
+            if m in self._items:
+                self._items.remove(m)
+        self.markers = {}
+        sc = self.doc.scores
+        if not selected or selected not in sc.names:
+            return
+        i = sc.names.index(selected)
+        m = SpotMarker(self.to_view(sc.positions[i]), size=11, symbol="o", movable=True,
+                       label=f"{i + 1} {selected}", labelOpts={"offset": (7, -7), "color": (0, 0, 0), "anchor": (0, 1)})
+        m.setBrush(SELECTED_BRUSH)
+        m.setPen(SELECTED_PEN)
+        m.setZValue(21)
+        m.sigPositionChanged.connect(lambda mk, n=selected: self._spot_dragging(n, mk))
+        m.sigPositionChangeFinished.connect(lambda mk, n=selected: self._spot_dropped(n, mk))
+        m.setToolTip(f"receiver spot '{selected}': drag to move")
+        self.markers[selected] = self._add(m)
+
     def _restyle_markers(self, selected: str) -> None:
+        if self._rebuild_pending:
+            return  # the rebuild draws the selection
+        if len(self.doc.scores.names) > MAX_SPOT_MARKERS:
+            self._selected_marker(selected)
+            return
         for i, (name, m) in enumerate(self.markers.items()):
             self._style_marker(i, name, m, name == selected)
 
@@ -293,17 +358,30 @@ class BodyView(QWidget):
         tip = f"receiver spot '{name}': drag to move, click to select"
         m.setToolTip(f"{tip}\nWarning: {warning}" if warning else tip)
 
-    def _place_markers(self) -> None:
-        """Move the markers to the document's spot positions (no rebuild)."""
+    def _place_markers(self) -> bool:
+        """Move the markers to the document's spot positions (no rebuild); False when the drawn
+        markers are not the document's spots."""
         sc = self.doc.scores
-        if set(sc.names) != set(self.markers):
-            return
+        cloud = len(sc.names) > MAX_SPOT_MARKERS
+        if cloud:
+            if self.spot_cloud is None or len(self.spot_cloud.data) != len(sc.names) or not set(self.markers) <= set(sc.names):
+                return False
+            pts = np.array([self.to_view(p) for p in sc.positions]).reshape(-1, 2)
+            self.spot_cloud.setData(pts[:, 0], pts[:, 1], data=list(sc.names))
+        elif set(sc.names) != set(self.markers):
+            return False
         self._sync = True
         try:
-            for i, name in enumerate(sc.names):
-                self.markers[name].setPos(*self.to_view(sc.positions[i]))
+            for name, m in self.markers.items():
+                m.setPos(*self.to_view(sc.positions[sc.names.index(name)]))
         finally:
             self._sync = False
+        pl = classify(self.doc.scene, sc.positions)  # a moved spot may have left the body (or come back)
+        placement = {name: (pl.status[i], pl.message(i)) for i, name in enumerate(sc.names)}
+        if placement != self.placement:
+            self.placement = placement
+            self._restyle_markers(self.doc.selected)
+        return True
 
     # ----- user edits -> document ------------------------------------------------------
     def _spot_dragging(self, name: str, marker: SpotMarker) -> None:

@@ -77,6 +77,18 @@ def toggle_snap(doc: Document, ui) -> None:
     doc.statusMessage.emit(f"Snap to grid {state}")
 
 
+def delete_wheel(doc: Document, ui) -> None:
+    """Edit > Delete wheel: choose a wheel and remove it (one undo step); the last wheel stays."""
+    v = doc.vehicle
+    if len(v.wheels) == 1:
+        dialogs.refuse(ui, "Delete a wheel", f"Wheel {v.wheels[0].id} is the vehicle's only wheel and cannot be "
+                       "deleted: a vehicle needs at least one wheel. Add another wheel to the file first.")
+        return
+    wid = dialogs.ask_wheel(ui, "Delete a wheel", [w.id for w in v.wheels])
+    if wid:
+        doc.apply(lambda vv: edits.delete_wheel(vv, wid), f"Delete wheel {wid}")
+
+
 # ----- spots -------------------------------------------------------------------------
 def add_spot(doc: Document, ui) -> None:
     """Add a spot at the centre of the mounting region (or of the body) and select it."""
@@ -137,10 +149,11 @@ def cancel_heatmap(doc: Document, ui) -> None:
 
 # ----- help --------------------------------------------------------------------------
 def export_report(doc: Document, ui) -> None:
-    """File > Export report: the placement report of the document as it stands (saved file or edits)."""
-    from app.report.pdf import export_report_dialog
+    """File > Export report: the placement report of the document as it stands (saved file or edits),
+    computed in a worker while the window stays usable."""
+    from app.gui.report_export import export_report
 
-    export_report_dialog(ui, doc.path if doc.path and doc.undo_stack.isClean() else doc.vehicle)
+    ui.report_export = export_report(ui, doc.path if doc.path and doc.undo_stack.isClean() else doc.vehicle)
 
 
 def compare_bodies(doc: Document, ui) -> None:
@@ -171,6 +184,7 @@ COMMANDS: tuple[Command, ...] = (
     Command("&File", "&Quit", quit_program, "Ctrl+Q", "Close the program"),
     Command("&Edit", "&Undo", undo, "Ctrl+Z", "Undo the last edit", enabled_when="undo"),
     Command("&Edit", "&Redo", redo, "Ctrl+Shift+Z", "Redo the edit undone last", enabled_when="redo"),
+    Command("&Edit", "Delete &wheel...", delete_wheel, "", "Remove one wheel of the vehicle (undoable)"),
     Command("&Edit", "Snap to &grid", toggle_snap, "Ctrl+G", f"Round dragged positions to {SNAP_GRID_M * 1000:.0f} mm",
             checkable=True),
     Command("&Spots", "&Add spot...", add_spot, "Ctrl+Shift+A", "Add a receiver spot at the centre of the mounting region"),

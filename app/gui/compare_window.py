@@ -10,9 +10,9 @@ position is drawn as a square marker in every top view.
 
 from __future__ import annotations
 
-
 import numpy as np
-from PySide6.QtCore import QRectF, QSize, Qt, QThread, Signal
+from core.samples import SAMPLES_DIR
+from PySide6.QtCore import QRectF, QSize, Qt, Signal
 from PySide6.QtGui import QAction, QBrush, QColor, QFont, QPainter
 from PySide6.QtWidgets import (
     QComboBox,
@@ -30,10 +30,10 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from app.gui.tasks import Task
 from app.report import figures as fig
 from app.report.compare import body_labels, describe_position
 from core.compare import LANDMARKS, CommonSearch, Comparison, NoSharedRegion, compare_bodies, search_common_position
-from core.samples import SAMPLES_DIR
 from core.scoring import Scene
 from core.vehicle import Vehicle, VehicleFileError, load_vehicle
 
@@ -72,20 +72,17 @@ class BodyThumb(QWidget):
         p.end()
 
 
-class _SearchWorker(QThread):
-    done = Signal(object, str)
+def _search_task(vehicles, scenes, landmark) -> Task:
+    """The shared-region search in a worker (``core.compare.search_common_position``); its result is
+    the CommonSearch, or the NoSharedRegion message as a string."""
 
-    def __init__(self, vehicles, scenes, landmark, parent=None):
-        super().__init__(parent)
-        self.args = (vehicles, landmark, scenes)
-
-    def run(self):
-        vehicles, landmark, scenes = self.args
+    def run(progress, _cancel):
         try:
-            r = search_common_position(vehicles, landmark, 0.10, None, scenes)
-            self.done.emit(r, "")
+            return search_common_position(vehicles, landmark, 0.10, None, scenes, progress=progress)
         except NoSharedRegion as e:
-            self.done.emit(None, str(e))
+            return str(e)
+
+    return Task(run, "shared-position search")
 
 
 class CompareWindow(QMainWindow):
@@ -104,7 +101,7 @@ class CompareWindow(QMainWindow):
         self.comparison: Comparison | None = None
         self.search: CommonSearch | None = None
         self.errors: list[str] = []
-        self._worker: _SearchWorker | None = None
+        self._worker: Task | None = None
         self._selected = -1
         self._search_error = ""
 
@@ -194,12 +191,20 @@ class CompareWindow(QMainWindow):
             box.setWindowModality(Qt.WindowModality.NonModal)
             box.show()
         self.search = None
+        self._drop_search()
         self.recompute()
 
     def clear(self):
         self.paths, self.vehicles, self.scenes = [], [], []
         self.comparison, self.search, self._selected = None, None, -1
+        self._drop_search()
         self.recompute()
+
+    def _drop_search(self):
+        """A search of other bodies is still running: ask it to stop and ignore its result."""
+        if self._worker is not None:
+            self._worker.cancel()
+            self._worker = None
 
     # ----- computing ----------------------------------------------------------------------------
     def recompute(self):
@@ -214,14 +219,17 @@ class CompareWindow(QMainWindow):
         if len(self.vehicles) < 1 or self._worker is not None:
             return
         self.statusBar().showMessage("Searching the shared mounting region...")
-        self._worker = _SearchWorker(self.vehicles, self.scenes, self.landmark.currentText(), self)
+        self._worker = _search_task(self.vehicles, self.scenes, self.landmark.currentText())
         self._worker.done.connect(self._search_done)
+        self._worker.failed.connect(lambda task, msg: self._search_done(task, f"search failed: {msg}"))
         self._worker.start()
         self._update_actions()
 
-    def _search_done(self, result, error):
-        self._worker.wait()
+    def _search_done(self, task, result):
+        if task is not self._worker:
+            return  # the bodies changed or the window closed while it ran
         self._worker = None
+        result, error = (None, result) if isinstance(result, str) else (result, "")
         self.search = result
         self.statusBar().showMessage(error or "Search finished", 10000)
         self._search_error = error
@@ -344,8 +352,7 @@ class CompareWindow(QMainWindow):
         return n
 
     def closeEvent(self, event):
-        if self._worker is not None:
-            self._worker.wait()
+        self._drop_search()  # nothing waits for it: it finishes unseen and is cleaned up
         super().closeEvent(event)
 
 

@@ -1,9 +1,11 @@
-"""Dialogs: bad file, unsaved changes, spot name and antenna axis, recovery offer, about box, help."""
+"""Dialogs: bad file, save error, unsaved changes, spot name and antenna axis, wheel choice, recovery
+offer, about box, help."""
 
 from __future__ import annotations
 
 from pathlib import Path
 
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (
     QComboBox,
     QDialog,
@@ -12,6 +14,9 @@ from PySide6.QtWidgets import (
     QFormLayout,
     QHBoxLayout,
     QInputDialog,
+    QLabel,
+    QListWidget,
+    QListWidgetItem,
     QMessageBox,
     QTextBrowser,
     QVBoxLayout,
@@ -55,8 +60,21 @@ def show_file_error(parent: QWidget | None, err: VehicleFileError) -> None:
     QMessageBox.critical(parent, "Cannot open the vehicle file", file_error_text(err))
 
 
-def show_save_error(parent: QWidget | None, text: str) -> None:
-    QMessageBox.critical(parent, "Cannot save the vehicle file", text)
+def save_error_text(target, err: Exception) -> str:
+    """The message of a failed save: the file the user chose (never the temporary file beside it)
+    and the problem, without the temporary file's name."""
+    if isinstance(err, VehicleFileError):
+        problem = str(err)
+    elif isinstance(err, OSError) and err.strerror:
+        problem = err.strerror
+    else:
+        problem = str(err)
+    return (f"File: {target}\nProblem: {problem}\n\n"
+            "Nothing was written: the file on disk (if there is one) is unchanged and your edits are still open.")
+
+
+def show_save_error(parent: QWidget | None, target, err: Exception) -> None:
+    QMessageBox.critical(parent, "Cannot save the vehicle file", save_error_text(target, err))
 
 
 def ask_unsaved(parent: QWidget | None, name: str) -> str:
@@ -67,19 +85,68 @@ def ask_unsaved(parent: QWidget | None, name: str) -> str:
     return {B.Save: "save", B.Discard: "discard"}.get(r, "cancel")
 
 
-def ask_recover(parent: QWidget | None, when: str, original: str) -> bool:
-    B = QMessageBox.StandardButton
-    r = QMessageBox.question(
-        parent, "Recover unsaved work",
-        f"Wheelreach was not closed normally. A recovery copy of {original or 'an untitled vehicle'} "
-        f"from {when} exists.\n\nOpen the recovery copy?", B.Yes | B.No, B.Yes)
-    return r == B.Yes
+class RecoveryDialog(QDialog):
+    """Unsaved work of windows that did not close normally: open, discard or keep each copy."""
+
+    def __init__(self, parent: QWidget | None, orphans):
+        super().__init__(parent)
+        self.setWindowTitle("Recover unsaved work")
+        self.choice = "later"
+        lay = QVBoxLayout(self)
+        lay.addWidget(QLabel("Wheelreach windows closed without saving left these recovery copies.\n"
+                             "Tick the copies to open or to discard; the others are offered again next time."))
+        self.list = QListWidget()
+        for o in orphans:
+            text = f"{o.title}: unsaved work of {o.saved_at}\n    {o.original_path or 'never saved to a file'}"
+            if o.problem:
+                text += f"\n    cannot be opened: {o.problem}"
+            item = QListWidgetItem(text)
+            item.setToolTip(f"recovery copy {o.path}")
+            item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
+            item.setCheckState(Qt.CheckState.Unchecked if o.problem else Qt.CheckState.Checked)
+            self.list.addItem(item)
+        self.list.setMinimumWidth(720)
+        self.list.setWordWrap(True)
+        lay.addWidget(self.list)
+        bb = QDialogButtonBox()
+        self.open_button = bb.addButton("Open ticked", QDialogButtonBox.ButtonRole.AcceptRole)
+        self.discard_button = bb.addButton("Discard ticked", QDialogButtonBox.ButtonRole.DestructiveRole)
+        self.later_button = bb.addButton("Decide later", QDialogButtonBox.ButtonRole.RejectRole)
+        self.open_button.setDefault(True)
+        self.open_button.clicked.connect(lambda: self._finish("open"))
+        self.discard_button.clicked.connect(lambda: self._finish("discard"))
+        self.later_button.clicked.connect(lambda: self._finish("later"))
+        lay.addWidget(bb)
+
+    def _finish(self, choice: str) -> None:
+        self.choice = choice
+        self.accept() if choice != "later" else self.reject()
+
+    def ticked(self) -> list[int]:
+        return [i for i in range(self.list.count()) if self.list.item(i).checkState() == Qt.CheckState.Checked]
+
+
+def ask_recover(parent: QWidget | None, orphans) -> tuple[str, list[int]]:
+    """('open' | 'discard' | 'later', indices of the ticked copies)."""
+    dlg = RecoveryDialog(parent, orphans)
+    dlg.exec()
+    return dlg.choice, dlg.ticked()
 
 
 def ask_spot_name(parent: QWidget | None, title: str, current: str) -> str | None:
     text, ok = QInputDialog.getText(parent, title, "Spot name:", text=current)
     text = text.strip()
     return text if ok and text else None
+
+
+def ask_wheel(parent: QWidget | None, title: str, wheel_ids) -> str | None:
+    """Choose one wheel by its id (None when cancelled)."""
+    text, ok = QInputDialog.getItem(parent, title, "Wheel:", list(wheel_ids), 0, False)
+    return text if ok and text else None
+
+
+def refuse(parent: QWidget | None, title: str, text: str) -> None:
+    QMessageBox.information(parent, title, text)
 
 
 class AxisDialog(QDialog):

@@ -9,7 +9,10 @@ from __future__ import annotations
 
 from typing import Any
 
-from core.vehicle import Vehicle, vehicle_from_dict, vehicle_to_dict
+from core.vehicle import Vehicle, VehicleFileError, vehicle_from_dict, vehicle_to_dict
+
+#: positions closer than this are the same position (floating-point noise of landmark offsets), m
+SAME_POSITION_M = 1e-9
 
 
 def snap(value: float, grid_m: float | None) -> float:
@@ -33,11 +36,15 @@ def spot_index(v: Vehicle, name: str) -> int:
 def move_spot(v: Vehicle, name: str, pos: tuple[float, float, float]) -> Vehicle:
     """Place spot ``name`` at the resolved position ``pos`` (x, y, z) in vehicle axes, m.
 
-    The spot keeps its landmarks (``x_from``, ``z_from``): the stored offsets are adjusted."""
+    The spot keeps its landmarks (``x_from``, ``z_from``): the stored offsets are adjusted. A move
+    to where the spot already is returns ``v`` itself (no rounding noise in the stored offsets, so
+    no undo step that changes nothing)."""
     i = spot_index(v, name)
     s = v.spots[i]
-    d = vehicle_to_dict(v)
     x, y, z = (float(c) for c in pos)
+    if all(abs(a - b) <= SAME_POSITION_M for a, b in zip((x, y, z), v.resolve_spot(s))):
+        return v
+    d = vehicle_to_dict(v)
     d["spots"][i]["x_m"] = x - v.landmark_x(s.x_from)
     d["spots"][i]["y_m"] = y
     d["spots"][i]["z_m"] = z - (v.floor_height_at(x) if s.z_from == "floor" else 0.0)
@@ -83,6 +90,18 @@ def set_spot_axis(v: Vehicle, name: str, axis) -> Vehicle:
         d["spots"][i].pop("axis", None)
     else:
         d["spots"][i]["axis"] = [float(a) for a in axis]
+    return _rebuild(d)
+
+
+def delete_wheel(v: Vehicle, wheel_id: str) -> Vehicle:
+    """Remove the wheel ``wheel_id``; the last wheel of a vehicle cannot be removed."""
+    ids = [w.id for w in v.wheels]
+    if wheel_id not in ids:
+        raise KeyError(f"no wheel {wheel_id!r}")
+    if len(ids) == 1:
+        raise VehicleFileError(f"{wheel_id} is the only wheel; a vehicle needs at least one", "wheels")
+    d = vehicle_to_dict(v)
+    del d["wheels"][ids.index(wheel_id)]
     return _rebuild(d)
 
 

@@ -46,3 +46,15 @@ def wheel_colour(i: int) -> QColor:
 
 def margin_colormap() -> pg.ColorMap:
     return pg.colormap.get(MARGIN_MAP)
+
+
+def lock_aspect(plot: pg.PlotWidget) -> None:
+    """Draw ``plot`` at one scale on both axes, with a left axis that may widen but never narrows.
+
+    With the aspect locked, the height of the view in metres follows its width in pixels. A left
+    axis that narrows and widens with its tick labels changes that width, hence the range, hence
+    the labels: the view can repaint for ever (the pickup at 1600x1000 did, both linked views
+    swapping between two ranges about 13 times a second). A width that only grows settles after a
+    few steps, since the labels' width is bounded."""
+    plot.setAspectLocked(True)
+    plot.getAxis("left").setStyle(autoReduceTextSpace=False)

@@ -32,15 +32,18 @@ from PySide6.QtWidgets import (
 from app.gui import edits
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
-from app.gui.look import BODY_COLOUR, margin_colormap, wheel_colour
+from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, wheel_colour
+from app.gui.tasks import Task, run_soon
 from app.heatmap_contour import polylines_for_plot, zero_contour
 from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
 from core.placement import INSIDE, NEAR_SURFACE, classify
-from core.scoring import EXCLUDED_CELL_NAMES
 from core.regulatory import check_sensor_eirp
+from core.scoring import EXCLUDED_CELL_NAMES
 
 KMH_PER_MPS = 3.6
+#: speeds where the frames repeat drawn in the burst figure, over all wheels (the title says when more exist)
+MAX_REPEAT_MARKERS = 48
 STEPS_MM = (25, 50, 100, 200)
 
 
@@ -93,7 +96,7 @@ class HeatmapPanel(QWidget):
         lay.addLayout(row)
 
         self.plot = _plot("Margin over the mounting region", "x, forward", "y, left", "m", "m")
-        self.plot.setAspectLocked(True)
+        lock_aspect(self.plot)
         self.image = pg.ImageItem(axisOrder="col-major")
         self.image.setZValue(-10)
         self.plot.addItem(self.image)
@@ -122,6 +125,7 @@ class HeatmapPanel(QWidget):
         self._debounce.timeout.connect(self.start)
         doc.vehicleChanged.connect(self._vehicle_changed)
         doc.regionSelectionChanged.connect(lambda _i: self._vehicle_changed())
+        doc.documentReplaced.connect(self._document_replaced)
         self.plot.scene().sigMouseMoved.connect(self._hover)
         self.plot.scene().sigMouseClicked.connect(self._clicked)
         self._draw_context()
@@ -132,17 +136,21 @@ class HeatmapPanel(QWidget):
         return v.regions[self.doc.region_index] if v.regions else None
 
     def start(self) -> None:
-        """Start (or restart) the heatmap of the current region in the worker thread."""
+        """Start (or restart) the heatmap of the current region in a worker thread.
+
+        A run still going is asked to stop and dropped: its result, if it still comes, is ignored.
+        Nothing waits for its thread."""
         region = self.region()
+        self._drop_job()
         if region is None:
-            self.readout.setText("This vehicle has no mounting region: add one to the file to get a heatmap.")
+            self._ended("This vehicle has no mounting region: add one to the file to get a heatmap.")
             return
-        self.cancel(wait=True)
-        job = HeatmapJob(self.doc.scene, region, float(self.step.currentData()), parent=self)
+        job = HeatmapJob(self.doc.scene, region, float(self.step.currentData()))
         job.progress.connect(self._progress)
         job.done.connect(self._done)
-        job.cancelled.connect(lambda: self._ended("Heatmap cancelled."))
-        job.failed.connect(lambda msg: self._ended(f"Heatmap failed: {msg}"))
+        job.cancelled.connect(self._cancelled)
+        job.failed.connect(self._failed)
+        job.ended.connect(self._job_ended)
         self.job = job
         self.progress.setValue(0)
         self.compute.setEnabled(False)
@@ -150,24 +158,66 @@ class HeatmapPanel(QWidget):
         self.readout.setText(f"Computing the margin over '{region.name}'...")
         job.start()
 
-    def cancel(self, wait: bool = False) -> None:
-        if self.job is not None and self.job.is_running():
+    def cancel(self) -> None:
+        """Ask the running heatmap to stop (returns at once; the panel says so when it has stopped)."""
+        if self.job is not None and not self.job.cancel_requested():
             self.job.cancel()
-            if wait:
-                self.job.wait()
+            self.cancel_button.setEnabled(False)
+            self.readout.setText("Cancelling the heatmap...")
+
+    def _drop_job(self) -> None:
+        """Stop listening to the current run and ask it to stop."""
+        job, self.job = self.job, None
+        if job is not None:
+            job.cancel()
+
+    def abandon(self) -> None:
+        """Drop the running heatmap without waiting (the window closes or shows another document)."""
+        if self.job is not None:
+            self._drop_job()
+            self._ended("Heatmap stopped.")
+        self._debounce.stop()
+
+    def _document_replaced(self) -> None:
+        self.abandon()
+        self.result = None
+        self.image.clear()
+        self.iso.setData(None)
+        self._draw_context()
+        if self.auto.isChecked():
+            self._debounce.start()
 
     def is_running(self) -> bool:
-        return self.job is not None and self.job.is_running()
+        return self.job is not None
 
-    def _progress(self, done: int, total: int) -> None:
-        self.progress.setValue(int(100 * done / max(1, total)))
+    def _progress(self, job, done: int, total: int) -> None:
+        if job is self.job:
+            self.progress.setValue(int(100 * done / max(1, total)))
 
     def _ended(self, text: str) -> None:
         self.compute.setEnabled(True)
         self.cancel_button.setEnabled(False)
         self.readout.setText(text)
 
-    def _done(self, hm) -> None:
+    def _cancelled(self, job) -> None:
+        if job is self.job:
+            self.job = None
+            self._ended("Heatmap cancelled.")
+
+    def _failed(self, job, msg: str) -> None:
+        if job is self.job:
+            self.job = None
+            self._ended(f"Heatmap failed: {msg}")
+
+    def _job_ended(self, job) -> None:
+        if job is self.job:  # the thread stopped without a result (should not happen): leave a usable state
+            self.job = None
+            self._ended("Heatmap stopped.")
+
+    def _done(self, job, hm) -> None:
+        if job is not self.job:
+            return  # a run that was superseded or belongs to a vehicle no longer shown
+        self.job = None
         self._ended(self._summary(hm))
         self.progress.setValue(100)
         self.result = hm
@@ -355,16 +405,23 @@ class SpotTable(QTableWidget):
             self.horizontalHeaderItem(3).setText("margin dB (at ceiling)" if check.over_ceiling else "margin dB")
             self.setColumnWidth(3, 150 if check.over_ceiling else 78)
             self.setRowCount(len(order))
+            pending = self.doc.pending
             for rank, i in enumerate(order):
                 w = int(sc.worst_wheel[i])
                 m = float(sc.margin_db[i])
-                mt = f"{m:+.1f} ({float(check.margin_at_ceiling_db(m)):+.1f})" if check.over_ceiling else f"{m:+.1f}"
-                cells = (str(rank + 1), str(i + 1), sc.names[i], mt, sc.wheel_ids[w], f"{sc.worst_angle_deg[i, w]:.0f}")
+                if pending[i]:  # scored in the background: no numbers yet (pending rows sort last)
+                    cells = ("", str(i + 1), sc.names[i], "...", "", "")
+                else:
+                    mt = f"{m:+.1f} ({float(check.margin_at_ceiling_db(m)):+.1f})" if check.over_ceiling else f"{m:+.1f}"
+                    cells = (str(rank + 1), str(i + 1), sc.names[i], mt, sc.wheel_ids[w],
+                             f"{sc.worst_angle_deg[i, w]:.0f}")
                 for c, text in enumerate(cells):
                     item = QTableWidgetItem(text)
                     if c in (0, 1, 3, 5):
                         item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-                    if c == 3:
+                    if c == 3 and pending[i]:
+                        item.setToolTip("being scored in the background")
+                    elif c == 3:
                         col = self._cmap.map(np.clip((m + 20.0) / 40.0, 0, 1), mode="qcolor")
                         col.setAlpha(150)
                         item.setBackground(col)
@@ -418,6 +475,8 @@ class SpotTable(QTableWidget):
 class SpotFigures(QWidget):
     """For the selected spot: level over the turn per wheel, burst success vs speed, wheel separation."""
 
+    burstReady = Signal(object)  # the BurstResult drawn
+
     def __init__(self, doc: Document, parent: QWidget | None = None):
         super().__init__(parent)
         self.doc = doc
@@ -443,8 +502,10 @@ class SpotFigures(QWidget):
         lay.addWidget(split)
         self.burst_result = None
         self.distinctness = None
-        doc.scoresReady.connect(self.refresh)
-        doc.selectionChanged.connect(lambda _n: self.refresh())
+        self._burst_task: Task | None = None
+        self._refresh_pending = False  # scores and selection often change together: draw once
+        doc.scoresReady.connect(self.schedule_refresh)
+        doc.selectionChanged.connect(lambda _n: self.schedule_refresh())
         doc.liveScore.connect(self._live)
         self.refresh()
 
@@ -454,17 +515,75 @@ class SpotFigures(QWidget):
             return None
         return sc.names.index(self.doc.selected)
 
+    def schedule_refresh(self) -> None:
+        """Redraw on a coming turn of the event loop (after the views, one redraw per turn)."""
+        if not self._refresh_pending:
+            self._refresh_pending = True
+            run_soon(self, self._refresh_if_pending)
+
+    def _refresh_if_pending(self) -> None:
+        try:
+            if self._refresh_pending:
+                self.refresh()
+        except RuntimeError:  # destroyed while the redraw waited
+            pass
+
     def refresh(self) -> None:
+        self._refresh_pending = False
         i = self._row()
         for p in (self.levels, self.burst, self.separation):
             p.clear()
+        self._drop_burst()
+        self.burst_result = None
         if i is None:
             self.levels.setTitle("Level over the wheel turn (select a spot)", size="9pt")
             return
+        if self.doc.pending[i]:
+            self.separation.getAxis("bottom").setTicks(None)
+            self.levels.setTitle(f"{self.doc.selected}: being scored in the background...", size="9pt")
+            self.burst.setTitle("Burst success vs speed", size="8pt")
+            self.separation.setTitle("Wheel separation by signal strength", size="8pt")
+            return
         sc = self.doc.scores
         self._draw_levels(sc, i, self.doc.selected)
-        self._draw_burst(sc, i)
+        self._start_burst(sc, i)
         self._draw_separation(sc, i)
+
+    def _start_burst(self, sc, i: int) -> None:
+        """Burst success of spot row ``i`` in a worker (up to 16 wheels x 400 speeds x 720 start angles
+        x 100 frames inside the file limits); drawn when it arrives unless the figure moved on."""
+        scene = self.doc.scene
+        task = Task(lambda _p, cancel: burst_for_spot(scene, sc, i, cancel=cancel), "burst success")
+        task.done.connect(self._burst_done)
+        task.failed.connect(self._burst_failed)
+        self._burst_task = task
+        self.burst.setTitle("Burst success vs speed: computing...", size="8pt")
+        task.start()
+
+    def burst_pending(self) -> bool:
+        """True while the figures wait for a redraw or the burst figure for its worker."""
+        return self._burst_task is not None or self._refresh_pending
+
+    def _drop_burst(self) -> None:
+        task, self._burst_task = self._burst_task, None
+        if task is not None:
+            task.cancel()
+
+    def abandon(self) -> None:
+        """Drop the burst computation without waiting (the window closes)."""
+        self._refresh_pending = False
+        self._drop_burst()
+
+    def _burst_done(self, task, r) -> None:
+        if task is self._burst_task:
+            self._burst_task = None
+            self._draw_burst(r)
+            self.burstReady.emit(r)
+
+    def _burst_failed(self, task, msg: str) -> None:
+        if task is self._burst_task:
+            self._burst_task = None
+            self.burst.setTitle(f"Burst success: failed ({msg})", size="8pt")
 
     def _live(self, name: str, sc) -> None:
         if name == self.doc.selected:
@@ -499,24 +618,35 @@ class SpotFigures(QWidget):
         p.setTitle(f"{title}: margin {m:+.1f} dB, worst wheel {sc.wheel_ids[ww]} at {sc.worst_angle_deg[i, ww]:.0f} deg",
                    size="9pt")
 
-    def _draw_burst(self, sc, i: int) -> None:
+    def _draw_burst(self, r) -> None:
         p = self.burst
-        r = burst_for_spot(self.doc.scene, sc, i)
+        p.clear()
         self.burst_result = r
         kmh = r.speeds_mps * KMH_PER_MPS
+        per_wheel = max(2, MAX_REPEAT_MARKERS // max(1, len(r.wheel_ids)))
+        drawn = total = 0
         for w, wid in enumerate(r.wheel_ids):
             col = wheel_colour(w)
             p.plot(kmh, 100 * r.success[w], pen=pg.mkPen(col, width=1.8), name=wid)
             p.plot([0.0], [100 * r.parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
-            for vr in r.resonant_mps[w]:
+            rs = np.asarray(r.resonant_mps[w])
+            counts = getattr(r, "resonant_count", ())  # core may list only the lowest ones and count them all
+            total += int(counts[w]) if len(counts) > w else len(rs)
+            drawn += min(len(rs), per_wheel)
+            if len(rs):  # one item per wheel: vertical dotted segments at the lowest repeat speeds
+                xs = np.repeat(rs[:per_wheel] * KMH_PER_MPS, 2)
+                ys = np.tile([0.0, 100.0], len(xs) // 2)
                 c = QColor(col)
                 c.setAlpha(110)
-                p.addItem(pg.InfiniteLine(vr * KMH_PER_MPS, angle=90, pen=pg.mkPen(c, width=1, style=Qt.PenStyle.DotLine)))
+                p.plot(xs, ys, connect="pairs", pen=pg.mkPen(c, width=1, style=Qt.PenStyle.DotLine))
         wi, vi = r.worst()
         rad = self.doc.vehicle.radio
+        repeat = "dotted: frames repeat"
+        if drawn < total:
+            repeat += f" (lowest {drawn:,} of {total:,} drawn)"
         p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
                    f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
-                   "squares: parked; dotted: frames repeat", size="8pt")
+                   f"squares: parked; {repeat}", size="8pt")
         p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
 
     def _draw_separation(self, sc, i: int) -> None:

@@ -2,22 +2,24 @@
 
 Menus and shortcuts come from ``app.gui.commands.COMMANDS``. Files: recent list in QSettings, samples
 submenu, a clear dialog for a bad file (the document is left untouched), a prompt before closing
-with unsaved changes, and a recovery copy written every two minutes while there are unsaved
-changes, offered on the next start when the program did not close normally.
+with unsaved changes. Each window keeps its own recovery copy of unsaved work (``app.gui.recovery``),
+written two seconds after the last edit; copies left by windows that did not close normally are
+offered at the next start. Long work runs in worker threads (``app.gui.tasks``): opening a file or
+closing the window while a heatmap or the scoring runs is immediate.
 """
 
 from __future__ import annotations
 
-import json
 import time
 from pathlib import Path
 
-from PySide6.QtCore import QSettings, QStandardPaths, Qt, QTimer
+from PySide6.QtCore import QSettings, Qt, QTimer
 from PySide6.QtGui import QAction, QCloseEvent, QKeySequence
 from PySide6.QtWidgets import (
     QDockWidget,
     QLabel,
     QMainWindow,
+    QProgressBar,
     QScrollArea,
     QSplitter,
     QTabWidget,
@@ -29,17 +31,16 @@ from app.gui import commands, dialogs
 from app.gui.body_views import BodyView
 from app.gui.document import Document
 from app.gui.ranking_panel import RankingPanel
+from app.gui.recovery import DEBOUNCE_MS, RecoveryCopy, find_orphans, recovery_dir
 from app.gui.settings_panel import RadioPanel, ZonesPanel
 from core.regulatory import check_sensor_eirp
-from core.vehicle import VehicleFileError, atomic_write_text, vehicle_from_dict, vehicle_to_dict
+from core.vehicle import Vehicle, VehicleFileError
 
-AUTOSAVE_MS = 120_000
 MAX_RECENT = 8
-
-
-def recovery_file() -> Path:
-    base = Path(QStandardPaths.writableLocation(QStandardPaths.StandardLocation.AppDataLocation) or ".")
-    return base / "recovery" / "recovery.json"
+#: a recovery copy is written at the latest this long after the first unsaved edit, even while edits go on, s
+RECOVERY_MAX_DELAY_S = 10.0
+#: windows opened by the program itself (recovered copies), kept alive until they close
+_EXTRA_WINDOWS: list = []
 
 
 class SpotReadout(QLabel):
@@ -63,7 +64,14 @@ class SpotReadout(QLabel):
             self.margin_db = None
             self.setText("No spot selected: click a spot in a view or in the table.")
             return
-        self._show(name, sc, sc.names.index(name), moving=False)
+        i = sc.names.index(name)
+        if self.doc.pending[i]:
+            self.margin_db = None
+            x, y, z = (1000.0 * c for c in sc.positions[i])
+            self.setText(f"<b>{name}</b> &nbsp; x {x:.0f} mm, y {y:.0f} mm, z {z:.0f} mm &nbsp;&nbsp; "
+                         "worst-case margin: being computed (see the progress in the status bar)")
+            return
+        self._show(name, sc, i, moving=False)
 
     def _live(self, name: str, sc) -> None:
         if name == self.doc.selected:
@@ -137,6 +145,12 @@ class MainWindow(QMainWindow):
         self.dock = dock
 
         self.model_label = QLabel()
+        self.work_bar = QProgressBar()
+        self.work_bar.setMaximumWidth(220)
+        self.work_bar.setFormat("scoring spots %p %")
+        self.work_bar.setToolTip("The file's receiver spots are being scored in the background")
+        self.work_bar.hide()
+        self.statusBar().addPermanentWidget(self.work_bar)
         self.statusBar().addPermanentWidget(self.model_label)
         self._build_menus()
 
@@ -148,15 +162,20 @@ class MainWindow(QMainWindow):
         doc.selectionChanged.connect(lambda _n: self._update_enabled())
         doc.undo_stack.canUndoChanged.connect(lambda _b: self._update_enabled())
         doc.undo_stack.canRedoChanged.connect(lambda _b: self._update_enabled())
+        doc.scoringProgress.connect(self._scoring_progress)
         self._update_title()
         self._update_model_label()
         self._update_enabled()
 
-        self.autosave_timer = QTimer(self)
-        self.autosave_timer.setInterval(AUTOSAVE_MS)
-        self.autosave_timer.timeout.connect(self.write_recovery)
-        if autosave:
-            self.autosave_timer.start()
+        # recovery copy of unsaved work, per window (None: off, e.g. for a screenshot)
+        self.recovery: RecoveryCopy | None = RecoveryCopy(recovery_dir(self.settings)) if autosave else None
+        self._unsaved_since: float | None = None
+        self.recovery_timer = QTimer(self)
+        self.recovery_timer.setSingleShot(True)
+        self.recovery_timer.setInterval(DEBOUNCE_MS)
+        self.recovery_timer.timeout.connect(self.write_recovery)
+        doc.undo_stack.indexChanged.connect(self._edited)
+        doc.cleanChanged.connect(self._edited)
         self.resize(1600, 1000)
 
     # ----- menus -----------------------------------------------------------------------
@@ -256,6 +275,14 @@ class MainWindow(QMainWindow):
             f"wheel model: {s.wheel_model_label}  |  road reflection {'on' if s.ground_reflection else 'off'}"
         )
 
+    def _scoring_progress(self, done: int, total: int) -> None:
+        if total <= 0:
+            self.work_bar.hide()
+            return
+        self.work_bar.setRange(0, total)
+        self.work_bar.setValue(done)
+        self.work_bar.show()
+
     def fit_views(self) -> None:
         self.top.plot.autoRange(padding=0.06)
         self.side.plot.autoRange(padding=0.06)
@@ -272,7 +299,9 @@ class MainWindow(QMainWindow):
         return answer == "discard"
 
     def open_path(self, path, confirm: bool = True) -> bool:
-        """Open a vehicle file; a bad file shows its located message and leaves the document untouched."""
+        """Open a vehicle file; a bad file shows its located message and leaves the document untouched.
+
+        Work still running for the old document is dropped at once (nothing waits for it)."""
         if confirm and not self.confirm_discard():
             return False
         try:
@@ -280,7 +309,6 @@ class MainWindow(QMainWindow):
         except VehicleFileError as e:
             dialogs.show_file_error(self, e)
             return False
-        self.ranking.heatmap.cancel(wait=True)
         self.doc.replace(v, path)
         self._add_recent(path)
         self.fit_views()
@@ -291,58 +319,106 @@ class MainWindow(QMainWindow):
         try:
             self.doc.save(path)
         except (OSError, VehicleFileError) as e:
-            dialogs.show_save_error(self, str(e))
+            dialogs.show_save_error(self, path, e)
             return False
         self._add_recent(path)
-        self.remove_recovery()
         self.statusBar().showMessage(f"Saved {path}", 8000)
         return True
 
     # ----- recovery --------------------------------------------------------------------
-    def write_recovery(self) -> Path | None:
-        """Write a recovery copy of unsaved work (atomic); nothing when there are no unsaved changes."""
-        if not self.doc.modified:
-            return None
-        f = recovery_file()
-        f.parent.mkdir(parents=True, exist_ok=True)
-        payload = {"original_path": str(self.doc.path or ""), "saved_at": time.strftime("%Y-%m-%d %H:%M:%S"),
-                   "vehicle": vehicle_to_dict(self.doc.vehicle)}
-        atomic_write_text(f, json.dumps(payload, indent=1))
-        return f
-
-    def remove_recovery(self) -> None:
+    def _edited(self, *_args) -> None:
+        """After every change of the undo stack: schedule this window's recovery copy (debounced)."""
+        if self.recovery is None:
+            return
         try:
-            recovery_file().unlink()
-        except FileNotFoundError:
-            pass
+            modified = self.doc.modified
+        except RuntimeError:  # the document is being destroyed with its window
+            return
+        if not modified:
+            self._unsaved_since = None
+            self.recovery_timer.stop()
+            self.recovery.remove()  # nothing unsaved any more
+            return
+        now = time.monotonic()
+        if self._unsaved_since is None:
+            self._unsaved_since = now
+        if now - self._unsaved_since >= RECOVERY_MAX_DELAY_S:
+            self.write_recovery()  # edits keep coming: do not let the debounce postpone the copy for ever
+        else:
+            self.recovery_timer.start()
+
+    def write_recovery(self) -> Path | None:
+        """Write this window's recovery copy of unsaved work (atomic); remove it when nothing is unsaved."""
+        self.recovery_timer.stop()
+        if self.recovery is None:
+            return None
+        if not self.doc.modified:
+            self.recovery.remove()
+            return None
+        try:
+            path = self.recovery.write(self.doc.vehicle, self.doc.path)
+        except OSError as e:
+            self.statusBar().showMessage(f"The recovery copy could not be written: {e}", 15000)
+            return None
+        self._unsaved_since = time.monotonic()
+        return path
 
     def offer_recovery(self) -> bool:
-        """On start: offer a recovery copy left by a session that did not close normally."""
-        f = recovery_file()
-        if not f.exists():
+        """On start: offer every recovery copy left by a window that did not close normally.
+
+        Ticked copies open (the first in this window when it holds no unsaved work, the others in
+        new windows); declined ones are deleted; the rest stay for the next start. True when a copy
+        was opened."""
+        orphans = find_orphans(recovery_dir(self.settings))
+        if not orphans:
             return False
-        try:
-            payload = json.loads(f.read_text(encoding="utf-8"))
-            v = vehicle_from_dict(payload["vehicle"])
-        except (OSError, ValueError, KeyError, TypeError, VehicleFileError):
-            self.remove_recovery()
-            return False
-        original = payload.get("original_path") or ""
-        if not dialogs.ask_recover(self, payload.get("saved_at", "?"), original):
-            self.remove_recovery()
-            return False
-        self.doc.replace(v, original or None)
+        choice, ticked = dialogs.ask_recover(self, orphans)
+        opened = False
+        for i, o in enumerate(orphans):
+            if i not in ticked or choice == "later":
+                o.release()
+            elif choice == "discard":
+                o.discard()
+            elif o.vehicle is None:
+                dialogs.refuse(self, "Recover unsaved work", f"{o.path} cannot be opened: {o.problem}")
+                o.release()
+            else:
+                win = self if not opened and not self.doc.modified else open_window(o.vehicle, None, self.settings)
+                win.adopt_recovered(o.vehicle, o.original_path)
+                o.discard()  # only now: the window has written its own copy of the work
+                opened = True
+        return opened
+
+    def adopt_recovered(self, v: Vehicle, original_path: str) -> None:
+        """Show recovered work as unsaved changes of ``original_path`` and copy it for recovery at once."""
+        self.doc.replace(v, original_path or None)
         self.doc.undo_stack.resetClean()  # the recovered work is not saved
         self._update_title()
+        self.write_recovery()
         self.statusBar().showMessage("Recovered unsaved work; save it to keep it.", 10000)
-        return True
 
     def closeEvent(self, ev: QCloseEvent) -> None:
         if not self.confirm_discard():
             ev.ignore()
             return
-        self.ranking.heatmap.cancel(wait=True)
-        self.autosave_timer.stop()
-        self.remove_recovery()
+        # nothing waits for a worker: each is asked to stop and finishes its current chunk unseen
+        self.ranking.heatmap.abandon()
+        self.ranking.figures.abandon()
+        self.doc.abandon_work()
+        if getattr(self, "report_export", None) is not None:
+            self.report_export.cancel()
+        self.recovery_timer.stop()
+        if self.recovery is not None:
+            self.recovery.close()  # a clean close: this window's copy is no longer needed
         ev.accept()
 
+
+def open_window(v: Vehicle, path, settings: QSettings | None = None, autosave: bool = True) -> MainWindow:
+    """Open another main window on ``v`` (kept alive until it is closed)."""
+    win = MainWindow(Document(v, path), settings=settings, autosave=autosave)
+    win.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose, True)
+    _EXTRA_WINDOWS.append(win)
+    win.destroyed.connect(lambda _o=None, w=win: _EXTRA_WINDOWS.remove(w) if w in _EXTRA_WINDOWS else None)
+    win.show()
+    win.ranking.heatmap.start()
+    return win

@@ -9,11 +9,11 @@ import json
 
 import numpy as np
 import pytest
+from core.samples import DEFAULT_SAMPLE
 from PySide6.QtCore import QEvent, QPoint, QPointF, Qt
 from PySide6.QtGui import QImage, QMouseEvent
 from PySide6.QtWidgets import QApplication
 
-from core.samples import DEFAULT_SAMPLE
 from core.scoring import Scene, heatmap, score_spots, score_vehicle
 from core.vehicle import check_vehicle, load_vehicle
 
@@ -25,11 +25,20 @@ def _send(widget, kind, pos: QPoint, buttons) -> None:
 
 
 def mouse_drag(plot, start: QPoint, end: QPoint, steps: int = 8) -> None:
-    """Press the left button at ``start``, move in steps to ``end`` and release (viewport pixels)."""
+    """Press the left button at ``start``, move in steps to ``end`` and release (viewport pixels).
+
+    pyqtgraph drops mouse moves that follow the previous one within 1/mouseRateLimit s (10 ms):
+    the moves are spaced wider, or the drag would stop short wherever the moves came too fast."""
+    import time
+
+    import pyqtgraph as pg
+
+    gap_s = 1.5 / max(1.0, float(pg.getConfigOption("mouseRateLimit")))
     vp = plot.viewport()
     _send(vp, QEvent.Type.MouseButtonPress, start, Qt.MouseButton.LeftButton)
     for k in range(1, steps + 1):
         p = start + (end - start) * (k / steps)
+        time.sleep(gap_s)
         _send(vp, QEvent.Type.MouseMove, p, Qt.MouseButton.LeftButton)
         QApplication.processEvents()
     _send(vp, QEvent.Type.MouseButtonRelease, end, Qt.MouseButton.NoButton)
@@ -189,22 +198,39 @@ def test_open_good_file_goes_to_recent_files(window, tmp_path):
     assert "cargo_van.json" in window.windowTitle()
 
 
-def test_recovery_copy_round_trip(window, qtbot, monkeypatch):
+def test_recovery_copy_round_trip(qtbot, settings, monkeypatch):
+    """A window's copy is written after an edit; a later start offers it once that window is gone."""
     import app.gui.dialogs
     from app.gui import edits
+    from app.gui.document import Document
+    from app.gui.recovery import find_orphans, recovery_dir
+    from app.gui.window import MainWindow
 
-    doc = window.doc
+    win = MainWindow(Document(load_vehicle(DEFAULT_SAMPLE), DEFAULT_SAMPLE), settings=settings)
+    qtbot.addWidget(win)
+    win.ranking.heatmap.auto.setChecked(False)
+    doc = win.doc
     name = doc.vehicle.spots[0].name
     doc.apply(lambda v: edits.move_spot(v, name, (-1.0, 0.1, 0.5)), "move")
-    f = window.write_recovery()
-    assert f is not None and f.exists()
+    f = win.write_recovery()
+    assert f is not None and f.exists() and f.parent == recovery_dir(settings)
+    assert find_orphans(recovery_dir(settings)) == []  # its window is open: not an orphan
     edited = doc.vehicle
-    doc.undo_stack.undo()
-    monkeypatch.setattr(app.gui.dialogs, "ask_recover", lambda *a: True)
-    assert window.offer_recovery()
-    assert doc.vehicle == edited and doc.modified
-    window.remove_recovery()
-    assert not f.exists()
+    win.recovery._lock.unlock()  # as if the window's process had died (its lock is gone, the copy stays)
+    win.recovery._lock = None
+
+    other = MainWindow(Document(load_vehicle(DEFAULT_SAMPLE), DEFAULT_SAMPLE), settings=settings)
+    qtbot.addWidget(other)
+    other.ranking.heatmap.auto.setChecked(False)
+    offered = []
+    monkeypatch.setattr(app.gui.dialogs, "ask_recover", lambda _p, orphans: (offered.extend(orphans), ("open", [0]))[1])
+    assert other.offer_recovery()
+    assert [o.title for o in offered] == [DEFAULT_SAMPLE.name]
+    assert other.doc.vehicle == edited and other.doc.modified and other.doc.path == DEFAULT_SAMPLE
+    assert not f.exists()  # adopted: the new window keeps its own copy instead
+    assert other.recovery.exists()
+    other.doc.undo_stack.setClean()
+    doc.undo_stack.setClean()
 
 
 def test_screenshot_writes_png(tmp_path):
