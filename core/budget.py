@@ -65,10 +65,14 @@ class Term:
     label: str
     value_db: float
     note: str = ""
+    part: str = ""  # for a panel: which part of the body ("zone 'rear window'", "the wheelhouse", "panels in no zone")
 
     def to_dict(self) -> dict:
-        return {"key": self.key, "group": self.group, "label": self.label, "value_db": round(self.value_db, 3),
-                "note": self.note}
+        d = {"key": self.key, "group": self.group, "label": self.label, "value_db": round(self.value_db, 3),
+             "note": self.note}
+        if self.part:
+            d["part"] = self.part
+        return d
 
 
 @dataclass(frozen=True)
@@ -205,9 +209,14 @@ def panel_terms(hull, body, n: int, a, b, group: str = "body") -> list[Term]:
         zname = hull.crossing_zone(kind, zone)
         where = CROSSING_NAMES.get(kind, "panel")
         into = "into" if body.direction[j] > 0 else "out of"
-        what = f"zone '{zname}'" if zname else ("wheelhouse" if kind == CROSS_WHEELHOUSE else "no zone")
-        out.append(Term("panel", group, f"{into} the body: {where} at {_xyz(p)}, {what} ({mat})",
-                        -float(body.loss_db[j]), f"material {mat}"))
+        if zname:
+            what = part = f"zone '{zname}'"
+        elif kind == CROSS_WHEELHOUSE:
+            what, part = "", "the wheelhouse"
+        else:
+            what, part = "no zone", "panels in no zone"
+        label = f"{into} the body: {where} at {_xyz(p)}" + (f", {what}" if what else "") + f" ({mat})"
+        out.append(Term("panel", group, label, -float(body.loss_db[j]), f"material {mat}", part))
     for q in np.flatnonzero(body.p_rows == n):
         pen = float(body.loss_db[body.p_first[q]] + body.loss_db[body.p_first[q] + 1])
         j_db = float(body.p_j_db[q])
@@ -350,21 +359,3 @@ def spot_budgets(scene, scores, axes, spots=None, wheels: str = "worst") -> dict
     for (i, _w, _t, key), b in zip(rows, res):
         out.setdefault(i, {})[key] = b
     return out
-
-
-def budget_lines(b: LinkBudget, width: int = 100) -> list[str]:
-    """The budget as plain text lines (CLI ``rank --explain``)."""
-    lines = [f"{'term':<{width - 22}} {'dB':>9}  running dBm"]
-    run = 0.0
-    for t in b.terms:
-        run += t.value_db
-        label = t.label if len(t.label) <= width - 22 else t.label[: width - 25] + "..."
-        lines.append(f"{label:<{width - 22}} {t.value_db:+9.2f}  {run:9.2f}")
-    lines.append(f"{'received level':<{width - 22}} {b.level_dbm:9.2f} dBm")
-    lines.append(f"{'- sensitivity':<{width - 22}} {-b.sensitivity_dbm:+9.2f}")
-    lines.append(f"{'- required margin':<{width - 22}} {-b.required_margin_db:+9.2f}")
-    lines.append(f"{'margin':<{width - 22}} {b.margin_db:+9.2f} dB")
-    if b.road_ray:
-        lines.append(f"  the road ray alone: {b.road_ray_level_dbm:.1f} dBm ("
-                     + "; ".join(f"{t.label} {t.value_db:+.1f} dB" for t in b.road_ray) + ")")
-    return lines

@@ -63,9 +63,11 @@ ENGINEERING_DEFAULT = "engineering default"
 #: Monte-Carlo draws per spot and the fixed seed (no run-to-run scatter)
 DEFAULT_DRAWS = 200
 DEFAULT_SEED = 20240613
-#: wheel angles per turn of the fast model, and the parts each interval with a panel jump is cut into (- 1)
+#: wheel angles per turn of the fast model; an interval whose ends cross different panels (a jump of the loss) has
+#: its jump located by this many bisection steps (1 deg / 2^10: about 0.001 deg) and this many samples either side
 DENSE_ANGLES = 360
-JUMP_SUBDIVISIONS = 7
+JUMP_BISECTIONS = 10
+JUMP_SIDE_SAMPLES = 5
 #: receiver axis tilt range, rad, and the directions the tornado tries
 TILT_MAX_RAD = np.radians(15.0)
 TILT_DIRECTIONS = 8
@@ -206,13 +208,13 @@ def uncertain_inputs(v, scene) -> list[UncertainInput]:
     surfaces = tuple(range(len(ROAD_NAMES)))
     if scene.ground_reflection:
         nom = float(ROAD_NAMES.index(scene.vehicle.radio.road_surface))
-        out.append(UncertainInput("road", "road", "road (reflection off, or surface)", "", nom, -1.0,
+        out.append(UncertainInput("road", "road", "road (off, or surface)", "", nom, -1.0,
                                   float(len(ROAD_NAMES) - 1),
                                   f"{ENGINEERING_DEFAULT}: the road surfaces of ITU-R P.2040 Table 3 (extrapolated "
                                   "below 1 GHz) and no reflection (a rough or wet road, a lift, a turntable)",
                                   "uniform over the outcomes", options=(-1,) + surfaces))
     else:
-        out.append(UncertainInput("road", "road", "road (reflection off, or surface)", "", -1.0, -1.0, -1.0,
+        out.append(UncertainInput("road", "road", "road (off, or surface)", "", -1.0, -1.0, -1.0,
                                   "the road reflection is off in this setup", "not drawn", options=(-1,),
                                   effect="road reflection off in the setup: not varied"))
     rx_iso = scene.receiver_pattern != "dipole"
@@ -497,12 +499,13 @@ class PerturbationModel:
     """Margins of S spots for many input values at once, from geometry traced once (see the module notes).
 
     Links: every spot and wheel at ``n_angles`` equally spaced wheel angles plus the engine's worst angle
-    (``worst_angle_rad`` (S, W)); each interval between neighbouring angles whose rays cross other panels (or
-    passages, tire parts) at its ends is subdivided into ``JUMP_SUBDIVISIONS`` + 1 parts. The worst case of a
-    draw is the smallest of the sampled levels and of the chord minima on the smooth intervals."""
+    (``worst_angle_rad`` (S, W)); in each interval between neighbouring angles whose rays cross other panels (or
+    passages, tire parts) at its ends, the jump is located by bisection and sampled up to it from either side.
+    The worst case of a draw is the smallest of the sampled levels and of the chord minima on the smooth
+    intervals (the same panels at both ends)."""
 
     def __init__(self, scene, inputs: list[UncertainInput], positions, axes, worst_angle_rad=None,
-                 n_angles: int = DENSE_ANGLES, subdivisions: int | None = None):
+                 n_angles: int = DENSE_ANGLES):
         self.scene = scene
         self.inputs = inputs
         pos = np.atleast_2d(np.asarray(positions, float))
@@ -522,19 +525,27 @@ class PerturbationModel:
         self.dense = _Links(scene, mats, pos, self.axes, sb, spot, wheel, th.reshape(-1))
         fp = self.dense.fingerprint.reshape(th.shape + (-1,))[:, :, :n_angles]
         self.smooth = np.all(fp == np.roll(fp, -1, axis=2), axis=-1)  # (S, W, n_angles)
-        # the intervals with a jump, subdivided
-        m = JUMP_SUBDIVISIONS if subdivisions is None else subdivisions
+        # each interval with a jump: the jump located by bisection, then samples up to it from either side
         s_i, w_i, k_i = np.nonzero(~self.smooth)
         self.extra = None
-        if len(s_i) and m > 0:
-            frac = np.arange(m + 2) / (m + 1)  # both ends and m points inside
-            t_e = (k_i[:, None] + frac[None, :]) * step
+        if len(s_i):
+            fa = fp[s_i, w_i, k_i]
+            lo, hi = k_i * step, (k_i + 1) * step
+            for _ in range(JUMP_BISECTIONS):
+                mid = 0.5 * (lo + hi)
+                fm = _Links(scene, mats, pos, self.axes, sb, s_i, w_i, mid).fingerprint
+                same = np.all(fm == fa, axis=1)
+                lo, hi = np.where(same, mid, lo), np.where(same, hi, mid)
+            frac = np.linspace(0.0, 1.0, JUMP_SIDE_SAMPLES)
+            left = k_i[:, None] * step + frac[None, :] * (lo - k_i * step)[:, None]
+            right = hi[:, None] + frac[None, :] * ((k_i + 1) * step - hi)[:, None]
+            t_e = np.concatenate([left, right], axis=1)
+            n = t_e.shape[1]
             self.extra_pair = s_i * W + w_i
-            self.extra_shape = (len(s_i), m + 2)
-            self.extra = _Links(scene, mats, pos, self.axes, sb, np.repeat(s_i, m + 2), np.repeat(w_i, m + 2),
-                                t_e.reshape(-1))
-            fpe = self.extra.fingerprint.reshape(len(s_i), m + 2, -1)
-            self.extra_smooth = np.all(fpe[:, 1:] == fpe[:, :-1], axis=-1)  # (Q, m + 1)
+            self.extra_shape = (len(s_i), n)
+            self.extra = _Links(scene, mats, pos, self.axes, sb, np.repeat(s_i, n), np.repeat(w_i, n), t_e.reshape(-1))
+            fpe = self.extra.fingerprint.reshape(len(s_i), n, -1)
+            self.extra_smooth = np.all(fpe[:, 1:] == fpe[:, :-1], axis=-1)  # (Q, n - 1)
 
     @property
     def links(self) -> int:
@@ -742,8 +753,8 @@ def analyse(scene, positions, axes, names, engine_margin_db, worst_angle_rad=Non
         for inp, cs, a, b in spans:
             vals = m[a:b, s] + shift[s]
             texts = [t for t, _ in cs]
-            if len(vals) == 0:
-                lo_t = hi_t = inp.text(inp.nominal)
+            if len(vals) == 0:  # no effect in this setup
+                lo_t, hi_t = inp.text(inp.low), inp.text(inp.high)
                 lo = hi = engine[s]
             elif inp.kind in ("road", "axis_tilt"):
                 i_lo, i_hi = int(np.argmin(vals)), int(np.argmax(vals))
