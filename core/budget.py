@@ -146,7 +146,7 @@ def _transmitter(k: _Link) -> list[Term]:
     s = k.scene.vehicle.radio.sensor
     if s.eirp_dbm is not None:
         return [Term("eirp", "transmitter", "sensor EIRP (peak, as given)", float(k.scene.eirp_dbm),
-                     "given in the file; a measured EIRP already holds the antenna gain and its mismatch")]
+                     "given in the file (peak; a measured EIRP holds the antenna gain and mismatch)")]
     ml = float(mismatch_loss_db(s.return_loss_db))
     return [Term("conducted_power", "transmitter", "sensor conducted power", float(s.conducted_power_dbm),
                  "given in the file"),
@@ -166,12 +166,12 @@ def _antennas(k: _Link) -> list[Term]:
     bare = dd.bare_c[n]
     out = [Term("antennas", "antennas", f"sensor dipole ({sc.vehicle.radio.sensor.axis}) and {rx}: patterns "
                 f"and polarization", _db20(bare),
-                "20 log10 |a_s,perp . a_r| of the bare short dipoles toward the path (Balanis), floored nowhere")]
+                "20 log10 |a_s,perp . a_r| of the bare short dipoles (Balanis)")]
     if sc.sensor_kind == "table":
         out.append(Term("wheel_pattern", "wheel", "installed wheel pattern against the bare sensor",
                         _db20(c) - _db20(bare),
-                        "the sensor on its rim and tire (NEC-2 table, core.wheel_patterns): 20 log10 "
-                        "|c_installed / c_bare|; replaces the knife-edge rim and tire losses"))
+                        "the sensor on its rim and tire, NEC-2 table (core.wheel_patterns): 20 log10 "
+                        "|c_installed / c_bare|"))
     return out
 
 
@@ -179,7 +179,7 @@ def _free_space(k: _Link) -> list[Term]:
     d = float(k.rays.direct.d[k.n])
     lam = k.scene.wavelength_m
     return [Term("free_space", "path", f"free-space loss over {d:.3f} m", float(20.0 * np.log10(lam / (4 * np.pi * d))),
-                 "Friis, 20 log10(lambda / (4 pi d)) (ITU-R P.525)")]
+                 "Friis (ITU-R P.525)")]
 
 
 def _wheel(k: _Link) -> list[Term]:
@@ -246,8 +246,8 @@ def _road(k: _Link) -> list[Term]:
     ph = float(np.degrees(np.angle(rr.c[n] / (k.rays.direct.c[n] if abs(k.rays.direct.c[n]) > 0 else 1.0))
                           - k.rays.phase[n]))
     return [Term("road", "road", "road reflection: interference of the road ray with the direct ray",
-                 total - direct, f"road ray {rel:+.1f} dB against the direct ray, relative phase "
-                 f"{(ph + 180.0) % 360.0 - 180.0:+.0f} deg (two-ray model, Fresnel coefficients of the road)")]
+                 total - direct, f"road ray {rel:+.1f} dB against the direct ray, phase "
+                 f"{(ph + 180.0) % 360.0 - 180.0:+.0f} deg (two-ray model, Fresnel)")]
 
 
 def _direct_db(k: _Link) -> float:
@@ -265,14 +265,13 @@ def _null_floor(k: _Link) -> list[Term]:
     summed = k.extra.get("sum_db", _direct_db(k))
     return [Term("null_floor", "floor", f"null floor ({k.scene.null_floor_db:g} dB below the rays' matched power) "
                  "holds the level", float(10.0 * np.log10(f.floor2[n])) - summed,
-                 "exact nulls are not physical (finite cross-polar discrimination, scattering): "
-                 "core.links.link_field")]
+                 "exact nulls are not physical (cross-polar discrimination, scattering)")]
 
 
 def _receiver(k: _Link) -> list[Term]:
     sc = k.scene
     return [Term("receiver_gain", "receiver", "receiver antenna peak gain", float(sc.receiver_gain_dbi),
-                 "given in the file; its pattern and polarization are in the antenna term")]
+                 "given in the file (pattern and polarization: antenna term)")]
 
 
 #: the builders of a budget's terms, in table order; a new engine term adds a builder here

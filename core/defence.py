@@ -153,8 +153,8 @@ class Verdict:
                (f"P(pass): the share of {self.draws} Monte-Carlo draws of the uncertain inputs (ranges and sources in "
                f"the report) in which the margin stays at or above 0 dB.")]
         if self.top:
-            parts = [f"{b.label} ({b.low_text} .. {b.high_text}: margin {b.margin_low_db:+.1f} .. "
-                     f"{b.margin_high_db:+.1f} dB)" for b in self.top]
+            parts = [f"{b.label} ({_range_words(b)}: margin {min(b.margin_low_db, b.margin_high_db):+.1f} to "
+                     f"{max(b.margin_low_db, b.margin_high_db):+.1f} dB)" for b in self.top]
             out.append("Most sensitive to: " + "; ".join(parts) + ".")
         if self.more_robust is not None:
             n, m, p = self.more_robust
@@ -162,6 +162,15 @@ class Verdict:
         out.append("Measure first on a vehicle: " + "; ".join(f"({k + 1}) {t}" for k, t in
                                                                 enumerate(self.measure_first)) + ".")
         return out
+
+
+def _range_words(b: TornadoBar) -> str:
+    """The range of a bar's input in words (the tilt and the road by what was tried)."""
+    if b.key == "axis_tilt":
+        return f"tilted up to {b.low_text.split(',')[0]} in any direction"
+    if b.key == "road":
+        return "reflection off or any road surface"
+    return f"{b.low_text} to {b.high_text}"
 
 
 def verdict(scores, defence: Defence, axes, placement=None) -> Verdict:

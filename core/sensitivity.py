@@ -713,7 +713,7 @@ def _tornado_cases(inputs: list[UncertainInput]) -> list[tuple[UncertainInput, l
             cases.append((inp, [(road_outcome_name(o), {"value": o}) for o in opts]))
         elif inp.kind == "axis_tilt":
             azs = np.arange(TILT_DIRECTIONS) * (2 * np.pi / TILT_DIRECTIONS)
-            cases.append((inp, [(f"{np.degrees(inp.high):.0f} deg toward {np.degrees(a):.0f} deg",
+            cases.append((inp, [(f"{np.degrees(inp.high):.0f} deg, azimuth {np.degrees(a):.0f} deg",
                                  {"value": inp.high, "azimuth": a}) for a in azs] if inp.high > 0 else []))
         else:
             cases.append((inp, [(inp.text(inp.low), {"value": inp.low}), (inp.text(inp.high), {"value": inp.high})]))

@@ -34,6 +34,7 @@ from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
 from app.gui.look import BODY_COLOUR, margin_colormap, wheel_colour
 from app.heatmap_contour import polylines_for_plot, zero_contour
+from app.margin_scale import MARGIN_RANGE_DB
 from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
 from core.placement import INSIDE, NEAR_SURFACE, classify
@@ -102,7 +103,7 @@ class HeatmapPanel(QWidget):
         self.iso.setZValue(-5)
         self.plot.addItem(self.iso)
         self.colorbar = self.plot.getPlotItem().addColorBar(
-            self.image, colorMap=margin_colormap(), values=(-20.0, 20.0), label="worst-case margin (dB)",
+            self.image, colorMap=margin_colormap(), values=(-MARGIN_RANGE_DB, MARGIN_RANGE_DB), label="worst-case margin (dB)",
             interactive=False, width=14,
         )
         self.spots = pg.ScatterPlotItem(size=8, pen=pg.mkPen("k"), brush=pg.mkBrush(255, 255, 255, 230))
@@ -365,7 +366,7 @@ class SpotTable(QTableWidget):
                     if c in (0, 1, 3, 5):
                         item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
                     if c == 3:
-                        col = self._cmap.map(np.clip((m + 20.0) / 40.0, 0, 1), mode="qcolor")
+                        col = self._cmap.map(np.clip(0.5 + 0.5 * m / MARGIN_RANGE_DB, 0, 1), mode="qcolor")
                         col.setAlpha(150)
                         item.setBackground(col)
                         if sc.near_field is not None and sc.near_field[i]:
