@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (
 
 from app.gui import commands, dialogs
 from app.gui.body_views import BodyView
+from app.gui.defence_panel import install_defence_panel
 from app.gui.document import Document
 from app.gui.ranking_panel import RankingPanel
 from app.gui.settings_panel import RadioPanel, ZonesPanel
@@ -157,6 +158,7 @@ class MainWindow(QMainWindow):
         self.autosave_timer.timeout.connect(self.write_recovery)
         if autosave:
             self.autosave_timer.start()
+        install_defence_panel(self)  # the selected spot's link budget, tornado and P(pass) (app/gui/defence_panel.py)
         self.resize(1600, 1000)
 
     # ----- menus -----------------------------------------------------------------------
