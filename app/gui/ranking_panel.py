@@ -501,23 +501,40 @@ class SpotFigures(QWidget):
                    size="9pt")
 
     def _draw_burst(self, sc, i: int) -> None:
+        """Burst success vs speed; when every burst gets through, the burst margin instead (the extra loss the
+        bursts still survive, core.burst), so the figure says how much is to spare rather than a flat 100 %."""
         p = self.burst
         r = burst_for_spot(self.doc.scene, sc, i)
         self.burst_result = r
         kmh = r.speeds_mps * KMH_PER_MPS
+        all_pass = r.margin_db is not None and float(r.success.min()) >= 1.0
+        data = r.margin_db if all_pass else 100 * r.success
+        parked = r.parked_margin_db if all_pass else 100 * r.parked
+        right = {g.id for g in self.doc.scene.wheels if g.outboard_sign < 0}
         for w, wid in enumerate(r.wheel_ids):
             col = wheel_colour(w)
-            p.plot(kmh, 100 * r.success[w], pen=pg.mkPen(col, width=1.8), name=wid)
-            p.plot([0.0], [100 * r.parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
-            for vr in r.resonant_mps[w]:
-                c = QColor(col)
-                c.setAlpha(110)
-                p.addItem(pg.InfiniteLine(vr * KMH_PER_MPS, angle=90, pen=pg.mkPen(c, width=1, style=Qt.PenStyle.DotLine)))
-        wi, vi = r.worst()
+            # right-side wheels dashed: mirrored wheels give the same curve, both stay visible
+            style = Qt.PenStyle.DashLine if wid in right else Qt.PenStyle.SolidLine
+            p.plot(kmh, data[w], pen=pg.mkPen(col, width=1.8, style=style), name=wid)
+            p.plot([0.0], [parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
+        for vr in sorted({round(float(x), 6) for rs in r.resonant_mps for x in rs}):
+            p.addItem(pg.InfiniteLine(vr * KMH_PER_MPS, angle=90,
+                                      pen=pg.mkPen(120, 120, 120, width=1, style=Qt.PenStyle.DotLine)))
         rad = self.doc.vehicle.radio
-        p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
-                   f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
-                   "squares: parked; dotted: frames repeat", size="8pt")
+        if all_pass:
+            need = sc.required_margin_db
+            p.addItem(pg.InfiniteLine(need, angle=0, pen=pg.mkPen(60, 60, 60, width=1, style=Qt.PenStyle.DashLine)))
+            p.setYRange(min(0.0, float(data.min()), need) - 2, max(float(data.max()), need) + 4, padding=0)
+            p.setLabel("left", "burst margin", units="dB")
+            p.setTitle(f"every burst gets through: lowest burst margin {float(data.min()):.0f} dB<br>dashed: "
+                       "required margin; squares: parked", size="8pt")
+        else:
+            wi, vi = r.worst()
+            p.setYRange(0, 100, padding=0.03)
+            p.setLabel("left", "bursts heard", units="%")
+            p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
+                       f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
+                       "squares: parked; dotted: frames repeat", size="8pt")
         p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
 
     def _draw_separation(self, sc, i: int) -> None:
