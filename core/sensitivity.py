@@ -587,17 +587,19 @@ class PerturbationModel:
         return best.reshape(S, W, D), const
 
     def margins(self, d: Draws) -> np.ndarray:
-        """Spot margins for the draws, dB: (D, S) (worst wheel, worst case over the turn (:meth:`_worst_power`); the
-        scene's percentile over the dense angles when it scores by a percentile)."""
+        """Spot margins for the draws, dB: (D, S) (worst wheel, worst case over the turn (:meth:`_worst_power`); when
+        the scene scores by a percentile, that percentile of the levels at the engine's sampled angles)."""
         sc = self.scene
         S = self.shape[0]
         out = np.empty((d.n, S))
         step = max(1, _BLOCK // max(1, self.links))
         for a in range(0, d.n, step):
             part = d.take(slice(a, a + step))
-            if sc.worst_percentile > 0:
+            if sc.worst_percentile > 0:  # the engine's statistic over its own sampled angles (when they are dense ones)
                 lv = self.link_levels(part)  # (Db, S, W, K)
-                worst = np.percentile(lv[..., : self.n_dense], sc.worst_percentile, axis=-1).min(axis=-1)
+                A = len(sc.angles_rad)
+                pick = slice(0, self.n_dense, self.n_dense // A) if self.n_dense % A == 0 else slice(0, self.n_dense)
+                worst = np.percentile(lv[..., pick], sc.worst_percentile, axis=-1).min(axis=-1)
                 out[a:a + step] = worst
             else:
                 p, const = self._worst_power(part)
