@@ -338,7 +338,9 @@ def spot_budgets(scene, scores, axes, spots=None, wheels: str = "worst") -> dict
     ``scores``: core.scoring.SpotScores; ``axes`` (S, 3): the receiver axes they were scored with;
     ``spots``: indices (default all); ``wheels``: "worst" (each spot's limiting wheel) or "all".
     Returns {spot index: {"worst": budget, "median": budget}} (with "all": keys "worst WHEEL" and
-    "median WHEEL" per wheel)."""
+    "median WHEEL" per wheel). With a percentile statistic (radio.worst_case_percentile) the "worst" link is
+    the sample at the angle the scores name (the highest level at or below the percentile, which itself
+    interpolates between samples)."""
     idx = list(range(len(scores.names))) if spots is None else [int(i) for i in spots]
     axes = np.atleast_2d(np.asarray(axes, float))
     rows = []
