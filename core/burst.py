@@ -35,6 +35,8 @@ class BurstResult:
     parked: np.ndarray  # (W,) probability with all frames at one angle
     resonant_mps: tuple[np.ndarray, ...]  # per wheel, the lowest resonant speeds inside the speed range
     resonant_count: tuple[int, ...] = ()  # per wheel, how many resonant speeds the range holds (>= listed)
+    margin_db: np.ndarray | None = None  # (W, V) burst margin: the extra loss every burst still survives, dB
+    parked_margin_db: np.ndarray | None = None  # (W,) the same parked (all frames at one angle)
 
     def worst(self) -> tuple[int, int]:
         """(wheel index, speed index) of the lowest success probability."""
@@ -58,7 +60,12 @@ def burst_success(
     start_angles: int = START_ANGLES,
     cancel=None,
 ) -> BurstResult:
-    """P(at least one of ``frames`` frames >= threshold) per wheel and speed.
+    """P(at least one of ``frames`` frames >= threshold) per wheel and speed, and the burst margin.
+
+    Burst margin: over the start angles, the smallest of the best frame's level above the threshold,
+    min over theta0 of max over k of (level(theta0 + k v dt / R) - threshold), dB: the extra loss
+    at which the first burst would fail. Parked it is the worst case over the turn (of the
+    interpolated levels); diversity raises it at speed, except at the resonant speeds.
 
     Parameters
     ----------
@@ -79,12 +86,15 @@ def burst_success(
     th0 = np.arange(start_angles) * (2 * np.pi / start_angles)
     k = np.arange(frames)
     success = np.empty((W, len(speeds)))
+    margin = np.empty((W, len(speeds)))
     parked = np.empty(W)
+    parked_margin = np.empty(W)
     resonant = []
     counts = []
     for w in range(W):
-        ok0 = _periodic_interp(lv[w], angles_rad, th0) >= threshold_dbm
-        parked[w] = ok0.mean()
+        l0 = _periodic_interp(lv[w], angles_rad, th0)
+        parked[w] = (l0 >= threshold_dbm).mean()
+        parked_margin[w] = l0.min() - threshold_dbm
         step = speeds * interval_s / radius[w]  # (V,) rad between frames
         per = max(1, CHUNK_EVALUATIONS // (len(th0) * frames))
         for a in range(0, len(speeds), per):
@@ -92,8 +102,9 @@ def burst_success(
                 raise Cancelled()
             sl = slice(a, a + per)
             ang = th0[None, :, None] + step[sl, None, None] * k[None, None, :]  # (v, T, K)
-            ok = _periodic_interp(lv[w], angles_rad, ang.reshape(-1)).reshape(ang.shape) >= threshold_dbm
-            success[w, sl] = ok.any(axis=2).mean(axis=1)
+            best = _periodic_interp(lv[w], angles_rad, ang.reshape(-1)).reshape(ang.shape).max(axis=2)  # (v, T)
+            success[w, sl] = (best >= threshold_dbm).mean(axis=1)
+            margin[w, sl] = best.min(axis=1) - threshold_dbm
         period = 2 * np.pi * radius[w] / interval_s
         lo, hi = (speeds.min(), speeds.max()) if len(speeds) else (0.0, 0.0)
         n_lo, n_hi = max(1, int(np.ceil(lo / period))), int(np.floor(hi / period))
@@ -101,7 +112,7 @@ def burst_success(
         n = np.arange(n_lo, min(n_hi, n_lo + MAX_RESONANT_SPEEDS - 1) + 1)  # bounded: never the whole list
         resonant.append(n * period)
     ids = tuple(wheel_ids) if wheel_ids is not None else tuple(str(i) for i in range(W))
-    return BurstResult(ids, speeds, success, parked, tuple(resonant), tuple(counts))
+    return BurstResult(ids, speeds, success, parked, tuple(resonant), tuple(counts), margin, parked_margin)
 
 
 def speed_sweep(speed_min_mps: float, speed_max_mps: float, step_mps: float = 0.25) -> np.ndarray:

@@ -71,7 +71,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from core.geometry import Hull, _zone_loss, body_loss_db, inside_hull, points_in_polygon, start_bits
+from core.geometry import Hull, body_loss_db, inside_hull, points_in_polygon, start_bits, zone_loss_at
 from core.propagation import fresnel_reflection
 
 __all__ = [
@@ -177,11 +177,11 @@ def surface_samples(hull: Hull, spacing_m: float = SAMPLE_SPACING_M):
             if kind == "wall":  # (x, y) along the top outline, z across
                 p = np.stack([u, v, c], axis=1)
                 n3 = np.tile([n2[0], n2[1], 0.0], (len(u), 1))
-                lz = _zone_loss(hull.side_zones, u, c, None, hull.default_loss_db)
+                lz = zone_loss_at(hull.side_zones, u, c, None, hull.default_loss_db)
             else:  # (x, z) along the side outline, y across
                 p = np.stack([u, c, v], axis=1)
                 n3 = np.tile([n2[0], 0.0, n2[1]], (len(u), 1))
-                lz = _zone_loss(hull.top_zones, u, c, v, hull.default_loss_db)
+                lz = zone_loss_at(hull.top_zones, u, c, v, hull.default_loss_db)
             pts.append(p)
             kinds.append(0 if kind == "wall" else 1)
             nrm.append(n3)
@@ -246,8 +246,8 @@ def wall_factor(hull: Hull, positions: np.ndarray, axes: np.ndarray | None, wave
     # between two panels takes the one the receiver faces)
     foot_t = foot_t + 1e-6 * dir_t
     foot_s = foot_s + 1e-6 * dir_s
-    metal_t = _zone_loss(hull.side_zones, foot_t[:, 0], p[:, 2], None, hull.default_loss_db) >= OPENING_LOSS_DB
-    metal_s = _zone_loss(hull.top_zones, foot_s[:, 0], p[:, 1], foot_s[:, 1], hull.default_loss_db) >= OPENING_LOSS_DB
+    metal_t = zone_loss_at(hull.side_zones, foot_t[:, 0], p[:, 2], None, hull.default_loss_db) >= OPENING_LOSS_DB
+    metal_s = zone_loss_at(hull.top_zones, foot_s[:, 0], p[:, 1], foot_s[:, 1], hull.default_loss_db) >= OPENING_LOSS_DB
     out = np.ones(len(p))
     for d, n, metal in ((d_t, n_t, metal_t), (d_s, n_s, metal_s)):
         ft, fn = _boundary_factors(2.0 * k * d)

@@ -401,14 +401,114 @@ def search_common_position(
     )
 
 
+# ----- what the comparison recommends ------------------------------------------------------------
+#: a definition that differs by more than this between files is "a different place", m
+SAME_PLACE_TOLERANCE_M = 0.01
+
+
+@dataclass(frozen=True)
+class NameAtSeveralPlaces:
+    """A spot name defined by several files at different places: the table then compares different places under
+    one name. ``definitions``: per body that defines it, (body index, the definition in words)."""
+
+    name: str
+    definitions: tuple[tuple[int, str], ...]
+
+    def text(self, labels) -> str:
+        return (f"'{self.name}' is defined at different places: "
+                + "; ".join(f"{labels[b]} {d}" for b, d in self.definitions)
+                + " (each file places it in its own coordinates, so the row compares different places)")
+
+
+def _definition_words(s: Spot) -> str:
+    x = f"x = {s.x_m:+.3f} m" + ("" if s.x_from == "origin" else f" from the {s.x_from.replace('_', ' ')}")
+    z = f"z = {s.z_m:.3f} m" + (" above the floor" if s.z_from == "floor" else "")
+    return f"{x}, y = {s.y_m:+.3f} m, {z}"
+
+
+def names_at_several_places(vehicles: list[Vehicle]) -> list[NameAtSeveralPlaces]:
+    """Spot names whose definitions differ between the files that define them (landmark, or any coordinate by more
+    than SAME_PLACE_TOLERANCE_M). A landmark-relative spot carried to a body that lacks it is the same place by
+    construction and never flagged."""
+    by_name: dict[str, list[tuple[int, Spot]]] = {}
+    for b, v in enumerate(vehicles):
+        for s in v.spots:
+            by_name.setdefault(s.name, []).append((b, s))
+    out = []
+    for name, defs in by_name.items():
+        if len(defs) < 2:
+            continue
+        first = defs[0][1]
+        differ = any(s.x_from != first.x_from or s.z_from != first.z_from
+                     or max(abs(s.x_m - first.x_m), abs(s.y_m - first.y_m), abs(s.z_m - first.z_m))
+                     > SAME_PLACE_TOLERANCE_M for _, s in defs[1:])
+        if differ:
+            out.append(NameAtSeveralPlaces(name, tuple((b, _definition_words(s)) for b, s in defs)))
+    return out
+
+
+@dataclass(frozen=True)
+class Recommendation:
+    """Which of the platform-common spot and the searched position the comparison recommends, and why.
+
+    ``common_meets`` (B,): the common spot's margin >= 0 on each body (False where it is absent);
+    ``search_meets`` (B,) the same for the searched position (None without a search)."""
+
+    choice: str  # "common spot" or "searched position"
+    reason: str
+    common_meets: tuple[bool, ...]
+    search_meets: tuple[bool, ...] | None
+
+
+def recommend(c: Comparison, search: CommonSearch | None = None) -> Recommendation | None:
+    """The rule: a spot that already exists in the files (the platform-common spot) is preferred when it meets the
+    requirement on every body; otherwise the searched position when it does; when neither does, the one with the
+    larger smallest margin, saying that neither meets it. None when there is no spot at all."""
+    if c.common_best < 0:
+        return None
+    i = c.common_best
+    cm = tuple(bool(np.isfinite(m) and m >= 0) for m in c.margin_db[i])
+    common_all = all(cm) and bool(c.present_all[i])
+    name = c.spot_names[i]
+    if search is None:
+        reason = (f"'{name}' meets the requirement on every body (smallest margin {c.min_margin_db[i]:+.1f} dB)"
+                  if common_all else f"'{name}' does not meet the requirement on every body and no shared-region "
+                  f"search was run; the smallest margin is {c.min_margin_db[i]:+.1f} dB")
+        return Recommendation("common spot", reason, cm, None)
+    sm = tuple(bool(m >= 0) for m in search.best_margins_db)
+    search_all = all(sm)
+    gain = search.best_min_margin_db - float(c.min_margin_db[i])
+    if common_all:
+        extra = (f"; the searched position would add {gain:+.1f} dB on the weakest body but is a new location to "
+                 "package" if gain > 0 else "")
+        return Recommendation("common spot", f"'{name}' already meets the requirement on every body (smallest margin "
+                              f"{c.min_margin_db[i]:+.1f} dB){extra}", cm, sm)
+    if search_all:
+        fails = [c.body_styles[b] for b, ok in enumerate(cm) if not ok]
+        return Recommendation("searched position", f"'{name}' fails on {', '.join(fails)}; the searched position "
+                              f"meets the requirement on every body (smallest margin {search.best_min_margin_db:+.1f} "
+                              "dB)", cm, sm)
+    if gain > 0:
+        return Recommendation("searched position", f"neither meets the requirement on every body; the searched position "
+                              f"has the larger smallest margin ({search.best_min_margin_db:+.1f} dB against "
+                              f"{c.min_margin_db[i]:+.1f} dB for '{name}')", cm, sm)
+    return Recommendation("common spot", f"neither meets the requirement on every body; '{name}' has the larger "
+                          f"smallest margin ({c.min_margin_db[i]:+.1f} dB against {search.best_min_margin_db:+.1f} dB "
+                          "for the searched position)", cm, sm)
+
+
 __all__ = [
     "LANDMARKS",
     "CommonSearch",
     "Comparison",
+    "NameAtSeveralPlaces",
     "NoSharedRegion",
+    "Recommendation",
     "compare_bodies",
     "is_landmark_relative",
+    "names_at_several_places",
     "platform_spots",
+    "recommend",
     "search_common_position",
     "shared_region",
 ]

@@ -49,6 +49,12 @@ KIND_SIDE = 1  # edge of the side outline -> top-view zones
 KIND_WH_ARCH = 2  # wheelhouse arch surface
 KIND_WH_WALL = 3  # wheelhouse inner wall
 
+# what a hull crossing went through (``Flips.kind``)
+CROSS_WALL = 1  # a wall of the top outline (side or end face): side-view zones
+CROSS_ROOF_FLOOR = 2  # an edge of the side outline (roof, floor, bonnet, screens): top-view zones
+CROSS_WHEELHOUSE = 3  # a wheelhouse surface: the wheelhouse material
+CROSSING_NAMES = {CROSS_WALL: "side or end wall", CROSS_ROOF_FLOOR: "roof, floor or screen", CROSS_WHEELHOUSE: "wheelhouse"}
+
 
 @dataclass(frozen=True)
 class PolygonEdges:
@@ -87,13 +93,18 @@ def polygon_edges(poly) -> PolygonEdges:
 
 @dataclass(frozen=True)
 class ZoneTable:
-    """Polygons with their crossing loss, dB; optional z limits (top-view zones only), m."""
+    """Polygons with their crossing loss, dB; optional z limits (top-view zones only), m.
+
+    ``names`` and ``materials`` (one per polygon, may be empty) say which zone and material each
+    polygon is, for outputs that list the panels a path crosses (core.budget, core.sensitivity)."""
 
     polygons: tuple[np.ndarray, ...]
     loss_db: np.ndarray
     z_min: np.ndarray
     z_max: np.ndarray
     edges: tuple[PolygonEdges, ...] = ()  # the polygons prepared (polygon_edges)
+    names: tuple[str, ...] = ()
+    materials: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -125,6 +136,24 @@ class Hull:
     box_hi: np.ndarray  # (3,) upper corner
     top_edges: PolygonEdges  # the outlines prepared (polygon_edges)
     side_edges: PolygonEdges
+    default_material: str = "metal"  # material name of a panel in no zone
+    wheelhouse_material: str = "metal"  # material name of the wheelhouse surfaces
+
+    def crossing_material(self, kind: int, zone: int) -> str:
+        """Material name of a crossing of the given kind (CROSS_*, as in :class:`Flips`) and zone index."""
+        if kind == CROSS_WHEELHOUSE:
+            return self.wheelhouse_material
+        table = self.side_zones if kind == CROSS_WALL else self.top_zones
+        if zone < 0 or zone >= len(table.materials):
+            return self.default_material
+        return table.materials[zone]
+
+    def crossing_zone(self, kind: int, zone: int) -> str:
+        """Zone name of a crossing ("" when in no zone or a wheelhouse)."""
+        if kind == CROSS_WHEELHOUSE or zone < 0:
+            return ""
+        table = self.side_zones if kind == CROSS_WALL else self.top_zones
+        return table.names[zone] if zone < len(table.names) else ""
 
 
 def _envelope(poly: np.ndarray, xs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -150,6 +179,10 @@ def build_hull(
     side_zones: list[tuple[np.ndarray, float]],
     default_loss_db: float,
     wheelhouse_loss_db: float,
+    top_zone_labels: list[tuple[str, str]] | None = None,
+    side_zone_labels: list[tuple[str, str]] | None = None,
+    default_material: str = "metal",
+    wheelhouse_material: str = "metal",
 ) -> Hull:
     """Prepare a hull.
 
@@ -161,6 +194,8 @@ def build_hull(
     side_zones : (polygon (x, z), loss_db) each
     default_loss_db : loss of a panel in no zone, dB
     wheelhouse_loss_db : loss of a wheelhouse surface crossing, dB
+    top_zone_labels, side_zone_labels : (zone name, material name) per zone, for outputs (optional)
+    default_material, wheelhouse_material : material names of a panel in no zone and of the wheelhouses
     """
     top = np.asarray(top_outline, float)
     side = np.asarray(side_outline, float)
@@ -172,12 +207,14 @@ def build_hull(
     ztop, zbot = _envelope(side, ex)
     ymax, ymin = _envelope(top, ex)
 
-    def table(zs, with_z):
+    def table(zs, with_z, labels):
         polys = tuple(np.asarray(z[0], float) for z in zs)
         loss = np.array([z[1] for z in zs], float)
         zmin = np.array([z[2] if with_z else -np.inf for z in zs], float)
         zmax = np.array([z[3] if with_z else np.inf for z in zs], float)
-        return ZoneTable(polys, loss, zmin, zmax, tuple(polygon_edges(p) for p in polys))
+        labels = list(labels or ())
+        return ZoneTable(polys, loss, zmin, zmax, tuple(polygon_edges(p) for p in polys),
+                         tuple(str(a) for a, _ in labels), tuple(str(b) for _, b in labels))
 
     return Hull(
         top=top,
@@ -187,8 +224,8 @@ def build_hull(
         wh_r=wh[:, 2].copy(),
         wh_sign=wh[:, 3].copy(),
         wh_inner=wh[:, 4].copy(),
-        top_zones=table(top_zones, True),
-        side_zones=table(side_zones, False),
+        top_zones=table(top_zones, True, top_zone_labels),
+        side_zones=table(side_zones, False, side_zone_labels),
         default_loss_db=float(default_loss_db),
         wheelhouse_loss_db=float(wheelhouse_loss_db),
         env_x=ex,
@@ -201,6 +238,8 @@ def build_hull(
         box_hi=np.array([max(top[:, 0].max(), side[:, 0].max()), top[:, 1].max(), side[:, 1].max()]),
         top_edges=polygon_edges(top),
         side_edges=polygon_edges(side),
+        default_material=default_material,
+        wheelhouse_material=wheelhouse_material,
     )
 
 
@@ -359,16 +398,29 @@ def _wheelhouse_hits(hull: Hull, a: tuple, d: tuple, lo_s: np.ndarray, hi_s: np.
     return np.concatenate(out_r), np.concatenate(out_t), np.concatenate(out_b)
 
 
-def _zone_loss(table: ZoneTable, u: np.ndarray, v: np.ndarray, z: np.ndarray | None, default: float) -> np.ndarray:
-    """Loss of the zone containing each point (u, v) (later zones win); default elsewhere."""
-    loss = np.full(u.shape, default)
+def _zone_index(table: ZoneTable, u: np.ndarray, v: np.ndarray, z: np.ndarray | None) -> np.ndarray:
+    """Index of the zone containing each point (u, v) (later zones win); -1 in no zone."""
+    idx = np.full(u.shape, -1, np.intp)
     edges = table.edges or tuple(polygon_edges(p) for p in table.polygons)
-    for ed, l_db, zmin, zmax in zip(edges, table.loss_db, table.z_min, table.z_max):
+    for k, (ed, zmin, zmax) in enumerate(zip(edges, table.z_min, table.z_max)):
         hit = points_in_polygon(u, v, ed)
         if z is not None:
             hit &= (z >= zmin) & (z <= zmax)
-        loss = np.where(hit, l_db, loss)
-    return loss
+        idx[hit] = k
+    return idx
+
+
+def zone_loss_at(table: ZoneTable, u: np.ndarray, v: np.ndarray, z: np.ndarray | None, default: float) -> np.ndarray:
+    """Crossing loss of the zone containing each point (u, v) (later zones win; z within the zone's
+    band when given), dB; ``default`` in no zone."""
+    return _zone_loss(table, _zone_index(table, u, v, z), default)
+
+
+def _zone_loss(table: ZoneTable, idx: np.ndarray, default: float) -> np.ndarray:
+    """Crossing loss of the zones ``idx`` (:func:`_zone_index`), dB; ``default`` in no zone."""
+    if len(table.loss_db) == 0:
+        return np.full(idx.shape, default)
+    return np.where(idx >= 0, table.loss_db[np.maximum(idx, 0)], default)
 
 
 @dataclass(frozen=True)
@@ -377,6 +429,9 @@ class Flips:
 
     rows : segment index; t : parameter along the segment (0..1); loss_db : panel loss, dB;
     direction : +1 entering the hull, -1 leaving it. start_inside : (N,) bool.
+    kind : what was crossed (CROSS_WALL, CROSS_ROOF_FLOOR, CROSS_WHEELHOUSE); zone : index of the
+    zone in the governing table (side-view zones for a wall, top-view zones for a roof or floor),
+    -1 for none (Hull.crossing_material / crossing_zone name them).
     """
 
     n: int
@@ -385,6 +440,8 @@ class Flips:
     loss_db: np.ndarray
     direction: np.ndarray
     start_inside: np.ndarray
+    kind: np.ndarray | None = None
+    zone: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -435,7 +492,8 @@ def hull_flips(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | Non
     bits0 = np.asarray(bits0, np.int64)
     n_wh = len(hull.wh_xc)
     hull0 = _hull_from_bits(bits0, n_wh)
-    empty = Flips(n, np.empty(0, np.intp), np.empty(0), np.empty(0), np.empty(0, np.int8), hull0)
+    empty = Flips(n, np.empty(0, np.intp), np.empty(0), np.empty(0), np.empty(0, np.int8), hull0,
+                  np.empty(0, np.int8), np.empty(0, np.intp))
     if n == 0:
         return empty
     ac = np.ascontiguousarray(a.T)
@@ -489,22 +547,28 @@ def hull_flips(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | Non
     ebit = np.where((ebit == 2) & tie, 1, ebit)
     rows, t, ebit, entering = rows[flip], t[flip], ebit[flip], state_in[flip]
     loss = np.full(len(rows), hull.wheelhouse_loss_db)
+    zone = np.full(len(rows), -1, np.intp)
+    kind = np.full(len(rows), CROSS_WHEELHOUSE, np.int8)
     m_top = ebit == 1
     if m_top.any():
         r = rows[m_top]
         px = ax[r] + t[m_top] * dx[r]
         pz = az[r] + t[m_top] * dz[r]
-        loss[m_top] = _zone_loss(hull.side_zones, px, pz, None, hull.default_loss_db)
+        zone[m_top] = _zone_index(hull.side_zones, px, pz, None)
+        loss[m_top] = _zone_loss(hull.side_zones, zone[m_top], hull.default_loss_db)
+        kind[m_top] = CROSS_WALL
     m_side = ebit == 2
     if m_side.any():
         r = rows[m_side]
         px = ax[r] + t[m_side] * dx[r]
         py = ay[r] + t[m_side] * dy[r]
         pz = az[r] + t[m_side] * dz[r]
-        loss[m_side] = _zone_loss(hull.top_zones, px, py, pz, hull.default_loss_db)
+        zone[m_side] = _zone_index(hull.top_zones, px, py, pz)
+        loss[m_side] = _zone_loss(hull.top_zones, zone[m_side], hull.default_loss_db)
+        kind[m_side] = CROSS_ROOF_FLOOR
     if sub is not None:
         rows = sub[rows]
-    return Flips(n, rows, t, loss, np.where(entering, 1, -1).astype(np.int8), hull0)
+    return Flips(n, rows, t, loss, np.where(entering, 1, -1).astype(np.int8), hull0, kind, zone)
 
 
 def hull_crossings(hull: Hull, a: np.ndarray, b: np.ndarray, bits0: np.ndarray | None = None) -> Crossings:
@@ -535,21 +599,68 @@ def escape_clearance_m(hull: Hull, x, y, z) -> np.ndarray:
     return np.fmax(h, 0.0)  # fmax: nan (outside an envelope) -> 0
 
 
+@dataclass(frozen=True)
+class BodyTerms:
+    """What the body loss of N paths is made of (:func:`body_loss_terms`), flat arrays.
+
+    Crossings (sorted by path, then along it): ``rows``, ``t`` (0..1 along the path), ``loss_db``
+    (panel loss, dB), ``direction`` (+1 entering, -1 leaving), ``kind`` (CROSS_*), ``zone`` (index in
+    the governing zone table, -1 none), ``in_passage`` (True for the two crossings of a passage).
+    Passages (in and out again): ``p_rows``, ``p_first`` (index of the entering crossing; the leaving
+    one follows it), ``p_v`` (the dominant edge's knife-edge parameter v, ITU-R P.526 eq. 26),
+    ``p_j_db`` (J(v), dB), ``p_edge`` (P, 3) the dominant edge's sample point, m, and ``p_used_db``:
+    the passage's loss min(both panels, J). The body loss of path n is the sum of its crossings'
+    ``loss_db`` outside passages plus its passages' ``p_used_db`` (``total_db``).
+    """
+
+    n: int
+    total_db: np.ndarray
+    rows: np.ndarray
+    t: np.ndarray
+    loss_db: np.ndarray
+    direction: np.ndarray
+    kind: np.ndarray
+    zone: np.ndarray
+    in_passage: np.ndarray
+    p_rows: np.ndarray
+    p_first: np.ndarray
+    p_v: np.ndarray
+    p_j_db: np.ndarray
+    p_edge: np.ndarray
+    p_used_db: np.ndarray
+
+
 def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> np.ndarray:
     """Body loss of the straight paths a -> b (N, 3), dB.
 
     Every hull crossing costs its panel loss; a passage through the hull (entering and leaving
     again) costs the smaller of its two panel losses and the knife-edge loss over its dominant edge.
     """
+    return _body_loss(hull, a, b, freq_hz, bits0, False)
+
+
+def body_loss_terms(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> BodyTerms:
+    """The body loss of :func:`body_loss_db` with what it is made of: every crossing (panel, zone,
+    material via Hull.crossing_material) and every passage's diffraction alternative (:class:`BodyTerms`).
+    Computed by the same code as body_loss_db, so ``total_db`` is the engine's body loss."""
+    return _body_loss(hull, a, b, freq_hz, bits0, True)
+
+
+def _body_loss(hull: Hull, a, b, freq_hz: float, bits0, detail: bool):
     a = np.asarray(a, float)
     b = np.asarray(b, float)
     f = hull_flips(hull, a, b, bits0)
     total = np.bincount(f.rows, weights=f.loss_db, minlength=f.n).astype(float)
-    if len(f.rows) < 2:
-        return total
-    passage = np.nonzero((f.rows[1:] == f.rows[:-1]) & (f.direction[:-1] == 1) & (f.direction[1:] == -1))[0]
+    passage = np.empty(0, np.intp)
+    if len(f.rows) >= 2:
+        passage = np.nonzero((f.rows[1:] == f.rows[:-1]) & (f.direction[:-1] == 1) & (f.direction[1:] == -1))[0]
     if len(passage) == 0:
-        return total
+        if not detail:
+            return total
+        z = np.empty(0)
+        return BodyTerms(f.n, total, f.rows, f.t, f.loss_db, f.direction, f.kind, f.zone,
+                         np.zeros(len(f.rows), bool), np.empty(0, np.intp), np.empty(0, np.intp), z, z,
+                         np.empty((0, 3)), z)
     lam = float(wavelength_m(freq_hz))
     rows = f.rows[passage]
     t0, t1 = f.t[passage], f.t[passage + 1]
@@ -564,7 +675,18 @@ def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0
     d1 = np.maximum(ts * length[:, None], 1e-6)
     d2 = np.maximum((1.0 - ts) * length[:, None], 1e-6)
     v = h * np.sqrt(2.0 / lam * (1.0 / d1 + 1.0 / d2))
-    j_db = knife_edge_loss_db(v.max(axis=1))
+    v_max = v.max(axis=1)
+    j_db = knife_edge_loss_db(v_max)
     pen = f.loss_db[passage] + f.loss_db[passage + 1]
-    np.add.at(total, rows, np.minimum(pen, j_db) - pen)
-    return total
+    used = np.minimum(pen, j_db)
+    np.add.at(total, rows, used - pen)
+    if not detail:
+        return total
+    k = np.argmax(v, axis=1)
+    r = np.arange(len(rows))
+    edge = np.stack([qx[r, k], qy[r, k], qz[r, k]], axis=1)
+    in_p = np.zeros(len(f.rows), bool)
+    in_p[passage] = True
+    in_p[passage + 1] = True
+    return BodyTerms(f.n, total, f.rows, f.t, f.loss_db, f.direction, f.kind, f.zone, in_p, rows, passage,
+                     v_max, j_db, edge, used)

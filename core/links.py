@@ -38,9 +38,9 @@ from functools import lru_cache
 
 import numpy as np
 
-from core.geometry import body_loss_db, start_bits
+from core.geometry import body_loss_db, body_loss_terms, start_bits
 from core.propagation import fresnel_reflection
-from core.wheel import wheel_loss_db
+from core.wheel import WheelLossParts, sensor_axes, sensor_positions, wheel_loss_db, wheel_loss_parts
 
 _Z = np.array([0.0, 0.0, 1.0])
 _MIRROR = np.array([1.0, 1.0, -1.0])
@@ -185,16 +185,106 @@ def _sensor_fields(scene, groups, theta, s_axis, u, r_axis, dist) -> np.ndarray:
     return out
 
 
-def _wheel_losses(scene, groups, src, dst) -> np.ndarray:
-    """Knife-edge wheel loss (core.wheel.wheel_loss_db) over links of several wheels, dB."""
+def _wheel_losses(scene, groups, src, dst, detail: bool = False):
+    """Knife-edge wheel loss (core.wheel.wheel_loss_db) over links of several wheels, dB; with
+    ``detail`` its parts (core.wheel.WheelLossParts over all links)."""
+    fn = wheel_loss_parts if detail else wheel_loss_db
     if len(groups) == 1:
         w = scene.wheels[groups[0][0]]
-        return wheel_loss_db(w, src, dst, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
-    out = np.empty(len(src))
+        return fn(w, src, dst, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
+    if not detail:
+        out = np.empty(len(src))
+        for wi, g in groups:
+            out[g] = wheel_loss_db(scene.wheels[wi], src[g], dst[g], scene.freq_hz, scene.sidewall_loss_db,
+                                   scene.tread_loss_db)
+        return out
+    n = len(src)
+    parts = {k: np.empty(n, dt) for k, dt in (("rim_db", float), ("rim_v", float), ("rim_shadowed", bool),
+                                               ("through_tread", bool), ("tire_db", float))}
     for wi, g in groups:
-        out[g] = wheel_loss_db(scene.wheels[wi], src[g], dst[g], scene.freq_hz, scene.sidewall_loss_db,
-                               scene.tread_loss_db)
-    return out
+        p = wheel_loss_parts(scene.wheels[wi], src[g], dst[g], scene.freq_hz, scene.sidewall_loss_db,
+                             scene.tread_loss_db)
+        for k, arr in parts.items():
+            arr[g] = getattr(p, k)
+    return WheelLossParts(**parts)
+
+
+@dataclass(frozen=True)
+class Ray:
+    """One ray of N links: ``d`` (N,) path length, m (held at MIN_PATH_M); ``c`` (N,) complex
+    pattern-and-polarization coupling of the sensor field with the receiver (relative to the bare
+    sensor's peak); ``loss_db`` (N,) the ray's wheel loss (knife-edge model) plus body loss, dB."""
+
+    d: np.ndarray
+    c: np.ndarray
+    loss_db: np.ndarray
+
+
+@dataclass(frozen=True)
+class RayDetail:
+    """What a ray's terms are made of (``link_rays(..., detail=True)``), for the link budget by term
+    (core.budget) and the sensitivity analysis (core.sensitivity). Arrays over the N links.
+
+    e : (N, 3) complex sensor field toward the ray (direct ray: toward the receiver; road ray: toward
+        the road point), relative to the bare sensor's peak (core.links.sensor_field)
+    u : (N, 3) unit direction the ray leaves the sensor in
+    body : core.geometry.BodyTerms per leg (one for the direct ray; sensor -> road point and
+        receiver -> road point for the road ray)
+    body_db : (N,) the ray's body loss, dB; wheel : core.wheel.WheelLossParts (knife-edge model) or None
+    bare_c : (N,) complex, the coupling the bare sensor (short dipole, no wheel) would give on this ray
+        (direct ray only; None on the road ray)
+    Road ray only: point (N, 3) the road point, m; grazing (N,) rad; n_te, t_tm (N, 3) the TE unit
+    vector and the reflected TM unit vector; e_te, e_tm (N,) complex, the incident field's TE and TM
+    components; gamma_te, gamma_tm (N,) complex Fresnel coefficients (core.propagation.fresnel_reflection).
+    """
+
+    e: np.ndarray
+    u: np.ndarray
+    body: tuple
+    body_db: np.ndarray
+    wheel: object = None
+    bare_c: np.ndarray | None = None
+    point: np.ndarray | None = None
+    grazing: np.ndarray | None = None
+    n_te: np.ndarray | None = None
+    t_tm: np.ndarray | None = None
+    e_te: np.ndarray | None = None
+    e_tm: np.ndarray | None = None
+    gamma_te: np.ndarray | None = None
+    gamma_tm: np.ndarray | None = None
+
+
+@dataclass(frozen=True)
+class LinkRays:
+    """The rays of N links before they are summed: the direct ray, the road ray (or None) and its
+    phase lag behind the direct ray, rad; ``floor_ratio`` = f^2 of the null floor. :meth:`field` is
+    the one place where the rays become the received field (:class:`LinkField`)."""
+
+    direct: Ray
+    road: Ray | None
+    phase: np.ndarray | None
+    floor_ratio: float
+    direct_detail: RayDetail | None = None
+    road_detail: RayDetail | None = None
+
+    def field(self) -> LinkField:
+        """The coherent ray sum relative to the direct ray's phase and the null floor's power."""
+        dr = self.direct
+        # The ray sum in real arithmetic, relative to the direct ray's phase e^{-jkd} (which drops out
+        # of the magnitude): field = c_d g_d + c_r g_r e^{-jk (d_r - d)}, g = 10^(-L/20) / d.
+        g_d = 10.0 ** (-dr.loss_db / 20.0) / dr.d
+        field_re = dr.c.real * g_d
+        field_im = dr.c.imag * g_d
+        floor2 = g_d * g_d
+        if self.road is not None:
+            rr = self.road
+            g_r = 10.0 ** (-rr.loss_db / 20.0) / rr.d
+            b = rr.c * g_r
+            cos, sin = np.cos(self.phase), np.sin(self.phase)
+            field_re = field_re + (b.real * cos + b.imag * sin)  # b e^{-j phase}
+            field_im = field_im + (b.imag * cos - b.real * sin)
+            floor2 = floor2 + g_r * g_r
+        return LinkField(field_re, field_im, self.floor_ratio * floor2)
 
 
 def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: np.ndarray,
@@ -220,75 +310,124 @@ def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: n
     max(|c|, f) of the design; with the road ray it also bounds the two-ray nulls. The depth f is
     the radio setup's ``null_floor_db`` (engineering default -30 dB).
     """
+    f = link_rays(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits).field()
+    return with_cavity(scene, f, wheel_index, theta, dst, r_axis, diffuse_factor)
+
+
+def with_cavity(scene, f: LinkField, wheel_index, theta: np.ndarray, dst: np.ndarray, r_axis: np.ndarray,
+                diffuse_factor: np.ndarray | None = None) -> LinkField:
+    """The coherent field ``f`` of N links with the scene's cavity term: the diffuse power of the cabin fed
+    through its openings (core.cavity) at the receivers ``dst`` (N, 3) with axes ``r_axis`` (N, 3), and the
+    scene's fade probability. The one place where the diffuse part joins the rays."""
+    if getattr(scene, "cavity", None) is None:
+        return LinkField(f.re, f.im, f.floor2, 0.0, getattr(scene, "fade_probability", 0.0))
+    from core.cavity import spot_factor
+
+    if diffuse_factor is None:
+        diffuse_factor = spot_factor(scene, dst, r_axis)
+    wheel = np.broadcast_to(np.asarray(wheel_index), np.shape(theta))
+    diffuse = scene.cavity.input_at(wheel, theta) * diffuse_factor
+    return LinkField(f.re, f.im, f.floor2, diffuse, scene.fade_probability)
+
+
+def link_rays(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: np.ndarray,
+              bits0: np.ndarray, dst: np.ndarray, r_axis: np.ndarray,
+              spot_bits: np.ndarray | None = None, detail: bool = False) -> LinkRays:
+    """The rays of N links (arguments as :func:`link_field`, which sums them); with ``detail`` every
+    intermediate value of each ray as well (:class:`RayDetail`: panels crossed, wheel parts, fields,
+    Fresnel coefficients), computed by the same code, so a budget built from them is the engine's."""
     groups = _wheel_groups(wheel_index, len(src))
-    floor2_amp = 10.0 ** (scene.null_floor_db / 10.0)
+    body = body_loss_terms if detail else body_loss_db
+
+    def body_of(a, b, bits):
+        res = body(scene.hull, a, b, scene.freq_hz, bits)
+        return (res.total_db, res) if detail else (res, None)
 
     # direct ray
     u, d = _unit(dst - src)
     d = np.maximum(d, MIN_PATH_M)
     e_d = _sensor_fields(scene, groups, theta, s_axis, u, r_axis, d)
-    loss_d = body_loss_db(scene.hull, src, dst, scene.freq_hz, bits0)
+    body_d, terms_d = body_of(src, dst, bits0)
+    loss_d = body_d
+    wheel_d = None
     if scene.use_wheel_loss:
-        loss_d = loss_d + _wheel_losses(scene, groups, src, dst)
+        wheel_d = _wheel_losses(scene, groups, src, dst, detail)
+        loss_d = loss_d + (wheel_d.total_db if detail else wheel_d)
     if scene.receiver_pattern == "dipole":
         c_d = _dot(e_d, r_axis)
     else:
         norm_d = np.linalg.norm(e_d, axis=-1)
         ref = e_d / np.maximum(norm_d, 1e-12)[:, None]  # the direct ray's polarization
         c_d = norm_d.astype(complex)
-    # The ray sum in real arithmetic, relative to the direct ray's phase e^{-jkd} (which drops out
-    # of the magnitude): field = c_d g_d + c_r g_r e^{-jk (d_r - d)}, g = 10^(-L/20) / d.
-    g_d = 10.0 ** (-loss_d / 20.0) / d
-    field_re = c_d.real * g_d
-    field_im = c_d.imag * g_d
-    floor2 = g_d * g_d
+    direct = Ray(d, c_d, loss_d)
+    direct_detail = None
+    if detail:
+        bare = _perp(s_axis, u)
+        bare_c = _dot(bare, r_axis) if scene.receiver_pattern == "dipole" else np.linalg.norm(bare, axis=-1)
+        if scene.sensor_kind != "table":
+            bare_c = c_d
+        direct_detail = RayDetail(e=e_d, u=u, body=(terms_d,), body_db=body_d, wheel=wheel_d,
+                                  bare_c=np.asarray(bare_c, complex))
+    if not scene.ground_reflection:
+        return LinkRays(direct, None, None, 10.0 ** (scene.null_floor_db / 10.0), direct_detail)
 
-    if scene.ground_reflection:
-        img = src * _MIRROR
-        u_r, d_r = _unit(dst - img)
-        d_r = np.maximum(d_r, MIN_PATH_M)
-        u_i = u_r * _MIRROR  # direction leaving the sensor toward the road
-        tg = src[:, 2] / np.maximum(src[:, 2] + dst[:, 2], 1e-9)
-        g_pt = img + tg[:, None] * (dst - img)
-        g_pt[:, 2] = 0.0
-        e_i = _sensor_fields(scene, groups, theta, s_axis, u_i, r_axis, d_r)
-        n_te, n_len = _unit(np.cross(_Z, u_i))
-        vertical = n_len < 1e-9
-        if vertical.any():
-            n_te[vertical] = np.array([0.0, 1.0, 0.0])
-        t_i = np.cross(n_te, u_i)
-        grazing = np.arcsin(np.clip(u_r[:, 2], 0.0, 1.0))
-        g_perp, g_par = fresnel_reflection(scene.road_eps, grazing)
-        e_r = (g_perp * _dot(e_i, n_te))[:, None] * n_te - (g_par * _dot(e_i, t_i))[:, None] * (t_i * _MIRROR)
-        loss_r = body_loss_db(scene.hull, src, g_pt, scene.freq_hz, bits0)
-        # the road point -> receiver leg, traced from the receiver end (same panels and passages),
-        # so the start membership is the spot's, shared by every angle
-        if spot_bits is None:
-            spot_bits = start_bits(scene.hull, dst[:, 0], dst[:, 1], dst[:, 2])
-        loss_r = loss_r + body_loss_db(scene.hull, dst, g_pt, scene.freq_hz, spot_bits)
-        if scene.use_wheel_loss:
-            loss_r = loss_r + _wheel_losses(scene, groups, src, g_pt)
-        if scene.receiver_pattern == "dipole":
-            c_r = _dot(e_r, r_axis)
-        else:
-            c_r = _dot(e_r, np.conj(ref))
-        g_r = 10.0 ** (-loss_r / 20.0) / d_r
-        b = c_r * g_r
-        phase = scene.wavenumber * (d_r - d)  # the reflected ray's lag behind the direct ray, rad
-        cos, sin = np.cos(phase), np.sin(phase)
-        field_re = field_re + (b.real * cos + b.imag * sin)  # b e^{-j phase}
-        field_im = field_im + (b.imag * cos - b.real * sin)
-        floor2 = floor2 + g_r * g_r
+    img = src * _MIRROR
+    u_r, d_r = _unit(dst - img)
+    d_r = np.maximum(d_r, MIN_PATH_M)
+    u_i = u_r * _MIRROR  # direction leaving the sensor toward the road
+    tg = src[:, 2] / np.maximum(src[:, 2] + dst[:, 2], 1e-9)
+    g_pt = img + tg[:, None] * (dst - img)
+    g_pt[:, 2] = 0.0
+    e_i = _sensor_fields(scene, groups, theta, s_axis, u_i, r_axis, d_r)
+    n_te, n_len = _unit(np.cross(_Z, u_i))
+    vertical = n_len < 1e-9
+    if vertical.any():
+        n_te[vertical] = np.array([0.0, 1.0, 0.0])
+    t_i = np.cross(n_te, u_i)
+    grazing = np.arcsin(np.clip(u_r[:, 2], 0.0, 1.0))
+    g_perp, g_par = fresnel_reflection(scene.road_eps, grazing)
+    e_te, e_tm = _dot(e_i, n_te), _dot(e_i, t_i)
+    t_tm = t_i * _MIRROR
+    e_r = (g_perp * e_te)[:, None] * n_te - (g_par * e_tm)[:, None] * t_tm
+    body_r1, terms_r1 = body_of(src, g_pt, bits0)
+    # the road point -> receiver leg, traced from the receiver end (same panels and passages),
+    # so the start membership is the spot's, shared by every angle
+    if spot_bits is None:
+        spot_bits = start_bits(scene.hull, dst[:, 0], dst[:, 1], dst[:, 2])
+    body_r2, terms_r2 = body_of(dst, g_pt, spot_bits)
+    body_r = body_r1 + body_r2
+    loss_r = body_r
+    wheel_r = None
+    if scene.use_wheel_loss:
+        wheel_r = _wheel_losses(scene, groups, src, g_pt, detail)
+        loss_r = loss_r + (wheel_r.total_db if detail else wheel_r)
+    if scene.receiver_pattern == "dipole":
+        c_r = _dot(e_r, r_axis)
+    else:
+        c_r = _dot(e_r, np.conj(ref))
+    phase = scene.wavenumber * (d_r - d)  # the reflected ray's lag behind the direct ray, rad
+    road_detail = None
+    if detail:
+        road_detail = RayDetail(e=e_i, u=u_i, body=(terms_r1, terms_r2), body_db=body_r, wheel=wheel_r,
+                                point=g_pt, grazing=grazing, n_te=n_te, t_tm=t_tm, e_te=e_te, e_tm=e_tm,
+                                gamma_te=np.broadcast_to(g_perp, grazing.shape),
+                                gamma_tm=np.broadcast_to(g_par, grazing.shape))
+    return LinkRays(direct, Ray(d_r, c_r, loss_r), phase, 10.0 ** (scene.null_floor_db / 10.0), direct_detail,
+                    road_detail)
 
-    diffuse = 0.0
-    if getattr(scene, "cavity", None) is not None:
-        from core.cavity import spot_factor
 
-        if diffuse_factor is None:
-            diffuse_factor = spot_factor(scene, dst, r_axis)
-        wheel = np.broadcast_to(np.asarray(wheel_index), np.shape(theta))
-        diffuse = scene.cavity.input_at(wheel, theta) * diffuse_factor
-    return LinkField(field_re, field_im, floor2_amp * floor2, diffuse, getattr(scene, "fade_probability", 0.0))
+def sensor_states(scene, wheel_index: np.ndarray, theta: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Sensor positions (N, 3) m, unit antenna axes (N, 3) and hull membership bits (N,) of wheels
+    ``wheel_index`` (N,) at wheel angles ``theta`` (N,) rad (core.wheel.sensor_positions / sensor_axes)."""
+    th = np.asarray(theta, float).reshape(-1)
+    wheel = np.asarray(wheel_index).reshape(-1)
+    src = np.empty((len(th), 3))
+    for wi, w in enumerate(scene.wheels):
+        g = wheel == wi
+        if g.any():
+            src[g] = sensor_positions(w, th[g])
+    axes = sensor_axes(th, scene.vehicle.radio.sensor.axis)
+    return src, axes, start_bits(scene.hull, src[:, 0], src[:, 1], src[:, 2])
 
 
 def turn_field(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,

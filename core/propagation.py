@@ -27,19 +27,20 @@ __all__ = [
     "EPS0_F_PER_M",
     "SHORT_DIPOLE_DIRECTIVITY",
     "SHORT_DIPOLE_GAIN_DBI",
-    "wavelength_m",
+    "complex_permittivity",
+    "dipole_coupling_db",
+    "dipole_pattern_rel_db",
     "free_space_loss_db",
-    "near_field_limit_m",
-    "knife_edge_v",
+    "fresnel_reflection",
     "knife_edge_loss_db",
     "knife_edge_loss_exact_db",
+    "knife_edge_loss_slope_db",
+    "knife_edge_v",
     "mismatch_loss_db",
+    "near_field_limit_m",
     "perpendicular_part",
-    "dipole_pattern_rel_db",
-    "dipole_coupling_db",
-    "complex_permittivity",
-    "fresnel_reflection",
     "two_ray_loss_db",
+    "wavelength_m",
 ]
 
 #: Speed of light in vacuum, m/s (exact, SI definition).
@@ -147,6 +148,22 @@ def knife_edge_loss_db(v: ArrayLike) -> np.ndarray:
     with np.errstate(over="ignore"):  # v = +inf -> hypot(inf, 1) + inf = inf, loss inf
         loss = 6.9 + 20.0 * np.log10(np.hypot(x, 1.0) + x)
     out = np.where(v > _V_MIN_EQ31, loss, 0.0)
+    return np.where(np.isnan(v), np.nan, out)
+
+
+def knife_edge_loss_slope_db(v: ArrayLike) -> np.ndarray:
+    """Derivative dJ/dv of :func:`knife_edge_loss_db`, dB per unit v (>= 0).
+
+    dJ/dv = (20 / ln 10) / sqrt((v - 0.1)^2 + 1) for v > -0.78, else 0 (the derivative of
+    ln(sqrt(x^2 + 1) + x) is 1 / sqrt(x^2 + 1)).
+
+    References
+    ----------
+    ITU-R P.526-15, section 4.1, eq. (31), differentiated.
+    """
+    v = np.asarray(v, dtype=float)
+    x = np.maximum(v, _V_MIN_EQ31) - 0.1
+    out = np.where(v > _V_MIN_EQ31, (20.0 / np.log(10.0)) / np.hypot(x, 1.0), 0.0)
     return np.where(np.isnan(v), np.nan, out)
 
 

@@ -99,18 +99,21 @@ class Scene:
         for w in wheels:
             inner = abs(w.centre[1]) - 0.5 * w.tire_width_m - clearance
             wh.append((w.centre[0], w.centre[2], w.tire_radius_m + clearance, w.outboard_sign, inner))
-        top_zones = []
-        side_zones = []
+        top_zones, side_zones, top_labels, side_labels = [], [], [], []
         for z in v.zones:
             if z.view == "top":
                 zmin = z.z_min_m if z.z_min_m is not None else -np.inf
                 zmax = z.z_max_m if z.z_max_m is not None else np.inf
                 top_zones.append((np.asarray(z.outline), loss(z.material), zmin, zmax))
+                top_labels.append((z.name, z.material))
             else:
                 side_zones.append((np.asarray(z.outline), loss(z.material)))
+                side_labels.append((z.name, z.material))
         hull = build_hull(
             v.body.top_outline, v.body.side_outline, wh, top_zones, side_zones,
             default_loss_db=loss("metal"), wheelhouse_loss_db=loss(v.body.wheelhouse_material),
+            top_zone_labels=top_labels, side_zone_labels=side_labels, default_material="metal",
+            wheelhouse_material=v.body.wheelhouse_material,
         )
         n = r.angles_per_turn
         angles = np.arange(n) * (2.0 * np.pi / n)

@@ -40,9 +40,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from core.geometry import start_bits
-from core.links import LinkField, fade_power, link_field
-from core.wheel import sensor_axes, sensor_positions
+from core.links import LinkField, fade_power, link_field, sensor_states
 
 #: intervals refined per (spot, wheel)
 REFINE_INTERVALS = 3
@@ -118,8 +116,6 @@ class _Pairs:
         self.spot = np.repeat(np.arange(S), W)
         self.wheel = np.tile(np.arange(W), S)
         self.spots, self.axes, self.spot_bits = spots, axes, spot_bits
-        kind = scene.vehicle.radio.sensor.axis
-        self._axis = lambda th: sensor_axes(th, kind)
 
     def subset(self, idx: np.ndarray) -> "_Pairs":
         """The pairs ``idx`` only."""
@@ -139,14 +135,10 @@ class _Pairs:
         th = theta.reshape(-1)
         wheel = np.repeat(self.wheel, K)
         spot = np.repeat(self.spot, K)
-        src = np.empty((len(th), 3))
-        for wi, w in enumerate(sc.wheels):
-            g = wheel == wi
-            src[g] = sensor_positions(w, th[g])
-        bits0 = start_bits(sc.hull, src[:, 0], src[:, 1], src[:, 2])
+        src, s_axis, bits0 = sensor_states(sc, wheel, th)
         sb = None if self.spot_bits is None else self.spot_bits[spot]
         dif = None if self.spot_diffuse is None else self.spot_diffuse[spot]
-        f = link_field(sc, wheel, th, src, self._axis(th), bits0, self.spots[spot], self.axes[spot], sb, dif)
+        f = link_field(sc, wheel, th, src, s_axis, bits0, self.spots[spot], self.axes[spot], sb, dif)
         d = np.reshape(f.diffuse, (P, K)) if np.ndim(f.diffuse) else f.diffuse
         return LinkField(f.re.reshape(P, K), f.im.reshape(P, K), f.floor2.reshape(P, K), d, f.fade_q)
 

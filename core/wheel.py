@@ -107,6 +107,26 @@ def _to_wheel_frame(w: WheelGeometry, p: np.ndarray) -> tuple[np.ndarray, np.nda
     return p[..., 0] - cx, p[..., 2] - cz, w.outboard_sign * (p[..., 1] - cy)
 
 
+@dataclass(frozen=True)
+class WheelLossParts:
+    """The knife-edge wheel loss of paths split into its parts (arrays of the paths' shape).
+
+    rim_db : knife-edge loss over the rim flange, dB (0 where the edge does not act); rim_v : its
+    ITU-R P.526 parameter v (nan where the edge does not act); rim_shadowed : the path enters the rim
+    barrel; through_tread : the path leaves the tire through the steel-belted tread (else a sidewall);
+    tire_db : the tire exit's loss, dB. The wheel loss is rim_db + tire_db."""
+
+    rim_db: np.ndarray
+    rim_v: np.ndarray
+    rim_shadowed: np.ndarray
+    through_tread: np.ndarray
+    tire_db: np.ndarray
+
+    @property
+    def total_db(self) -> np.ndarray:
+        return self.rim_db + self.tire_db
+
+
 def wheel_loss_db(
     w: WheelGeometry,
     src: np.ndarray,
@@ -125,6 +145,12 @@ def wheel_loss_db(
     freq_hz : frequency, Hz
     sidewall_loss_db, tread_loss_db : crossing losses of the tire sidewall and the steel-belted tread, dB
     """
+    return wheel_loss_parts(w, src, dst, freq_hz, sidewall_loss_db, tread_loss_db).total_db
+
+
+def wheel_loss_parts(w: WheelGeometry, src: np.ndarray, dst: np.ndarray, freq_hz: float, sidewall_loss_db: float,
+                     tread_loss_db: float) -> WheelLossParts:
+    """:func:`wheel_loss_db` split into the rim knife edge and the tire exit (:class:`WheelLossParts`)."""
     src = np.asarray(src, float)
     dst = np.asarray(dst, float)
     sx, sz, sw = _to_wheel_frame(w, src)
@@ -167,6 +193,7 @@ def wheel_loss_db(
     # the knife edge only on the paths it acts on (shadowed, or lit within the tire's extent)
     m = np.flatnonzero(enters | lit_edge)
     rim_db = np.zeros(np.shape(length))
+    rim_v = np.full(np.shape(length), np.nan)
     if len(m):
         tfm, lm, tbm = tf[m], length[m], tb1[m]
         cm = crosses[m]
@@ -179,7 +206,8 @@ def wheel_loss_db(
         h = np.where(use_axial, h_axial, w.rim_radius_m - rho_f[m])
         d1 = np.where(use_axial, np.maximum(tbm, 1e-6), np.maximum(d1, 1e-6))
         d2 = np.where(use_axial, np.maximum(lm - tbm, 1e-6), np.maximum(d2, 1e-6))
-        rim_db[m] = knife_edge_loss_db(knife_edge_v(h, d1, d2, freq_hz))
+        rim_v[m] = knife_edge_v(h, d1, d2, freq_hz)
+        rim_db[m] = knife_edge_loss_db(rim_v[m])
 
     # 3. where the path leaves the tire: tread (steel belt) or sidewall
     ok_t, tt2 = root(w.tire_radius_m, +1)
@@ -189,5 +217,6 @@ def wheel_loss_db(
     t_side = np.where(np.abs(uw) > 1e-12, (side_w - sw) / uw_safe, np.inf)
     t_side = np.where(t_side > 0, t_side, np.inf)
     through_tread = (t_tread < t_side) & (t_tread < length)
-    tire_db = np.where(enters, sidewall_loss_db, np.where(through_tread, tread_loss_db, sidewall_loss_db))
-    return rim_db + tire_db
+    through_tread = ~enters & through_tread
+    tire_db = np.where(through_tread, tread_loss_db, sidewall_loss_db)
+    return WheelLossParts(rim_db, rim_v, enters, through_tread, tire_db)

@@ -21,7 +21,7 @@ def test_bench_quick_prints_the_summary_line_with_positive_figures(capsys):
     assert all(x > 0 for x in values), values
     # one line per figure before the summary
     for key in ("heatmap:", "heatmap links per second:", "single spot", "scalar reference:",
-                "peak memory of the heatmap call:", "peak memory of a", "cost growth:"):
+                "peak memory of the heatmap call:", "peak memory of a", "cost growth:", "defence analysis of 10 spots"):
         assert any(line.startswith(key) for line in lines), key
 
 

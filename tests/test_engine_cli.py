@@ -24,10 +24,19 @@ from engine_vehicles import REPO, SEDAN_PATH, sedan
 
 WHEEL_KEYS = {"wheel", "worst_dbm", "worst_angle_deg", "median_dbm", "levels_dbm"}
 SPOT_KEYS = {"rank", "name", "position_m", "receiver_axis", "margin_db", "margin_at_ceiling_db", "worst_wheel",
-             "worst_angle_deg", "near_field", "placement", "wheels"}
+             "worst_angle_deg", "near_field", "placement", "wheels", "p_pass", "link_budget", "sensitivity",
+             "measure_first"}
+BUDGET_KEYS = {"spot", "wheel", "at", "wheel_angle_deg", "position_m", "receiver_axis", "path_length_m", "terms",
+               "level_dbm", "sensitivity_dbm", "required_margin_db", "margin_db", "road_ray", "road_ray_level_dbm"}
+TERM_KEYS = {"key", "group", "label", "value_db", "note"}
+SENSITIVITY_KEYS = {"spot", "margin_db", "p_pass", "draws", "seed", "margin_p05_db", "margin_median_db",
+                    "fast_model_nominal_offset_db", "tornado", "not_varied"}
+BAR_KEYS = {"input", "label", "nominal", "low", "high", "margin_at_low_db", "margin_at_high_db", "swing_db", "source",
+            "effect"}
+INPUT_KEYS = {"input", "label", "nominal", "range", "distribution", "source", "effect"}
 PLACEMENT_KEYS = {"status", "distance_to_surface_m", "wheelhouse_of", "message"}
 TOP_KEYS = {"radio_limit", "vehicle", "body_style", "frequency_hz", "sensitivity_dbm", "required_margin_db",
-            "angles_deg", "spots", "setup", "caution"}
+            "angles_deg", "sensitivity_method", "uncertain_inputs", "spots", "setup", "caution"}
 
 
 def _rank_json(capsys, *extra) -> dict:
@@ -69,6 +78,15 @@ def test_rank_json_matches_the_engine(capsys):
         # margin = worst wheel's worst case - sensitivity - required margin (DESIGN.md section 5)
         worst = min(wd["worst_dbm"] for wd in d["wheels"])
         assert d["margin_db"] == pytest.approx(worst - doc["sensitivity_dbm"] - doc["required_margin_db"], abs=2e-3)
+        # the link budget by term: its terms add up to the worst wheel's worst case, and to the margin
+        b = d["link_budget"]["worst"]
+        assert set(b) == BUDGET_KEYS and b["wheel"] == d["worst_wheel"]
+        assert sum(t["value_db"] for t in b["terms"]) == pytest.approx(s.worst_dbm[i, s.worst_wheel[i]], abs=0.01)
+        assert b["margin_db"] == pytest.approx(d["margin_db"], abs=0.01)
+        assert d["link_budget"]["median"]["wheel"] == d["worst_wheel"]
+        assert 0.0 <= d["p_pass"] <= 1.0 and d["sensitivity"]["p_pass"] == d["p_pass"]
+        assert len(d["sensitivity"]["tornado"]) == len(doc["uncertain_inputs"])
+        assert d["measure_first"] and all(isinstance(t, str) for t in d["measure_first"])
 
 
 def test_rank_json_angles_option_sets_the_length_of_the_level_lists(capsys):
@@ -93,6 +111,29 @@ def test_rank_table_names_the_spots_and_carries_the_caution(capsys):
     out = capsys.readouterr().out
     assert "probe" in out and all(s.name in out for s in sedan().spots)
     assert "approximate" in out  # DESIGN.md section 8 caution
+    assert "P(pass)" in out and "axis" in out
+    row = next(ln for ln in out.splitlines() if "roof lining" in ln)
+    assert "(1,0,0)" in row  # the spot's own receiver axis is shown (issue 13)
+
+
+def test_rank_explain_prints_the_budget_tornado_and_what_to_measure(capsys):
+    assert main(["rank", str(SEDAN_PATH), "--explain", "roof lining"]) == 0
+    out = capsys.readouterr().out
+    v = sedan()
+    scene = Scene.from_vehicle(v)
+    s = score_vehicle(v, scene)
+    i = s.names.index("roof lining")
+    assert f"margin {s.margin_db[i]:+.2f} dB" in out
+    assert "Link budget, wheel FL at its worst angle" in out and "at the median angle" in out
+    assert "metal crossing loss" in out and "Measure first" in out and "P(pass)" in out
+    assert f"{s.worst_dbm[i, s.worst_wheel[i]]:.2f}" in out  # the budget's received level is the engine's worst case
+    assert "approximate" in out
+
+
+def test_rank_explain_unknown_spot_is_one_located_line(capsys):
+    assert main(["rank", str(SEDAN_PATH), "--explain", "glovebox"]) == 1
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "--explain" in err and "'glovebox'" in err and "roof lining" in err
 
 
 @pytest.mark.parametrize("bad", ["console", "console=-1.3,0", "console=-1.3,0,0.5,1", "console=a,b,c", "=1,0,0.5",
@@ -144,8 +185,13 @@ def test_cli_json_doc_describes_every_key(capsys):
     # docs/cli-json.md documents the rank document: every key the command prints has a table row.
     text = (REPO / "docs" / "cli-json.md").read_text(encoding="utf-8")
     doc = _rank_json(capsys, "--angles", "8")
-    keys = set(doc) | set(doc["spots"][0]) | set(doc["spots"][0]["wheels"][0]) | set(doc["spots"][0]["placement"])
+    sp = doc["spots"][0]
+    keys = set(doc) | set(sp) | set(sp["wheels"][0]) | set(sp["placement"])
     assert keys == TOP_KEYS | SPOT_KEYS | WHEEL_KEYS | PLACEMENT_KEYS
+    nested = set(sp["link_budget"]["worst"]) | set(sp["link_budget"]["worst"]["terms"][0]) | set(sp["sensitivity"])
+    nested |= set(sp["sensitivity"]["tornado"][0]) | set(doc["uncertain_inputs"][0])
+    assert nested >= BUDGET_KEYS | TERM_KEYS | SENSITIVITY_KEYS | BAR_KEYS | INPUT_KEYS
+    keys |= nested | {"part", "worst", "median"}
     keys |= set(doc["radio_limit"]) | set(doc["setup"]) | set(doc["setup"]["vehicle_file"])
     keys |= set(doc["setup"]["program"]) | set(doc["setup"]["overrides"]) | set(doc["setup"]["wheel_model"])
     missing = [k for k in sorted(keys) if f"| `{k}` |" not in text]

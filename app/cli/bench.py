@@ -10,7 +10,9 @@ In one process and one run, after a warm-up, it measures (medians of several rep
   the heatmap's link count: the speedup of the engine over it;
 - peak memory of the heatmap call and of a 10,000-spot grid: the tracemalloc peak of the call
   (numpy reports its buffers to tracemalloc), measured in separate untimed runs;
-- cost growth: one run each for grids of 600, 2,400 and 9,600 spots.
+- cost growth: one run each for grids of 600, 2,400 and 9,600 spots;
+- defence analysis (issue 13): scoring 10 spots and core.defence.defend of them (link budgets by term,
+  tornado, Monte-Carlo P(pass)), median time and its ratio to the heatmap of the same run.
 
 One line per figure, then the summary line
 ``heatmap_s=<x> spot_ms=<y> speedup=<z> links_per_s=<w> peak_mib=<m>``.
@@ -30,6 +32,7 @@ import numpy as np
 
 from app.cli import options
 from app.cli.engine import _Progress, add_progress_options
+from core.sensitivity import DEFAULT_DRAWS
 from core.vehicle import load_vehicle
 
 MAIN_STEP_M = 0.05
@@ -122,6 +125,38 @@ def reference_seconds_per_link(v, scene, points: np.ndarray, n_links: int, seed:
     return (time.perf_counter() - t0) / n_links, degenerate
 
 
+DEFENCE_SPOTS = 10
+
+
+def defence_seconds(v, scene, hm, repeats: int) -> tuple[float, int, int]:
+    """Median time, s, of the whole defence analysis of 10 spots (core.defence.defend after scoring them): the
+    file's spots, topped up with the heatmap's best cells when the file has fewer; also the spot count and the
+    links its fast model traced."""
+    from core.defence import defend
+    from core.scoring import score_spots, vehicle_spot_arrays
+    from core.sensitivity import PerturbationModel, uncertain_inputs
+
+    names, pos, axes = vehicle_spot_arrays(v)
+    names, pos, axes = list(names[:DEFENCE_SPOTS]), pos[:DEFENCE_SPOTS], axes[:DEFENCE_SPOTS]
+    extra = DEFENCE_SPOTS - len(names)
+    if extra > 0:
+        cells = np.array([c[:3] for c in hm.best_cells(extra)], float).reshape(-1, 3)
+        a = np.asarray(v.radio.receiver.axis, float)
+        names += [f"cell {k + 1}" for k in range(len(cells))]
+        pos = np.vstack([pos, cells])
+        axes = np.vstack([axes, np.broadcast_to(a / np.linalg.norm(a), cells.shape)])
+
+    def run():
+        sc = score_spots(scene, pos, axes, names)
+        return defend(scene, sc, axes)
+
+    run()  # warm-up
+    t, _, _ = _median_time(run, repeats)
+    sc = score_spots(scene, pos, axes, names)
+    links = PerturbationModel(scene, uncertain_inputs(v, scene), pos, axes, np.radians(sc.worst_angle_deg)).links
+    return t, len(names), links
+
+
 def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_progress: bool, with_reference: bool,
                 out=print) -> dict:
     """Run every figure for one wheel model; print one line per figure; return the figures."""
@@ -164,6 +199,10 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
     spot_s, _, _ = _median_time(lambda: score_spots(scene, one), spot_repeats)
     out(f"single spot ({one[0, 0]:.2f}, {one[0, 1]:.2f}, {one[0, 2]:.2f}) m, {W} wheels x {A} angles: "
         f"{spot_s * 1e3:.2f} ms (median of {spot_repeats})")
+
+    defence_s, n_def, d_links = defence_seconds(v, scene, hm, repeats)
+    out(f"defence analysis of {n_def} spots (scores, budgets by term, tornado, {DEFAULT_DRAWS}-draw P(pass); "
+        f"{d_links} links traced): {defence_s:.3f} s (median of {repeats}) = {defence_s / heat_s:.2f} x the heatmap")
 
     speedup = None
     if with_reference:

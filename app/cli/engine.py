@@ -62,13 +62,19 @@ def _show_progress(args) -> bool:
 
 
 def _cmd_rank(args) -> int:
+    from core.defence import defend
     from core.regulatory import check_sensor_eirp
-    from core.scoring import Scene, score_vehicle
+    from core.scoring import Scene, score_vehicle, vehicle_spot_arrays
 
     v, source, overrides = _load_with_spots(args)
     if not v.spots:
         print(f"error: {args.file}: spots: the file has no receiver spots; add some with --spot NAME=X,Y,Z",
               file=sys.stderr)
+        return 1
+    names = [s.name for s in v.spots]
+    if args.explain is not None and args.explain not in names:
+        print(f"error: {args.file}: --explain: no spot named {args.explain!r} (spots: "
+              f"{', '.join(repr(n) for n in names)})", file=sys.stderr)
         return 1
     from core.placement import classify
 
@@ -76,8 +82,12 @@ def _cmd_rank(args) -> int:
     scores = score_vehicle(v, scene, progress=_Progress(_show_progress(args), "spots"))
     require_finite_scores(scores, args.file)
     placement = classify(scene, scores.positions)
+    _, _, axes = vehicle_spot_arrays(v)
+    if args.explain is not None:
+        return _explain(args, v, scene, scores, axes, names.index(args.explain))
+    defence = defend(scene, scores, axes)
     if args.json:
-        doc = rank_document(v, scores, _setup(args, v, scene, source, overrides), placement)
+        doc = rank_document(v, scores, _setup(args, v, scene, source, overrides), placement, defence=defence)
         print(json.dumps({**doc, "caution": SAFETY_NOTE}, indent=1))
         return 0
     check = check_sensor_eirp(v.radio)
@@ -90,8 +100,8 @@ def _cmd_rank(args) -> int:
     if not check.over_ceiling:
         print(f"radio limit: {check.summary()}")
     at = f" {'at ceiling':>10}" if check.over_ceiling else ""
-    print(f"{'rank':>4}  {'spot':<24} {'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}{at}  {'worst wheel':<11} "
-          f"{'at deg':>6}  placement")
+    print(f"{'rank':>4}  {'spot':<24} {'x m':>7} {'y m':>7} {'z m':>7} {'axis':<15} {'margin dB':>10}{at} "
+          f"{'P(pass)':>7}  {'worst wheel':<11} {'at deg':>6}  placement")
     for rank, i in enumerate(scores.order(), 1):
         x, y, z = scores.positions[i]
         w = scores.worst_wheel[i]
@@ -99,10 +109,27 @@ def _cmd_rank(args) -> int:
         if scores.near_field[i]:
             flag += ", near field"
         at = f" {float(check.margin_at_ceiling_db(scores.margin_db[i])):10.1f}" if check.over_ceiling else ""
-        print(f"{rank:>4}  {scores.names[i]:<24} {x:7.3f} {y:7.3f} {z:7.3f} {scores.margin_db[i]:10.1f}{at}  "
-              f"{scores.wheel_ids[w]:<11} {scores.worst_angle_deg[i, w]:6.0f}  {flag}")
+        axis = "(" + ",".join(f"{a:.2g}" for a in axes[i]) + ")"
+        p = defence.p_pass(i)
+        print(f"{rank:>4}  {scores.names[i]:<24} {x:7.3f} {y:7.3f} {z:7.3f} {axis:<15} {scores.margin_db[i]:10.1f}{at} "
+              f"{100 * p:6.0f}%  {scores.wheel_ids[w]:<11} {scores.worst_angle_deg[i, w]:6.0f}  {flag}")
     for i, msg in placement.messages():
         print(f"warning: spots[{i}] {scores.names[i]!r}: {msg}")
+    print(f"P(pass): share of {defence.cases[0].sensitivity.draws} Monte-Carlo draws of the uncertain inputs with "
+          f"margin >= 0 dB; the inputs, ranges and a spot's link budget: rank FILE --explain SPOT")
+    print_safety_note()
+    return 0
+
+
+def _explain(args, v, scene, scores, axes, i: int) -> int:
+    """``rank FILE --explain SPOT``: the spot's budget by term, its tornado, P(pass) and what to measure first."""
+    from app.cli.explain import explain_text
+    from core.defence import defend
+
+    d = defend(scene, scores, axes, [i])
+    own = v.spots[i].axis is not None
+    print(explain_text(v, scores, i, d.cases[i], axes[i], "the spot's own" if own else "the radio's default",
+                       d.inputs))
     print_safety_note()
     return 0
 
@@ -202,7 +229,10 @@ def register(sub) -> None:
     r.add_argument("--angles", type=options.angles, metavar="N", help=angles_help)
     r.add_argument("--no-ground", action="store_true", help="leave out the road reflection")
     r.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern"], help="override the file's wheel model")
-    r.add_argument("--json", action="store_true", help="print the ranking as JSON with per-angle levels")
+    r.add_argument("--json", action="store_true", help="print the ranking as JSON with per-angle levels, link "
+                                                       "budgets by term, tornado and P(pass) per spot")
+    r.add_argument("--explain", metavar="SPOT", help="print one spot's link budget by term (worst and median angle), "
+                                                     "what its margin depends on, P(pass) and what to measure first")
     add_progress_options(r)
     r.set_defaults(func=_cmd_rank)
     h = sub.add_parser("heatmap", help="link margin over a mounting region grid")

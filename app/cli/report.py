@@ -56,7 +56,7 @@ def _cmd_compare(args) -> int:
                                                                "bodies"))
         except NoSharedRegion as e:
             err = str(e)
-    text = comparison_text(c, search, err)
+    text = comparison_text(c, search, err, vehicles)
     if text.endswith(SAFETY_NOTE):  # the note ends the text; here it is printed last, after the files
         text = text[: -len(SAFETY_NOTE)].rstrip("\n")
     print(text)

@@ -35,6 +35,7 @@ from app.gui.heatmap_worker import HeatmapJob
 from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, wheel_colour
 from app.gui.tasks import Task, run_soon
 from app.heatmap_contour import polylines_for_plot, zero_contour
+from app.margin_scale import MARGIN_RANGE_DB
 from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
 from core.placement import INSIDE, NEAR_SURFACE, classify
@@ -105,7 +106,7 @@ class HeatmapPanel(QWidget):
         self.iso.setZValue(-5)
         self.plot.addItem(self.iso)
         self.colorbar = self.plot.getPlotItem().addColorBar(
-            self.image, colorMap=margin_colormap(), values=(-20.0, 20.0), label="worst-case margin (dB)",
+            self.image, colorMap=margin_colormap(), values=(-MARGIN_RANGE_DB, MARGIN_RANGE_DB), label="worst-case margin (dB)",
             interactive=False, width=14,
         )
         self.spots = pg.ScatterPlotItem(size=8, pen=pg.mkPen("k"), brush=pg.mkBrush(255, 255, 255, 230))
@@ -422,7 +423,7 @@ class SpotTable(QTableWidget):
                     if c == 3 and pending[i]:
                         item.setToolTip("being scored in the background")
                     elif c == 3:
-                        col = self._cmap.map(np.clip((m + 20.0) / 40.0, 0, 1), mode="qcolor")
+                        col = self._cmap.map(np.clip(0.5 + 0.5 * m / MARGIN_RANGE_DB, 0, 1), mode="qcolor")
                         col.setAlpha(150)
                         item.setBackground(col)
                         if sc.near_field is not None and sc.near_field[i]:
@@ -619,34 +620,48 @@ class SpotFigures(QWidget):
                    size="9pt")
 
     def _draw_burst(self, r) -> None:
+        """Burst success vs speed; when every burst gets through, the burst margin instead (the extra loss the
+        bursts still survive, core.burst), so the figure says how much is to spare rather than a flat 100 %."""
         p = self.burst
         p.clear()
         self.burst_result = r
         kmh = r.speeds_mps * KMH_PER_MPS
-        per_wheel = max(2, MAX_REPEAT_MARKERS // max(1, len(r.wheel_ids)))
-        drawn = total = 0
+        all_pass = r.margin_db is not None and float(r.success.min()) >= 1.0
+        data = r.margin_db if all_pass else 100 * r.success
+        parked = r.parked_margin_db if all_pass else 100 * r.parked
+        right = {g.id for g in self.doc.scene.wheels if g.outboard_sign < 0}
         for w, wid in enumerate(r.wheel_ids):
             col = wheel_colour(w)
-            p.plot(kmh, 100 * r.success[w], pen=pg.mkPen(col, width=1.8), name=wid)
-            p.plot([0.0], [100 * r.parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
-            rs = np.asarray(r.resonant_mps[w])
-            counts = getattr(r, "resonant_count", ())  # core may list only the lowest ones and count them all
-            total += int(counts[w]) if len(counts) > w else len(rs)
-            drawn += min(len(rs), per_wheel)
-            if len(rs):  # one item per wheel: vertical dotted segments at the lowest repeat speeds
-                xs = np.repeat(rs[:per_wheel] * KMH_PER_MPS, 2)
-                ys = np.tile([0.0, 100.0], len(xs) // 2)
-                c = QColor(col)
-                c.setAlpha(110)
-                p.plot(xs, ys, connect="pairs", pen=pg.mkPen(c, width=1, style=Qt.PenStyle.DotLine))
-        wi, vi = r.worst()
+            # right-side wheels dashed: mirrored wheels give the same curve, both stay visible
+            style = Qt.PenStyle.DashLine if wid in right else Qt.PenStyle.SolidLine
+            p.plot(kmh, data[w], pen=pg.mkPen(col, width=1.8, style=style), name=wid)
+            p.plot([0.0], [parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
+        # one grey dotted line per speed at which the frames repeat, the lowest MAX_REPEAT_MARKERS of them (one item)
+        lowest = [np.asarray(rs, float)[:MAX_REPEAT_MARKERS] for rs in r.resonant_mps]  # ascending per wheel
+        speeds = np.unique(np.round(np.concatenate(lowest), 6)) if lowest else np.zeros(0)
+        counts = getattr(r, "resonant_count", ())  # core may list only the lowest ones and count them all
+        total = int(sum(counts)) if len(counts) else sum(len(rs) for rs in r.resonant_mps)
+        shown = speeds[:MAX_REPEAT_MARKERS] * KMH_PER_MPS
+        repeat = "dotted: frames repeat" + (f" (lowest {len(shown):,} of {total:,} drawn)" if len(shown) < total else "")
+        if len(shown):
+            lo_y, hi_y = (min(0.0, float(data.min())) - 50, float(data.max()) + 50) if all_pass else (0.0, 100.0)
+            p.plot(np.repeat(shown, 2), np.tile([lo_y, hi_y], len(shown)), connect="pairs",
+                   pen=pg.mkPen(120, 120, 120, width=1, style=Qt.PenStyle.DotLine))
         rad = self.doc.vehicle.radio
-        repeat = "dotted: frames repeat"
-        if drawn < total:
-            repeat += f" (lowest {drawn:,} of {total:,} drawn)"
-        p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
-                   f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
-                   f"squares: parked; {repeat}", size="8pt")
+        if all_pass:
+            need = self.doc.scores.required_margin_db
+            p.addItem(pg.InfiniteLine(need, angle=0, pen=pg.mkPen(60, 60, 60, width=1, style=Qt.PenStyle.DashLine)))
+            p.setYRange(min(0.0, float(data.min()), need) - 2, max(float(data.max()), need) + 4, padding=0)
+            p.setLabel("left", "burst margin", units="dB")
+            p.setTitle(f"every burst gets through: lowest burst margin {float(data.min()):.0f} dB<br>dashed: "
+                       f"required margin; squares: parked; {repeat}", size="8pt")
+        else:
+            wi, vi = r.worst()
+            p.setYRange(0, 100, padding=0.03)
+            p.setLabel("left", "bursts heard", units="%")
+            p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
+                       f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
+                       f"squares: parked; {repeat}", size="8pt")
         p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
 
     def _draw_separation(self, sc, i: int) -> None:

@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
 
 from app.gui import commands, dialogs
 from app.gui.body_views import BodyView
+from app.gui.defence_panel import install_defence_panel
 from app.gui.document import Document
 from app.gui.ranking_panel import RankingPanel
 from app.gui.recovery import DEBOUNCE_MS, RecoveryCopy, find_orphans, recovery_dir
@@ -176,6 +177,7 @@ class MainWindow(QMainWindow):
         self.recovery_timer.timeout.connect(self.write_recovery)
         doc.undo_stack.indexChanged.connect(self._edited)
         doc.cleanChanged.connect(self._edited)
+        install_defence_panel(self)  # the selected spot's link budget, tornado and P(pass) (app/gui/defence_panel.py)
         self.resize(1600, 1000)
 
     # ----- menus -----------------------------------------------------------------------
@@ -404,6 +406,7 @@ class MainWindow(QMainWindow):
         # nothing waits for a worker: each is asked to stop and finishes its current chunk unseen
         self.ranking.heatmap.abandon()
         self.ranking.figures.abandon()
+        self.defence_panel.abandon()
         self.doc.abandon_work()
         if getattr(self, "report_export", None) is not None:
             self.report_export.cancel()

@@ -11,7 +11,7 @@ import numpy as np
 
 from app.caution import SAFETY_NOTE
 from app.report.data import CAUTION, file_sha256, program_version
-from core.compare import CommonSearch, Comparison
+from core.compare import CommonSearch, Comparison, names_at_several_places, recommend
 from core.vehicle import read_vehicle_bytes
 
 
@@ -37,7 +37,58 @@ def describe_position(search: CommonSearch) -> str:
     return f"{abs(dx):.3f} m {where} the {lm}, y = {y + 0.0:+.3f} m, {z}"
 
 
-def comparison_text(c: Comparison, search: CommonSearch | None = None, search_error: str = "") -> str:
+def verdict_lines(c: Comparison, search: CommonSearch | None, vehicles=None) -> list[str]:
+    """The comparison's verdict: per body whether the platform-common spot meets the requirement, which of the
+    common spot and the searched position is recommended and why, and spot names defined at different places."""
+    rec = recommend(c, search)
+    if rec is None:
+        return ["No spot to compare."]
+    labels = body_labels(c)
+    i = c.common_best
+    per_body = []
+    for b, lab in enumerate(labels):
+        m = c.margin_db[i, b]
+        per_body.append(f"{lab} {'-' if np.isnan(m) else f'{m:+.1f} dB'} "
+                        f"{'meets' if rec.common_meets[b] else 'FAILS'}")
+    n_ok = sum(rec.common_meets)
+    out = [f"Platform-common spot '{c.spot_names[i]}' meets the requirement on {n_ok} of {len(labels)} bodies: "
+           + "; ".join(per_body) + "."]
+    if rec.search_meets is not None:
+        out.append(f"Searched position meets it on {sum(rec.search_meets)} of {len(labels)} bodies: "
+                   + "; ".join(f"{lab} {m:+.1f} dB" for lab, m in zip(labels, search.best_margins_db)) + ".")
+    out.append(f"Recommended: the {rec.choice}, because {rec.reason}.")
+    if vehicles is not None:
+        flags = names_at_several_places(list(vehicles))
+        if flags:
+            out.append("Same name, different places: " + ", ".join(f"'{f.name}'" for f in flags) + ": each file "
+                       "places these in its own coordinates, at different places on different bodies, so their rows "
+                       "compare different places (the definitions per body follow the table).")
+    return out
+
+
+def name_flag_lines(c: Comparison, vehicles) -> list[str]:
+    """Every spot name defined at different places, with its definitions per body."""
+    labels = body_labels(c)
+    return [f.text(labels) for f in names_at_several_places(list(vehicles))] if vehicles is not None else []
+
+
+def verdict_box_html(c: Comparison, search: CommonSearch | None, vehicles) -> str:
+    """The comparison PDF's boxed verdict (first on page 1): green when the recommended place meets the requirement
+    on every body, red otherwise."""
+    from app.report.pdf import esc
+
+    rec = recommend(c, search)
+    lines = verdict_lines(c, search, vehicles)
+    good = rec is not None and all(rec.common_meets if rec.choice == "common spot" else (rec.search_meets or ()))
+    colour = "#e3f2e1" if good else "#f8d0d0"
+    body = "".join(f"<p>{'<b>' + esc(t) + '</b>' if t.startswith('Recommended') else esc(t)}</p>" for t in lines)
+    return (f"<table width='100%' cellpadding='6' style='border: 1.2px solid #404040'><tr>"
+            f"<td style='background-color:{colour}'><p style='font-size:10.5pt'><b>Verdict</b></p>{body}</td></tr>"
+            "</table>")
+
+
+def comparison_text(c: Comparison, search: CommonSearch | None = None, search_error: str = "",
+                    vehicles=None) -> str:
     labels = body_labels(c)
     w = max(24, max(len(n) for n in c.spot_names) + 1)
     head = f"{'spot':<{w}}" + "".join(f"{lab:^14}" for lab in labels) + f"{'min dB':>9}  limited by"
@@ -70,6 +121,9 @@ def comparison_text(c: Comparison, search: CommonSearch | None = None, search_er
                          f"({search.best_worst_wheel[b]})")
     elif search_error:
         lines.append(f"Shared-region search: {search_error}")
+    lines.append("")
+    lines += verdict_lines(c, search, vehicles)
+    lines += ["  " + t for t in name_flag_lines(c, vehicles)]
     lines.append(SAFETY_NOTE)
     return "\n".join(lines)
 
@@ -118,6 +172,7 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
         f.html(f"<h1>Body-style comparison</h1><p style='font-size:11pt'>{len(vehicles)} bodies, "
                f"{len(c.spot_names)} spots &mdash; {now.strftime('%Y-%m-%d %H:%M %Z')}, Wheelreach "
                f"{esc(program_version())}</p>", 6)
+        f.html(verdict_box_html(c, search, vehicles), 8)
         f.table(["Body", "Vehicle", "Input", "SHA-256"],
                 [[esc(lab), esc(v.name), esc(Path(p).name if p else "unsaved document"), f"<span class='mono'>{h}</span>"]
                  for lab, v, p, h in zip(labels, vehicles, paths, hashes)], [11, 24, 18, 47], small=True)
@@ -157,6 +212,7 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
         f.html("<p class='small'>Spots numbered by their row in the table below; ringed: the platform-common best "
                "spot.</p>", 4)
         head = ["#", "Spot"] + [esc(lab) for lab in labels] + ["Min dB", "Limited by"]
+        moved = {fl.name for fl in names_at_several_places(list(vehicles))}
         rows = []
         for n, i in enumerate(c.order(), 1):
             cells = []
@@ -164,7 +220,8 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
                 m = c.margin_db[i, b]
                 cells.append("&ndash;" if np.isnan(m) else f"{m:+.1f} {esc(c.worst_wheel[i, b])}"
                              + ("*" if c.carried[i, b] else ""))
-            rows.append([str(n), esc(c.spot_names[i]) + ("" if c.present_all[i] else " &dagger;"), *cells,
+            rows.append([str(n), esc(c.spot_names[i]) + ("" if c.present_all[i] else " &dagger;")
+                         + (" &Dagger;" if c.spot_names[i] in moved else ""), *cells,
                          f"<b>{c.min_margin_db[i]:+.1f}</b>", esc(labels[c.limiting_body[i]])])
         nb = len(labels)
         wcell = int(55 / max(nb, 1))
@@ -173,7 +230,11 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
                 highlight={order.index(best)} if best >= 0 else set(), small=True)
         f.html("<p class='small'>&dagger; not on every body (cannot be the platform-common spot); * = landmark-relative "
                "spot carried from another file; &ndash; = not on this body. Min dB: the smallest margin over the bodies "
-               "that have the spot.</p>", 4)
+               "that have the spot. &Dagger; = the same name at different places on different bodies (below).</p>", 4)
+        flags = name_flag_lines(c, vehicles)
+        if flags:
+            f.html("<p class='small'><b>Same name, different places:</b> " + " ".join(esc(t) + "." for t in flags)
+                   + "</p>", 4)
         f.html(f"<table width='100%' cellpadding='5'><tr><td class='caution'><b>{esc(CAUTION)}</b></td></tr></table>",
                4)
 

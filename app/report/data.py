@@ -21,13 +21,14 @@ from app.caution import CAUTION
 from app.report.rank_json import rank_document
 from core.bounds import check_heatmap_work, require_finite_heatmap, require_finite_scores
 from core.burst import BurstResult, burst_for_spot
+from core.defence import Defence, Verdict, defend, verdict
 from core.distinctness import Distinctness, wheel_distinctness
 from core.materials import BUILTIN_MATERIALS, ROAD_SURFACES, material_loss_db
 from core.placement import Placement, classify
 from core.propagation import near_field_limit_m
 from core.provenance import csv_preamble, load_with_source, program_version, setup_record
 from core.regulatory import EirpCheck, check_sensor_eirp
-from core.scoring import Heatmap, Scene, SpotScores, heatmap, score_vehicle
+from core.scoring import Heatmap, Scene, SpotScores, heatmap, score_vehicle, vehicle_spot_arrays
 from core.vehicle import Region, Vehicle
 
 #: how many of the best spots get their own page (levels, burst, distinctness)
@@ -76,6 +77,9 @@ class ReportData:
     placement: Placement | None = None  # core.placement.classify of the spots (scores order)
     setup: dict = field(default_factory=dict)  # core.provenance.setup_record: what produced these numbers
     eirp_check: EirpCheck | None = None  # the sensor EIRP against the market's ceiling (core.regulatory)
+    defence: Defence | None = None  # per spot: budget by term, tornado, P(pass), what to measure (core.defence)
+    verdict: Verdict | None = None  # the recommended spot and why (page 1)
+    axes: np.ndarray | None = None  # (S, 3) the receiver axes the spots were scored with
 
     def best_index(self) -> int:
         """Index (into scores) of the best-ranked spot that is a receiver position (inside the body,
@@ -322,7 +326,9 @@ def build_report_data(
     scores = score_vehicle(v, scene, progress=spots_done, cancel=cancel)
     require_finite_scores(scores, source)
     placement = classify(scene, scores.positions)
-    ranking = rank_document(v, scores, placement=placement)
+    axes = vehicle_spot_arrays(v)[2]
+    defence = defend(scene, scores, axes)
+    ranking = rank_document(v, scores, placement=placement, defence=defence)
     done = [n_spots]
     maps = []
     for r, n in zip(regions, sizes):
@@ -353,7 +359,7 @@ def build_report_data(
         regions=regions, heatmaps=tuple(maps), step_m=step_m, details=details,
         materials=_materials_in_use(v), radio_rows=radio_rows, eirp_note=eirp_note,
         near_field_limit_m=float(near_field_limit_m(scene.freq_hz)), placement=placement, setup=setup,
-        eirp_check=check,
+        eirp_check=check, defence=defence, verdict=verdict(scores, defence, axes, placement), axes=axes,
     )
     findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note, placement)
     return ReportData(**{**data.__dict__, "findings": findings})
@@ -430,12 +436,15 @@ def report_json(d: ReportData) -> dict:
         "details": details,
         "materials": [dict(m) for m in d.materials],
         "findings": d.findings,
+        "verdict": None if d.verdict is None else {"spot": d.verdict.name, "margin_db": _r(d.verdict.margin_db),
+                                                    "p_pass": _r(d.verdict.p_pass, 4), "text": d.verdict.lines()},
         "caution": CAUTION,
     }
 
 
 CSV_COLUMNS = ("record", "rank", "spot", "region", "wheel", "x_m", "y_m", "z_m", "angle_deg", "level_dbm",
-               "worst_dbm", "median_dbm", "margin_db", "worst_wheel", "near_field", "placement", "margin_at_ceiling_db")
+               "worst_dbm", "median_dbm", "margin_db", "worst_wheel", "near_field", "placement", "margin_at_ceiling_db",
+               "p_pass", "at", "term", "value_db")
 
 
 def report_csv(d: ReportData) -> str:
@@ -448,6 +457,9 @@ def report_csv(d: ReportData) -> str:
     - ``level``: spot, wheel, angle_deg, level_dbm (every angle of the turn)
     - ``cell``: region, x/y/z, margin_db, margin_at_ceiling_db, worst_wheel (every computed heatmap cell: inside
       the region and a receiver position)
+    - ``term``: spot, wheel, at (worst / median), angle_deg, term (its label), value_db: the link budget by term of
+      the spot's worst wheel (core.budget; the terms of one budget add up to its level)
+    - ``bar``: spot, term (the input), margin_db at its low end (value_db column: at its high end): the tornado
     """
     buf = io.StringIO()
     buf.write(csv_preamble(d.eirp_check, d.setup))
@@ -460,7 +472,7 @@ def report_csv(d: ReportData) -> str:
                      "margin_db": s["margin_db"], "margin_at_ceiling_db": s["margin_at_ceiling_db"],
                      "worst_wheel": s["worst_wheel"],
                      "angle_deg": s["worst_angle_deg"], "near_field": int(s["near_field"]),
-                     "placement": s["placement"]["status"]})
+                     "placement": s["placement"]["status"], "p_pass": s.get("p_pass")})
     for s in d.ranking["spots"]:
         for w in s["wheels"]:
             wr.writerow({"record": "wheel", "rank": s["rank"], "spot": s["name"], "wheel": w["wheel"],
@@ -471,6 +483,14 @@ def report_csv(d: ReportData) -> str:
             for a, lv in zip(angles, w["levels_dbm"]):
                 wr.writerow({"record": "level", "rank": s["rank"], "spot": s["name"], "wheel": w["wheel"],
                              "angle_deg": a, "level_dbm": lv})
+    for s in d.ranking["spots"]:
+        for at, b in s.get("link_budget", {}).items():
+            for t in b["terms"]:
+                wr.writerow({"record": "term", "rank": s["rank"], "spot": s["name"], "wheel": b["wheel"], "at": at,
+                             "angle_deg": b["wheel_angle_deg"], "term": t["label"], "value_db": t["value_db"]})
+        for bar in s.get("sensitivity", {}).get("tornado", []):
+            wr.writerow({"record": "bar", "rank": s["rank"], "spot": s["name"], "term": bar["label"],
+                         "margin_db": bar["margin_at_low_db"], "value_db": bar["margin_at_high_db"]})
     for r, hm in zip(d.regions, d.heatmaps):
         pts = hm.points().reshape(-1, 3)
         for p, m, w in zip(pts, hm.margin_db.reshape(-1), hm.worst_wheel.reshape(-1)):

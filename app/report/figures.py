@@ -17,6 +17,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtGui import QBrush, QColor, QFont, QFontMetricsF, QImage, QPainter, QPainterPath, QPen, QPolygonF
 
+from app.margin_scale import MARGIN_RANGE_DB
 from core.scoring import Heatmap
 from core.vehicle import Region, Vehicle
 
@@ -196,6 +197,7 @@ def draw_body(ax: Axes, v: Vehicle, view: str, zones: bool = True, regions: bool
     p.setBrush(Qt.BrushStyle.NoBrush)
     p.setPen(pen(QColor(120, 120, 120) if light else BODY, 0.6 if light else 0.9, s))
     p.drawPath(_poly_path(ax, outline))
+    draw_wheelhouses(ax, v, view, light)
     for w in v.wheels:
         t = w.tire_size
         if view == "top":
@@ -221,6 +223,55 @@ def draw_body(ax: Axes, v: Vehicle, view: str, zones: bool = True, regions: bool
     p.restore()
 
 
+WHEELHOUSE = QColor(110, 80, 40)
+
+
+def wheelhouse_path(ax: Axes, v: Vehicle, w, view: str) -> QPainterPath:
+    """Outline of wheel w's wheelhouse as the engine models it (core.geometry): in the side view the arch of
+    radius tire radius + clearance about the wheel centre and the strip below it down to the ground; in the top
+    view its footprint from the wheelhouse inner wall (|y| = |y_wheel| - tire width / 2 - clearance) outward
+    (drawn to the tire's outer side plus the clearance)."""
+    t = w.tire_size
+    c = v.body.wheelhouse_clearance_m
+    r = t.outer_radius_m + c
+    path = QPainterPath()
+    if view == "side":
+        zc = t.outer_radius_m
+        n = 40
+        ang = np.linspace(0.0, math.pi, n)
+        xs = np.concatenate([[w.x_m + r, w.x_m + r], w.x_m + r * np.cos(ang), [w.x_m - r]])
+        zs = np.concatenate([[0.0, zc], zc + r * np.sin(ang), [0.0]])
+        path.addPolygon(ax.poly(xs, zs))
+    else:
+        sg = 1.0 if w.y_m >= 0 else -1.0
+        inner = abs(w.y_m) - t.section_width_m / 2 - c
+        outer = abs(w.y_m) + t.section_width_m / 2 + c
+        path.addPolygon(ax.poly([w.x_m - r, w.x_m + r, w.x_m + r, w.x_m - r],
+                                [sg * inner, sg * inner, sg * outer, sg * outer]))
+    path.closeSubpath()
+    return path
+
+
+def draw_wheelhouses(ax: Axes, v: Vehicle, view: str, light: bool = False):
+    """The wheelhouses (hatched, dashed outline): the engine's own shape (core.geometry), a wheel's sensor starts there."""
+    p, s = ax.p, ax.s
+    p.save()
+    p.setClipRect(ax.frame)
+    col = QColor(WHEELHOUSE)
+    col.setAlpha(110 if light else 170)
+    p.setPen(pen(col, 0.5, s, Qt.PenStyle.DashLine))
+    br = QBrush(col, Qt.BrushStyle.BDiagPattern)
+    p.setBrush(br)
+    done = set()
+    for w in v.wheels:
+        key = (round(w.x_m, 3), round(w.y_m, 3) if view == "top" else 0.0)
+        if key in done:
+            continue
+        done.add(key)
+        p.drawPath(wheelhouse_path(ax, v, w, view))
+    p.restore()
+
+
 def draw_wheel_labels(ax: Axes, v: Vehicle):
     p, s = ax.p, ax.s
     p.save()
@@ -241,9 +292,38 @@ def draw_wheel_labels(ax: Axes, v: Vehicle):
     p.restore()
 
 
+def _label_boxes(marks: list[QPointF], sizes: list[tuple[float, float]], r: float, s: float, frame: QRectF,
+                 fixed: list[QRectF]) -> list[tuple[QRectF, bool]]:
+    """Places for the labels of markers at ``marks``: boxes that overlap no other label, no marker and stay in the
+    frame. Next to the marker first (eight places), then further out with a leader line (rings of 16 directions
+    at growing distance). Returns (box, needs a leader line) per label."""
+    taken = list(fixed)
+    out = []
+    for q, (w, h) in zip(marks, sizes):
+        near = [QRectF(q.x() + r + 1.5 * s, q.y() - h / 2, w, h), QRectF(q.x() - w / 2, q.y() - r - h - 1 * s, w, h),
+                QRectF(q.x() - w / 2, q.y() + r + 1 * s, w, h), QRectF(q.x() - r - 1.5 * s - w, q.y() - h / 2, w, h),
+                QRectF(q.x() + r, q.y() - r - h, w, h), QRectF(q.x() + r, q.y() + r, w, h),
+                QRectF(q.x() - r - w, q.y() - r - h, w, h), QRectF(q.x() - r - w, q.y() + r, w, h)]
+        cands = [(c, False) for c in near]
+        for ring in (1, 2, 3, 4, 6):
+            dist = r + ring * (h + 3 * s)
+            for k in range(16):
+                ang = 2 * math.pi * k / 16
+                cx, cy = q.x() + dist * math.cos(ang), q.y() - dist * math.sin(ang)
+                cands.append((QRectF(cx - w / 2, cy - h / 2, w, h), True))
+        gap = 1.2 * s  # labels never touch: "2" next to "3" would read "23"
+        box, lead = next(((c, ld) for c, ld in cands if frame.contains(c) and not any(
+            c.adjusted(-gap, -0.2 * gap, gap, 0.2 * gap).intersects(o) for o in taken)), cands[0])
+        taken.append(box)
+        out.append((box, lead))
+    return out
+
+
 def draw_spots(ax: Axes, pts, labels, highlight: int = -1, colour=None, size_pt: float = 3.2,
-               label_pt: float = 6.5, halo: bool = True):
-    """Spot markers at (u, v) data points with text labels; ``highlight`` gets a larger ring."""
+               label_pt: float = 6.5, halo: bool = True, hollow=None):
+    """Spot markers at (u, v) data points with text labels that never overlap (a leader line where a label had to
+    move away from its marker); ``highlight`` gets a larger ring; ``hollow`` (per spot) draws an open marker (a spot
+    projected onto the view from another plane)."""
     p, s = ax.p, ax.s
     colour = QColor(200, 20, 20) if colour is None else colour
     p.save()
@@ -252,34 +332,42 @@ def draw_spots(ax: Axes, pts, labels, highlight: int = -1, colour=None, size_pt:
     fm = QFontMetricsF(p.font())
     r = size_pt * s
     marks = [ax.map(float(u), float(v)) for u, v in pts]
-    placed: list[QRectF] = [QRectF(m.x() - r, m.y() - r, 2 * r, 2 * r) for m in marks]
-    for k, ((u, v), lab) in enumerate(zip(pts, labels)):
-        q = marks[k]
-        p.setPen(pen(QColor(255, 255, 255), 0.8, s))
-        p.setBrush(QBrush(colour))
+    hollow = [False] * len(marks) if hollow is None else list(hollow)
+    for k, q in enumerate(marks):
+        if hollow[k]:
+            p.setPen(pen(colour, 1.0, s))
+            p.setBrush(QBrush(QColor(255, 255, 255, 200)))
+        else:
+            p.setPen(pen(QColor(255, 255, 255), 0.8, s))
+            p.setBrush(QBrush(colour))
         p.drawEllipse(q, r, r)
         if k == highlight:
             p.setBrush(Qt.BrushStyle.NoBrush)
             p.setPen(pen(QColor(0, 0, 0), 1.2, s))
             p.drawEllipse(q, 2.3 * r, 2.3 * r)
-        if lab:
-            w, h = fm.horizontalAdvance(lab), fm.height()
-            if k == highlight:  # outside the ring
-                r = 2.3 * size_pt * s
-            # try right, above, below, left of the marker; keep the first that overlaps no earlier label
-            cands = [QRectF(q.x() + r + 1.5 * s, q.y() - h / 2, w, h), QRectF(q.x() - w / 2, q.y() - r - h - 1 * s, w, h),
-                     QRectF(q.x() - w / 2, q.y() + r + 1 * s, w, h), QRectF(q.x() - r - 1.5 * s - w, q.y() - h / 2, w, h),
-                     QRectF(q.x() + r, q.y() - r - h, w, h), QRectF(q.x() + r, q.y() + r, w, h),
-                     QRectF(q.x() - r - w, q.y() - r - h, w, h), QRectF(q.x() - r - w, q.y() + r, w, h)]
-            box = next((c for c in cands if not any(c.intersects(o) for o in placed)), cands[0])
-            placed.append(box)
-            r = size_pt * s
-            if halo:
-                p.setPen(Qt.PenStyle.NoPen)
-                p.setBrush(QBrush(QColor(255, 255, 255, 190)))
-                p.drawRect(box.adjusted(-0.5 * s, 0, 0.5 * s, 0))
-            p.setPen(QColor(0, 0, 0))
-            p.drawText(QPointF(box.left(), box.top() + fm.ascent()), lab)
+    idx = [k for k, lab in enumerate(labels) if lab]
+    dots = [QRectF(q.x() - r, q.y() - r, 2 * r, 2 * r) for q in marks]
+    if highlight >= 0 and highlight < len(marks):
+        q = marks[highlight]
+        dots.append(QRectF(q.x() - 2.3 * r, q.y() - 2.3 * r, 4.6 * r, 4.6 * r))
+    frame = ax.frame.adjusted(1 * s, 1 * s, -1 * s, -1 * s)
+    boxes = _label_boxes([marks[k] for k in idx], [(fm.horizontalAdvance(labels[k]), fm.height()) for k in idx],
+                         r, s, frame, dots)
+    for k, (box, lead) in zip(idx, boxes):
+        q = marks[k]
+        if lead:
+            p.setPen(pen(QColor(60, 60, 60), 0.5, s))
+            c = box.center()
+            d = math.hypot(c.x() - q.x(), c.y() - q.y()) or 1.0
+            p.drawLine(QPointF(q.x() + (c.x() - q.x()) * r / d, q.y() + (c.y() - q.y()) * r / d),
+                       QPointF(c.x() - (c.x() - q.x()) * 0.5 * box.height() / d,
+                               c.y() - (c.y() - q.y()) * 0.5 * box.height() / d))
+        if halo:
+            p.setPen(Qt.PenStyle.NoPen)
+            p.setBrush(QBrush(QColor(255, 255, 255, 190)))
+            p.drawRect(box.adjusted(-0.5 * s, 0, 0.5 * s, 0))
+        p.setPen(QColor(0, 0, 0))
+        p.drawText(QPointF(box.left(), box.top() + fm.ascent()), labels[k])
     p.restore()
 
 
@@ -361,23 +449,17 @@ def thumbnail_span(vehicles) -> tuple[float, float]:
 
 
 # ----- heatmaps -------------------------------------------------------------------------------
-def margin_limits_db(hm: Heatmap) -> tuple[float, float]:
-    """Colour range (low, high) in dB: multiples of 5 dB covering the data, at least +-5 dB."""
-    m = hm.margin_db[np.isfinite(hm.margin_db)]
-    if m.size == 0:
-        return -10.0, 10.0
-    lo = min(-5.0, 5.0 * math.floor(float(m.min()) / 5.0))
-    hi = max(5.0, 5.0 * math.ceil(float(m.max()) / 5.0))
-    return lo, hi
+def margin_limits_db(hm: Heatmap | None = None) -> tuple[float, float]:
+    """Colour range (low, high) in dB: the one fixed scale, symmetric about 0 dB (app.margin_scale), whatever
+    the map holds, so heatmaps of different bodies compare by colour."""
+    return -MARGIN_RANGE_DB, MARGIN_RANGE_DB
 
 
 def margin_to_unit(m, lo: float, hi: float) -> np.ndarray:
-    """Map margins (dB) to 0..1 of the diverging map with 0 dB at the centre (0.5): each side
-    scaled to its own extreme (two-slope normalisation), so a range such as -30..+5 dB uses the
-    whole map while 0 dB stays at its neutral middle colour."""
+    """Map margins (dB) linearly to 0..1 of the diverging map, 0 dB at its neutral centre (0.5) when the range is
+    symmetric; beyond the range the end colours."""
     m = np.asarray(m, float)
-    t = np.where(m < 0, 0.5 * (1.0 - m / lo), 0.5 + 0.5 * m / hi)
-    return np.clip(t, 0.0, 1.0)
+    return np.clip((m - lo) / (hi - lo), 0.0, 1.0)
 
 
 def margin_image(hm: Heatmap, lo: float, hi: float, upscale: int = 6) -> QImage:
@@ -403,9 +485,17 @@ def zero_contour(hm: Heatmap) -> list[np.ndarray]:
     return contour(hm)
 
 
+def projected_spots(hm: Heatmap, positions) -> np.ndarray:
+    """(S,) True for spots that do not lie in the heatmap's plane (more than half a cell from it): drawn hollow,
+    projected onto the map; their margins are the ranking's, not the map's at that place."""
+    pos = np.asarray(positions, float).reshape(-1, 3)
+    return np.abs(pos[:, 2 if hm.view == "top" else 1] - hm.fixed_m) > 0.5 * hm.step_m
+
+
 def draw_heatmap(p: QPainter, rect: QRectF, s: float, v: Vehicle, hm: Heatmap, region: Region, positions, labels,
                  wheel_ids) -> None:
-    """Margin heatmap of one region over the body view, with the 0 dB contour, spots and a colour bar."""
+    """Margin heatmap of one region over the body view, with the 0 dB contour, spots (hollow: projected from
+    another plane) and a colour bar on the fixed symmetric scale (app.margin_scale)."""
     (bx0, bx1), (by0, by1), (bz0, bz1) = body_extent(v, 0.15)
     cbar_pt = 52.0
     lo, hi = margin_limits_db(hm)
@@ -435,7 +525,8 @@ def draw_heatmap(p: QPainter, rect: QRectF, s: float, v: Vehicle, hm: Heatmap, r
         p.drawPolyline(ax.poly(ln[:, 0], ln[:, 1]))
     p.restore()
     pos = np.asarray(positions, float).reshape(-1, 3)
-    draw_spots(ax, pos[:, [0, 1]] if view == "top" else pos[:, [0, 2]], labels, size_pt=2.6, label_pt=6)
+    off = projected_spots(hm, pos)
+    draw_spots(ax, pos[:, [0, 1]] if view == "top" else pos[:, [0, 2]], labels, size_pt=2.6, label_pt=6, hollow=off)
     # colour bar
     f = ax.frame
     bar = QRectF(f.right() + 10 * s, f.top(), 9 * s, f.height())
@@ -450,7 +541,7 @@ def draw_heatmap(p: QPainter, rect: QRectF, s: float, v: Vehicle, hm: Heatmap, r
     p.drawRect(bar)
     p.setFont(font(6.5, s=s))
     fm = QFontMetricsF(p.font())
-    ticks = sorted(set(np.round(np.concatenate([nice_ticks(lo, 0, 3), nice_ticks(0, hi, 2)]), 6)))
+    ticks = nice_ticks(lo, hi, 4)
     for t in ticks:
         yq = bar.bottom() - float(margin_to_unit(t, lo, hi)) * bar.height()
         p.setPen(pen(BODY, 0.5, s))
@@ -459,9 +550,14 @@ def draw_heatmap(p: QPainter, rect: QRectF, s: float, v: Vehicle, hm: Heatmap, r
             p.setPen(pen(QColor(0, 0, 0), 1.3, s))
             p.drawLine(QPointF(bar.left() - 2 * s, yq), QPointF(bar.right() + 3 * s, yq))
         p.setPen(QColor(BODY))
-        p.drawText(QPointF(bar.right() + 4 * s, yq + fm.ascent() / 2 - 1 * s), ("+" if t > 0 else "") + _fmt(t) if t else "0")
+        txt = ("+" if t > 0 else "") + _fmt(t) if t else "0"
+        if abs(t - hi) < 1e-9:
+            txt = "\u2265" + txt  # beyond the range: the end colour
+        elif abs(t - lo) < 1e-9:
+            txt = "\u2264" + txt
+        p.drawText(QPointF(bar.right() + 4 * s, yq + fm.ascent() / 2 - 1 * s), txt)
     p.save()
-    p.translate(bar.right() + 4 * s + fm.horizontalAdvance("+00") + 3 * s + fm.ascent(),
+    p.translate(bar.right() + 4 * s + fm.horizontalAdvance("\u2265+00") + 3 * s + fm.ascent(),
                 bar.center().y() + fm.horizontalAdvance("margin (dB)") / 2)
     p.rotate(-90)
     p.drawText(QPointF(0, 0), "margin (dB)")
@@ -527,7 +623,7 @@ def draw_levels(p: QPainter, rect: QRectF, s: float, scores, i: int) -> None:
               Qt.PenStyle.DashLine if twins[w] >= 0 else Qt.PenStyle.SolidLine) for w, wid in enumerate(scores.wheel_ids)]
     items += [(f"sensitivity {sens:.0f} dBm", QColor(0, 0, 0), Qt.PenStyle.DashLine),
               (f"sensitivity + required margin ({req:g} dB)", QColor(0, 0, 0), Qt.PenStyle.DotLine),
-              ("worst case", QColor(0, 0, 0), None)]
+              ("worst case (over the continuous turn)", QColor(0, 0, 0), None)]
     leg_w = rect.width() - 44 * s
     legend_h = draw_legend(None, s, 0, 0, items, leg_w) + 2 * s
     body = QRectF(rect.left(), rect.top(), rect.width(), rect.height() - legend_h)
@@ -555,33 +651,60 @@ def draw_levels(p: QPainter, rect: QRectF, s: float, scores, i: int) -> None:
     draw_legend(p, s, ax.frame.left(), rect.bottom() - legend_h + 2 * s, items, leg_w)
 
 
-def draw_burst(p: QPainter, rect: QRectF, s: float, burst, kmh: float = 3.6) -> None:
-    """Burst success vs speed per wheel; resonant speeds marked by ticks at the top, in the wheel's colour."""
+def twin_groups(curves, ids, tol: float = 0.05) -> list[tuple[int, str]]:
+    """Curves that coincide (within ``tol``) drawn once: (index of the first, "FL = FR") per group, in order."""
+    twins = same_as(curves, tol)
+    groups: dict[int, list[str]] = {}
+    for w, t in enumerate(twins):
+        groups.setdefault(w if t < 0 else t, []).append(ids[w])
+    return [(k, " = ".join(names)) for k, names in groups.items()]
+
+
+def draw_burst(p: QPainter, rect: QRectF, s: float, burst, kmh: float = 3.6, required_margin_db: float | None = None) -> None:
+    """Burst success vs speed per wheel (wheels with the same curve drawn once, named together); resonant speeds as
+    grey dashed lines. When every burst gets through at every speed, the success is 100 % everywhere and says
+    nothing: the figure shows the burst margin instead (core.burst: the extra loss the bursts still survive), with
+    the required margin, so the speeds with margin to spare stand out."""
     v = burst.speeds_mps * kmh
-    twins = same_as(100 * burst.success, 0.05)
-    items = [(f"{wid} (parked {100 * burst.parked[w]:.0f} %)" + (f" = {burst.wheel_ids[twins[w]]}" if twins[w] >= 0 else ""),
-              wheel_colour(w), Qt.PenStyle.DashLine if twins[w] >= 0 else Qt.PenStyle.SolidLine)
-             for w, wid in enumerate(burst.wheel_ids)]
-    items.append(("resonant speed", QColor(90, 90, 90), Qt.PenStyle.DashLine))
+    all_pass = burst.margin_db is not None and float(burst.success.min()) >= 1.0 - 1e-12
+    if all_pass:
+        data = burst.margin_db
+        parked = burst.parked_margin_db
+        ylabel, title = "burst margin (dB over sensitivity)", "Burst margin vs speed: every burst gets through"
+    else:
+        data = 100 * burst.success
+        parked = 100 * burst.parked
+        ylabel, title = "burst success (%)", "Burst success vs speed"
+    groups = twin_groups(data, burst.wheel_ids)
+    unit = "dB" if all_pass else "%"
+    # a group drawn after another lies on top of it: dashed, so the one below shows through (as the legend says)
+    styles = [Qt.PenStyle.SolidLine if k == 0 else Qt.PenStyle.DashLine for k in range(len(groups))]
+    items = [(f"{names} (parked {parked[w]:.0f} {unit})", wheel_colour(w), st) for (w, names), st in zip(groups, styles)]
+    items.append(("resonant speed (frames repeat)", QColor(120, 120, 120), Qt.PenStyle.DashLine))
+    if all_pass and required_margin_db is not None:
+        items.append((f"required margin {required_margin_db:g} dB", QColor(0, 0, 0), Qt.PenStyle.DotLine))
     legend_h = draw_legend(None, s, 0, 0, items, rect.width() - 8 * s) + 3 * s
     body = QRectF(rect.left(), rect.top(), rect.width(), rect.height() - legend_h)
-    ax = Axes(p, body, s, (v.min(), v.max() if v.max() > v.min() else v.min() + 1), (0, 105), "vehicle speed (km/h)",
-              "burst success (%)", "Burst success vs speed", left_pt=34)
-    ax.draw_frame(yticks=np.arange(0, 101, 20))
+    if all_pass:
+        lo = min(0.0, float(np.min(data)), required_margin_db or 0.0)
+        hi = max(float(np.max(data)), required_margin_db or 0.0)
+        lo, hi = 5 * math.floor(lo / 5), 5 * math.ceil(hi / 5 + 0.2)
+    else:
+        lo, hi = -2.0, 105.0
+    ax = Axes(p, body, s, (v.min(), v.max() if v.max() > v.min() else v.min() + 1), (lo, hi), "vehicle speed (km/h)",
+              ylabel, title, left_pt=34)
+    ax.draw_frame(yticks=None if all_pass else np.arange(0, 101, 20))
     p.save()
     p.setClipRect(ax.frame)
-    for w in range(len(burst.wheel_ids)):
-        dashed = twins[w] >= 0
-        p.setPen(pen(wheel_colour(w), 1.1 if not dashed else 1.5, s,
-                     Qt.PenStyle.DashLine if dashed else Qt.PenStyle.SolidLine))
-        p.drawPolyline(ax.poly(v, 100 * burst.success[w]))
-    for w, rs in enumerate(burst.resonant_mps):
-        for r in rs:
-            q = ax.map(r * kmh, 105)
-            p.setPen(pen(wheel_colour(w), 0.7, s, Qt.PenStyle.DashLine))
-            p.drawLine(q, ax.map(r * kmh, 0))
-            p.setPen(pen(wheel_colour(w), 1.6, s))
-            p.drawLine(q, QPointF(q.x(), q.y() + 5 * s))
+    for r in sorted({round(float(x), 6) for rs in burst.resonant_mps for x in rs}):
+        p.setPen(pen(QColor(120, 120, 120), 0.7, s, Qt.PenStyle.DashLine))
+        p.drawLine(ax.map(r * kmh, hi), ax.map(r * kmh, lo))
+    if all_pass and required_margin_db is not None:
+        p.setPen(pen(QColor(0, 0, 0), 0.8, s, Qt.PenStyle.DotLine))
+        p.drawLine(ax.map(v.min(), required_margin_db), ax.map(v.max(), required_margin_db))
+    for (w, _names), st in zip(groups, styles):
+        p.setPen(pen(wheel_colour(w), 1.5 if st == Qt.PenStyle.SolidLine else 1.2, s, st))
+        p.drawPolyline(ax.poly(v, data[w]))
     p.restore()
     draw_legend(p, s, rect.left() + 4 * s, rect.bottom() - legend_h + 3 * s, items, rect.width() - 8 * s)
 
@@ -627,3 +750,71 @@ def draw_square(ax: Axes, xy, colour=None, size_pt: float = 3.2) -> None:
     p.setBrush(Qt.BrushStyle.NoBrush)
     p.drawRect(QRectF(q.x() - r, q.y() - r, 2 * r, 2 * r))
     p.restore()
+
+
+# ----- tornado ---------------------------------------------------------------------------------
+TORNADO_LOW = QColor(70, 120, 190)
+TORNADO_HIGH = QColor(215, 120, 40)
+
+
+def tornado_height(ss, s: float) -> float:
+    """Height of :func:`draw_tornado` for a spot's sensitivity, device px."""
+    return (len(ss.bars) * 15.0 + 70.0) * s
+
+
+def draw_tornado(p: QPainter, rect: QRectF, s: float, ss, title: str | None = None) -> None:
+    """The tornado of a spot (core.sensitivity.SpotSensitivity): per input a bar from its margin with the input at
+    the low end of its range (blue) to the margin at the high end (orange), most influential on top; the nominal
+    margin as a black line, the requirement (0 dB) as a red line; inputs without effect in this setup greyed."""
+    bars = ss.bars
+    vals = [ss.margin_db, 0.0] + [x for b in bars for x in (b.margin_low_db, b.margin_high_db)]
+    lo, hi = min(vals), max(vals)
+    pad = max(1.0, 0.06 * (hi - lo))
+    lo, hi = lo - pad, hi + pad
+    p.save()
+    p.setFont(font(6.5, s=s))
+    fm = QFontMetricsF(p.font())
+    label_w = max(fm.horizontalAdvance(b.label) for b in bars) + 6 * s
+    range_w = max(fm.horizontalAdvance(f"{b.low_text} .. {b.high_text}") for b in bars) + 8 * s
+    range_w = min(range_w, rect.width() * 0.32)
+    p.restore()
+    items = [("input at the low end of its range", TORNADO_LOW, Qt.PenStyle.SolidLine),
+             ("at the high end", TORNADO_HIGH, Qt.PenStyle.SolidLine),
+             (f"nominal margin {ss.margin_db:+.1f} dB", QColor(0, 0, 0), Qt.PenStyle.SolidLine),
+             ("requirement (0 dB)", QColor(190, 0, 0), Qt.PenStyle.DashLine)]
+    legend_h = draw_legend(None, s, 0, 0, items, rect.width() - 8 * s) + 3 * s
+    body = QRectF(rect.left(), rect.top(), rect.width() - range_w, rect.height() - legend_h)
+    n = len(bars)
+    title = title or f"What the margin depends on: P(pass) {100 * ss.p_pass:.0f} % over {ss.draws} draws"
+    ax = Axes(p, body, s, (lo, hi), (-0.5, n - 0.5), "spot margin (dB)", "", title, left_pt=label_w / s)
+    ax.draw_frame(yticks=[], grid=True)
+    p.save()
+    p.setFont(font(6.5, s=s))
+    for k, b in enumerate(bars):
+        yy = n - 1 - k
+        grey = bool(b.effect) or b.swing_db == 0.0
+        for val, col in ((b.margin_low_db, TORNADO_LOW), (b.margin_high_db, TORNADO_HIGH)):
+            a, c = ax.map(ss.margin_db, yy + 0.32), ax.map(val, yy - 0.32)
+            if abs(val - ss.margin_db) > 1e-9:
+                p.setPen(pen(col.darker(130), 0.4, s))
+                p.setBrush(QBrush(col))
+                p.drawRect(QRectF(a, c).normalized())
+        q = ax.map(lo, yy)
+        p.setPen(QColor(150, 150, 150) if grey else QColor(BODY))
+        p.drawText(QPointF(q.x() - 4 * s - fm.horizontalAdvance(b.label), q.y() + fm.ascent() / 2 - 1 * s), b.label)
+        if b.effect:
+            txt = "no effect here"
+        elif b.key == "axis_tilt":
+            txt = f"{b.low_text.split(',')[0]}: worst / best direction"
+        else:
+            txt = f"{b.low_text} .. {b.high_text}"
+        txt = fm.elidedText(txt, Qt.TextElideMode.ElideRight, range_w - 6 * s)
+        q2 = ax.map(hi, yy)
+        p.drawText(QPointF(q2.x() + 5 * s, q2.y() + fm.ascent() / 2 - 1 * s), txt)
+    p.setClipRect(ax.frame)
+    p.setPen(pen(QColor(0, 0, 0), 1.0, s))
+    p.drawLine(ax.map(ss.margin_db, -0.5), ax.map(ss.margin_db, n - 0.5))
+    p.setPen(pen(QColor(190, 0, 0), 1.0, s, Qt.PenStyle.DashLine))
+    p.drawLine(ax.map(0.0, -0.5), ax.map(0.0, n - 0.5))
+    p.restore()
+    draw_legend(p, s, ax.frame.left(), rect.bottom() - legend_h + 3 * s, items, rect.width() - 8 * s)

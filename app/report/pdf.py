@@ -205,6 +205,34 @@ def _overrides_text(o: dict) -> str:
     return ", ".join(parts) or "none (the file as it is)"
 
 
+def verdict_html(d: ReportData) -> str:
+    """The boxed verdict that opens page 1 (core.defence.verdict): recommended spot, margin against the
+    requirement, P(pass), the two most sensitive inputs and what to measure first; "" without a verdict."""
+    vd = d.verdict
+    if vd is None:
+        return ""
+    colour = "#e3f2e1" if vd.meets else "#f8d0d0"
+    lines = vd.lines()
+    at = ""
+    ck = d.eirp_check
+    if ck is not None and ck.over_ceiling:
+        at = (f"<p><b>With the sensor EIRP lowered to the radio limit the margin is "
+              f"{float(ck.margin_at_ceiling_db(vd.margin_db)):+.1f} dB.</b></p>")
+    measure = "".join(f"<li>{esc(t)}</li>" for t in vd.measure_first)
+    body = "".join(f"<p>{esc(t)}</p>" for t in lines[1:-1])
+    return (f"<table width='100%' cellpadding='6' style='border: 1.2px solid #404040'><tr>"
+            f"<td style='background-color:{colour}'><p style='font-size:10.5pt'><b>Verdict. {esc(lines[0])}</b></p>"
+            f"{body}{at}<p><b>Measure first on a vehicle:</b></p><ol style='margin-top:0'>{measure}</ol>"
+            f"</td></tr></table>")
+
+
+def _verdict_box(f: Flow, d: ReportData) -> None:
+    """Page 1's verdict box (kept in one function so other page-1 blocks can be added around it)."""
+    box = verdict_html(d)
+    if box:
+        f.html(box, 8)
+
+
 def _title_page(f: Flow, d: ReportData) -> None:
     v, st = d.vehicle, d.setup
     f.html(f"<h1>Receiver placement report</h1><p style='font-size:11pt'>{esc(v.name)} "
@@ -212,6 +240,7 @@ def _title_page(f: Flow, d: ReportData) -> None:
     if d.eirp_check is not None and d.eirp_check.over_ceiling:
         f.html(f"<table width='100%' cellpadding='5'><tr><td style='background-color:#f8d0d0'><b>"
                f"{esc(d.eirp_check.warning())}</b></td></tr></table>", 6)
+    _verdict_box(f, d)
     cmd = st.get("command_line")
     wm = st.get("wheel_model", {})
     ts = wm.get("table_set")
@@ -239,6 +268,10 @@ def _title_page(f: Flow, d: ReportData) -> None:
     paras = "".join(f"<p>{esc(t)}</p>" for t in d.findings.split("\n\n"))
     f.html(f"<h2>Findings</h2>{paras}", 4)
     f.html(f"<table width='100%' cellpadding='5'><tr><td class='caution'><b>{esc(CAUTION)}</b></td></tr></table>", 8)
+
+
+def _setup_tables(f: Flow, d: ReportData) -> None:
+    """Radio setup, materials and the uncertain inputs."""
     f.html("<h2>Radio setup</h2>", 2, keep=120 * S)
     f.table(["Quantity", "Value", "Source or note"], [[esc(a), esc(b), f"<span class='small'>{esc(c)}</span>"]
                                                        for a, b, c in d.radio_rows], [20, 30, 50])
@@ -252,6 +285,27 @@ def _title_page(f: Flow, d: ReportData) -> None:
                      f"<span class='small'>{esc(', '.join(m['used_by']))}</span>",
                      f"<span class='small'>{esc(m['source'])}</span>"])
     f.table(["Material", "Loss dB", "Kind", "Used by", "Source"], rows, [11, 8, 14, 22, 45], numeric={1})
+    _inputs_table(f, d)
+
+
+def _inputs_table(f: Flow, d: ReportData) -> None:
+    """The uncertain inputs of the tornado and P(pass): nominal, range, distribution, source."""
+    if d.defence is None:
+        return
+    f.html("<h2>Uncertain inputs</h2><p>What the tornado figures vary one at a time and the Monte-Carlo P(pass) "
+           f"draws together ({esc(d.defence.method)}). Ranges marked <i>engineering default</i> are judgement, not "
+           "published figures.</p>", 2, keep=120 * S)
+    rows = []
+    for i in d.defence.inputs:
+        rng = (", ".join(esc(i.text(o)) for o in i.options) if i.kind == "road"
+               else f"{esc(i.text(i.low))} .. {esc(i.text(i.high))}")
+        note = f" <i>({esc(i.effect)})</i>" if i.effect else ""
+        rows.append([esc(i.label), esc(i.text(i.nominal)), rng, f"<span class='small'>{esc(i.distribution)}</span>",
+                     f"<span class='small'>{esc(i.source)}{note}</span>"])
+    case = next(iter(d.defence.cases.values()), None)
+    for what, why in (case.sensitivity.not_varied if case else ()):
+        rows.append([esc(what), "&ndash;", "not varied", "", f"<span class='small'>{esc(why)}</span>"])
+    f.table(["Input", "Nominal", "Range", "Distribution", "Source"], rows, [16, 11, 20, 15, 38])
 
 
 def _ranked(d: ReportData) -> tuple[list[int], dict[int, int]]:
@@ -298,8 +352,9 @@ def _drawings(f: Flow, d: ReportData) -> None:
     mats = sorted({z.material for z in v.zones})
     key = " &nbsp; ".join(f"<span style='background-color:{fig.material_colour(m, 255).name()}'>&nbsp;&nbsp;&nbsp;"
                           f"</span> {esc(m)}" for m in mats)
-    f.html(f"<p class='small'>Zones: {key} &nbsp; (body panels outside any zone: metal). The ringed spot is the "
-           f"best ranked.</p>", 2)
+    f.html(f"<p class='small'>Zones: {key} &nbsp; (body panels outside any zone: metal). Hatched: the wheelhouses "
+           f"(wheel arch of tire radius + {1000 * v.body.wheelhouse_clearance_m:.0f} mm clearance, from the inner wall "
+           f"outward). The ringed spot is the best ranked.</p>", 2)
     axes = {s["name"]: s for s in d.setup.get("spots", [])}
 
     def axis(name: str) -> str:
@@ -335,9 +390,13 @@ def _heatmaps(f: Flow, d: ReportData) -> None:
     _, rank = _ranked(d)
     labels = [str(rank[i]) for i in range(len(sc.names))]
     f.new_page()
+    lo, hi = fig.margin_limits_db()
     f.html("<h2>Heatmaps of the mounting regions</h2><p>Worst-wheel worst-case margin of a receiver placed in each "
-           "cell (default receiver axis), colour bar in dB; the black line is the 0 dB contour (the edge of the area "
-           "that meets the required margin). Spots numbered by rank.</p>", 2)
+           f"cell (default receiver axis). One colour scale for every map and every body: {lo:+.0f} to {hi:+.0f} dB, "
+           "0 dB at the neutral centre, beyond the ends the end colours; the black line is the 0 dB contour (the edge "
+           "of the area that meets the required margin). Hatched: the wheelhouses. Spots numbered by rank; a hollow "
+           "marker is a spot at another height (top view) or lateral position (side view), projected onto the map: "
+           "its margin is the ranking's, not the map's colour there.</p>", 2)
     ck = d.eirp_check
     if ck is not None and ck.over_ceiling:
         f.html(f"<p><b>{esc(ck.warning())}</b> At the ceiling the 0 dB contour of these maps moves to the "
@@ -348,7 +407,11 @@ def _heatmaps(f: Flow, d: ReportData) -> None:
                                                                      sc.wheel_ids), gap_pt=2)
         ok, cells = hm.meeting(0.0)
         best = hm.best_cells(1)
+        proj = fig.projected_spots(hm, sc.positions)
         txt = f"{cells} cells computed, {ok} ({100 * ok / max(cells, 1):.0f} %) with margin &ge; 0 dB"
+        if proj.any():
+            txt += (f"; spots projected from another {'height' if hm.view == 'top' else 'lateral position'} "
+                    f"(hollow): {', '.join(labels[i] for i in np.flatnonzero(proj))}")
         left_out = excluded_text(hm)
         if left_out:
             txt += f"; not computed and left blank (not a receiver position): {left_out}"
@@ -362,7 +425,7 @@ def _heatmaps(f: Flow, d: ReportData) -> None:
 def _ranking(f: Flow, d: ReportData) -> None:
     sc = d.scores
     order, _ = _ranked(d)
-    if f.room < 300 * S:
+    if f.room < 160 * S:
         f.new_page()
     else:
         f.space(10)
@@ -379,19 +442,23 @@ def _ranking(f: Flow, d: ReportData) -> None:
         w = int(sc.worst_wheel[i])
         x, y, z = sc.positions[i]
         at = [f"<b>{float(ck.margin_at_ceiling_db(sc.margin_db[i])):+.1f}</b>"] if over else []
+        pp = d.defence.p_pass(i) if d.defence is not None else None
         rows.append([str(k), esc(sc.names[i]) + (" <i>(near field)</i>" if sc.near_field[i] else "")
                      + _placement_mark(d, i),
-                     f"{x:.3f}", f"{y:.3f}", f"{z:.3f}", f"<b>{sc.margin_db[i]:+.1f}</b>", *at, esc(sc.wheel_ids[w]),
+                     f"{x:.3f}", f"{y:.3f}", f"{z:.3f}", f"<b>{sc.margin_db[i]:+.1f}</b>", *at,
+                     "&ndash;" if pp is None else f"{100 * pp:.0f}", esc(sc.wheel_ids[w]),
                      f"{sc.worst_angle_deg[i, w]:.0f}", f"{sc.worst_dbm[i, w]:.1f}", f"{sc.median_dbm[i, w]:.1f}",
                      f"{sc.swing_db()[i].max():.1f}"])
     if over:
-        f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "At ceiling dB", "Worst wheel", "at deg", "Worst dBm",
-                 "Median dBm", "Swing dB"], rows, [4, 22, 7, 7, 7, 8, 8, 7, 6, 8, 9, 7],
-                numeric={0, 2, 3, 4, 5, 6, 8, 9, 10, 11}, highlight={order.index(d.best_index())})
+        f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "At ceiling dB", "P(pass) %", "Worst wheel", "at deg",
+                 "Worst dBm", "Median dBm", "Swing dB"], rows, [4, 20, 7, 7, 7, 7, 7, 7, 7, 6, 7, 8, 6],
+                numeric={0, 2, 3, 4, 5, 6, 7, 9, 10, 11, 12}, highlight={order.index(d.best_index())})
     else:
-        f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "Worst wheel", "at deg", "Worst dBm", "Median dBm",
-                 "Swing dB"], rows, [4, 26, 7, 7, 7, 9, 8, 7, 9, 9, 7], numeric={0, 2, 3, 4, 5, 7, 8, 9, 10},
-                highlight={order.index(d.best_index())})
+        f.table(["#", "Spot", "x m", "y m", "z m", "Margin dB", "P(pass) %", "Worst wheel", "at deg", "Worst dBm",
+                 "Median dBm", "Swing dB"], rows, [4, 21, 7, 7, 7, 8, 8, 8, 6, 8, 8, 8],
+                numeric={0, 2, 3, 4, 5, 6, 8, 9, 10, 11}, highlight={order.index(d.best_index())})
+    f.html("<p class='small'>P(pass): the share of the Monte-Carlo draws of the uncertain inputs (table "
+           "<i>Uncertain inputs</i>) in which the spot's margin stays at or above 0 dB.</p>", 4)
     notes = _placement_notes(d, order)
     if notes:
         f.html(notes, 4)
@@ -423,7 +490,7 @@ def _details(f: Flow, d: ReportData) -> None:
         b, dd = det.burst, det.distinctness
 
         def two(p, r, b=b, dd=dd, i=i, half=half):
-            fig.draw_burst(p, QRectF(r.left(), r.top(), half, r.height()), S, b, MPS_TO_KMH)
+            fig.draw_burst(p, QRectF(r.left(), r.top(), half, r.height()), S, b, MPS_TO_KMH, sc.required_margin_db)
             fig.draw_distinctness(p, QRectF(r.left() + half + 12 * S, r.top(), half, r.height()), S,
                                   sc.levels_dbm[i], dd)
 
@@ -444,7 +511,56 @@ def _details(f: Flow, d: ReportData) -> None:
                    f"wheel's frames louder than the other's median (figure: line = full range over the turn, box = "
                    f"25-75 %, bar = median). Burst: {d.vehicle.radio.frames_per_burst} frames "
                    f"every {d.vehicle.radio.frame_interval_s * 1e3:.0f} ms; success = share of start angles with at "
-                   f"least one frame at or above the sensitivity.</p>", 2)
+                   f"least one frame at or above the sensitivity; burst margin = the extra loss at which the first "
+                   f"burst would fail (shown when every burst gets through).</p>", 2)
+        _defence_of_spot(f, d, det)
+
+
+def _budget_rows(b) -> list[list[str]]:
+    rows, run = [], 0.0
+    for t in b.terms:
+        run += t.value_db
+        rows.append([esc(t.label), f"{t.value_db:+.2f}", f"{run:.2f}", f"<span class='small'>{esc(t.note)}</span>"])
+    rows.append(["<b>received level</b>", "", f"<b>{b.level_dbm:.2f}</b>", "dBm"])
+    req = f"&minus; sensitivity &minus; required margin ({b.sensitivity_dbm:.1f} dBm, {b.required_margin_db:.1f} dB)"
+    rows.append([req, f"{-b.sensitivity_dbm - b.required_margin_db:+.2f}", "", ""])
+    rows.append(["<b>margin</b>", f"<b>{b.margin_db:+.2f}</b>", "", "dB"])
+    return rows
+
+
+def _defence_of_spot(f: Flow, d: ReportData, det) -> None:
+    """A top spot's link budget by term (worst and median angle), its tornado and what to measure first."""
+    if d.defence is None or det.index not in d.defence.cases:
+        return
+    case = d.defence.cases[det.index]
+    sc = d.scores
+    f.new_page()
+    f.html(f"<h2>Spot {det.rank}: {esc(sc.names[det.index])} &mdash; link budget and what it depends on</h2>", 2)
+    b = case.budgets["worst"]
+    cap = (f"Link budget by term at the worst case: wheel {esc(b.wheel)} at {b.angle_deg:.1f}&deg;, path "
+           f"{b.path_m:.3f} m")
+    f.table(["Term", "dB", "Running dBm", "How"], _budget_rows(b), [47, 8, 10, 35], numeric={1, 2}, caption=cap,
+            small=True)
+    m = case.budgets["median"]
+    groups: dict[str, float] = {}
+    for t in m.terms:
+        groups[t.group] = groups.get(t.group, 0.0) + t.value_db
+    road = ("" if not b.road_ray else "Road ray on its own at the worst case: " + "; ".join(
+        f"{esc(t.label)} {t.value_db:+.1f} dB" for t in b.road_ray) + f"; its level alone {b.road_ray_level_dbm:.1f} "
+        "dBm. ")
+    f.html(f"<p class='small'>The terms add up to the engine's level. {road}At the median angle "
+           f"({m.angle_deg:.0f}&deg;, the sampled angle whose level is nearest the turn's median), by part: "
+           + ", ".join(f"{esc(g)} {v:+.1f} dB" for g, v in groups.items())
+           + f" &rarr; {m.level_dbm:.1f} dBm, margin {m.margin_db:+.1f} dB (every term: JSON/CSV export).</p>", 4)
+    ss = case.sensitivity
+    h = fig.tornado_height(ss, S)
+    f.add(h, lambda p, r, ss=ss: fig.draw_tornado(p, r, S, ss))
+    f.html(f"<p class='small'>One input at a time at the ends of its range, the others nominal (ranges and sources: "
+           f"table <i>Uncertain inputs</i>). Monte-Carlo: P(pass) {100 * ss.p_pass:.0f} %, 5th percentile of the "
+           f"margin {ss.margin_p05_db:+.1f} dB, median {ss.margin_p50_db:+.1f} dB ({ss.draws} draws, seed {ss.seed}). "
+           "Not varied: " + "; ".join(f"{esc(a)} ({esc(b)})" for a, b in ss.not_varied) + "</p>"
+           "<p><b>Measure first on a vehicle:</b> " + "; ".join(f"({k + 1}) {esc(t)}" for k, t in
+                                                               enumerate(case.measure_first)) + ".</p>", 4)
 
 
 def _closing(f: Flow, d: ReportData) -> None:
@@ -462,9 +578,10 @@ def _closing(f: Flow, d: ReportData) -> None:
 
 def layout_report(f: Flow, d: ReportData) -> None:
     _title_page(f, d)
+    _ranking(f, d)
+    _setup_tables(f, d)
     _drawings(f, d)
     _heatmaps(f, d)
-    _ranking(f, d)
     _details(f, d)
     _closing(f, d)
 

@@ -6,19 +6,28 @@ from core.regulatory import check_sensor_eirp
 from core.scoring import vehicle_spot_arrays
 
 
-def rank_document(v, scores, setup: dict | None = None, placement=None) -> dict:
+def rank_document(v, scores, setup: dict | None = None, placement=None, defence=None) -> dict:
     """The documented JSON of ``wheelreach rank --json`` (see docs/cli-json.md).
 
     ``radio_limit`` comes first (the sensor EIRP against the market's ceiling, core.regulatory);
-    each spot carries its resolved receiver axis, its margin at the ceiling and its placement
-    (``placement``: core.placement.classify of the scores' positions, computed when not given);
-    ``setup`` (the record of core.provenance.setup_record) is added last when given.
+    each spot carries its resolved receiver axis, its margin at the ceiling, its placement
+    (``placement``: core.placement.classify of the scores' positions, computed when not given) and,
+    from ``defence`` (core.defence.defend, computed when not given), its P(pass), link budget by term at
+    the worst and the median angle, tornado and what to measure first; ``setup`` (the record of
+    core.provenance.setup_record) is added last when given.
     """
-    if placement is None:
-        from core.placement import classify
+    if placement is None or defence is None:
         from core.scoring import Scene
 
-        placement = classify(Scene.from_vehicle(v), scores.positions)
+        scene = Scene.from_vehicle(v)
+        if placement is None:
+            from core.placement import classify
+
+            placement = classify(scene, scores.positions)
+        if defence is None:
+            from core.defence import defend
+
+            defence = defend(scene, scores, vehicle_spot_arrays(v)[2])
     check = check_sensor_eirp(v.radio)
     names, _pos, axes = vehicle_spot_arrays(v)
     axis_of = dict(zip(names, axes))
@@ -50,6 +59,7 @@ def rank_document(v, scores, setup: dict | None = None, placement=None) -> dict:
                 "near_field": bool(scores.near_field[i]),
                 "placement": placement.record(i),
                 "wheels": wheels,
+                **({"p_pass": None} if int(i) not in defence.cases else defence.cases[int(i)].to_dict()),
             }
         )
     doc = {
@@ -60,6 +70,8 @@ def rank_document(v, scores, setup: dict | None = None, placement=None) -> dict:
         "sensitivity_dbm": scores.sensitivity_dbm,
         "required_margin_db": scores.required_margin_db,
         "angles_deg": [round(float(a), 4) for a in scores.angles_deg],
+        "sensitivity_method": defence.method,
+        "uncertain_inputs": defence.inputs_dict(),
         "spots": spots,
     }
     if setup is not None:
