@@ -146,18 +146,24 @@ def fade_power(coherent: np.ndarray, diffuse, q: float) -> np.ndarray:
     if q <= 0.0 or np.all(np.asarray(diffuse) == 0.0):
         return total
     lk_grid, g, _rayleigh, z_q = _fade_table(float(q))
-    d = np.broadcast_to(np.asarray(diffuse, float), np.shape(total))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        lk = np.log10(coherent / d)
+    d = np.broadcast_to(np.asarray(diffuse, total.dtype), np.shape(total))
+    out = np.array(total, copy=True)
+    on = d > 0.0
+    if not on.any():
+        return out
+    c, dd = np.broadcast_to(coherent, np.shape(total))[on], d[on]
+    with np.errstate(divide="ignore"):
+        lk = np.log10(c / dd)
     # log g interpolated in log K (within 0.001 dB of scipy's quantile); below K = 1e-6 the Rayleigh
     # value; above K = 1e4 the amplitude is nearly normal, N(sqrt(P_c), P_d / 2), so
     # g = (sqrt(K) + z_q / sqrt(2))^2 / (K + 1) with z_q the standard normal q-quantile
     gk = 10.0 ** np.interp(lk, lk_grid, g, left=g[0], right=g[-1])
-    with np.errstate(invalid="ignore", over="ignore"):
-        kk = 10.0 ** np.minimum(lk, 300.0)
-        g_big = (np.sqrt(kk) + z_q / math.sqrt(2.0)) ** 2 / (kk + 1.0)
-    gk = np.where(lk > lk_grid[-1], g_big, gk)
-    return np.where(d > 0.0, total * gk, total)
+    big = lk > lk_grid[-1]
+    if big.any():
+        kk = 10.0 ** np.minimum(lk[big], 300.0)
+        gk[big] = (np.sqrt(kk) + z_q / math.sqrt(2.0)) ** 2 / (kk + 1.0)
+    out[on] = (c + dd) * gk
+    return out
 
 
 def level_dbm(scene, power: np.ndarray) -> np.ndarray:
