@@ -76,6 +76,12 @@ class Scene:
         """How the worst case over a turn is taken (statistic and angle method), for every output."""
         n = len(self.angles_rad)
         floor = f"nulls held at {self.null_floor_db:g} dB below the rays' matched power sum"
+        if getattr(self, "cavity", None) is not None:
+            q = self.fade_probability
+            fade = (f"the level exceeded with probability {1 - q:.3g} (Rician fade of the diffuse part)" if q > 0
+                    else "its mean level")
+            floor += (f"; inside the hull, the cabin's diffuse field fed through its openings (core.cavity, contents "
+                      f"{self.vehicle.body.cabin_absorption_m2:g} m^2) added to the rays, {fade}")
         if self.worst_percentile > 0:
             return f"{self.worst_percentile:g}th percentile of the level over {n} sampled angles; {floor}"
         return (f"minimum over the continuous turn: {n} sampled angles, the {REFINE_INTERVALS} lowest intervals "
