@@ -88,6 +88,9 @@ def measurement_advice(bar: TornadoBar, worst: LinkBudget, scene) -> str:
         return f"the tire's loss at {f} (tread over the steel belt, and sidewall), on the tire fitted"
     if bar.key == "frequency":
         return "the level at both ends of the sensor's frequency tolerance"
+    if bar.key == "cabin_absorption":
+        return ("the cabin's diffuse level: the mean level at the spot over many wheel positions with the cabin empty "
+                "and then with the seats occupied (the contents' absorption sets it)")
     return f"the input '{bar.label}'"
 
 

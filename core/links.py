@@ -121,12 +121,11 @@ class LinkField:
 def _fade_table(q: float) -> tuple[np.ndarray, np.ndarray, float]:
     """log10 K grid, log10 g(K) with g = x_q / (P_c + P_d) the Rician power's q-quantile, the
     Rayleigh value -ln(1 - q) and the standard normal q-quantile."""
-    from scipy.special import ndtri
-    from scipy.stats import ncx2
+    from scipy.special import chndtrix, ndtri  # chndtrix: the noncentral chi-square quantile (= scipy.stats.ncx2.ppf)
 
     lk = np.linspace(-6.0, 4.0, 1001)
     k = 10.0**lk
-    g = 0.5 * ncx2.ppf(q, 2, 2.0 * k) / (k + 1.0)
+    g = 0.5 * chndtrix(q, 2, 2.0 * k) / (k + 1.0)
     return lk, np.log10(g), -math.log1p(-q), float(ndtri(q))
 
 
@@ -137,7 +136,7 @@ def fade_power(coherent: np.ndarray, diffuse, q: float) -> np.ndarray:
 
     The power X = |c + d|^2 with d ~ CN(0, P_d) is (P_d / 2) times a noncentral chi-square variable
     with 2 degrees of freedom and noncentrality 2 K, so x_q = (P_d / 2) F^-1(q; 2, 2K) (scipy
-    ncx2.ppf, tabulated over K once per q; Rayleigh: x_q = -ln(1 - q) P_d).
+    special.chndtrix, tabulated over K once per q; Rayleigh: x_q = -ln(1 - q) P_d).
 
     References: S. O. Rice, "Mathematical analysis of random noise" (1944-45); the Rician model of
     a steady component in a diffuse field, e.g. Hill, Electromagnetic Fields in Cavities (2009),

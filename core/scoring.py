@@ -180,7 +180,7 @@ class Scene:
 #: cavities already built, by what they depend on (body, zones, materials, wheels, radio; not the
 #: spots or regions): an edit of a spot or a region, undo and redo reuse them
 _CAVITIES: dict[str, object] = {}
-_CAVITY_CACHE_SIZE = 16
+_CAVITY_CACHE_SIZE = 48  # the sensitivity analysis rebuilds a dozen per body (core.sensitivity)
 
 
 def _cavity_of(scene: Scene):
