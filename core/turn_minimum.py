@@ -19,7 +19,12 @@ refines its smallest magnitude:
    than an interior point), ``GOLDEN_STEPS`` steps of a golden-section search on the true link
    within one sample step either side of the best point. This finds a minimum at the edge of a
    jump of the body loss (the path moving from one panel to another, where the field is not smooth
-   and the interpolation cannot help).
+   and the interpolation cannot help). Skipped where it cannot change the score by more than
+   ``SMOOTH_DB``: inside the cabin the scored power is the fade quantile of the rays plus the cabin's
+   diffuse power (core.links.fade_power, rising with the rays' power), so even a perfect null of the
+   rays leaves at least the quantile of the diffuse part alone, taken at its smallest over the search
+   window (the diffuse power is interpolated in dB between the cavity's tabulated angles, so its
+   smallest value there is at a window end or a table angle).
 4. The worst case is the smallest floored power among the samples and every evaluated point:
    always a level computed at a real wheel angle, never an extrapolation, so it can only come down
    toward the true minimum as the sampling gets finer. Its angle is that point's.
@@ -127,6 +132,22 @@ class _Pairs:
     def evaluate(self, theta: np.ndarray) -> np.ndarray:
         """Floored field power (1/m^2) of every pair at wheel angles theta (P, K) rad: (P, K)."""
         return self.field(theta).power()
+
+    def diffuse_floor(self, lo: np.ndarray, hi: np.ndarray) -> np.ndarray | None:
+        """The smallest diffuse power (1/m^2, core.cavity) of every pair over wheel angles [lo, hi] (P,) rad, or
+        None without a cabin field: the least of the window's ends and the cavity's tabulated angles inside it."""
+        cav = getattr(self.scene, "cavity", None)
+        if cav is None or self.spot_diffuse is None:
+            return None
+        nodes = cav.input_angles
+        two_pi = 2.0 * np.pi
+        ends = np.stack([lo, hi], axis=1)
+        best = cav.input_at(self.wheel[:, None], ends).min(axis=1)
+        for j, a in enumerate(nodes):  # a table angle inside the window (in any turn of it)
+            inside = a + np.ceil((lo - a) / two_pi) * two_pi <= hi
+            if inside.any():
+                best = np.where(inside, np.minimum(best, cav.input[self.wheel, j]), best)
+        return best * self.spot_diffuse[self.spot]
 
     def field(self, theta: np.ndarray) -> LinkField:
         """The link field of every pair at wheel angles theta (P, K) rad: arrays (P, K)."""
@@ -241,8 +262,15 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     smooth = (np.abs(10.0 * np.log10(np.maximum(q2, 1e-300) / np.maximum(p2, 1e-300))) < SMOOTH_DB)
     interior = np.take_along_axis(j[..., 0], pick, axis=1)[:, 0] >= 2
     rough = np.flatnonzero(~(np.take_along_axis(smooth, pick, axis=1)[:, 0] & interior))
+    if len(rough):  # only where a deeper null of the rays could still lower the score by more than SMOOTH_DB
+        sub = pairs.subset(rough)
+        d_lo = sub.diffuse_floor(bt[rough] - step, bt[rough] + step)
+        if d_lo is not None:
+            can_drop = fade_power(np.zeros(len(rough)), d_lo, q) < bp[rough] * 10.0 ** (-SMOOTH_DB / 10.0)
+            rough = rough[can_drop]
+            sub = pairs.subset(rough)
     if len(rough):
-        bp[rough], bt[rough] = _golden(pairs.subset(rough), bp[rough], bt[rough], step)
+        bp[rough], bt[rough] = _golden(sub, bp[rough], bt[rough], step)
     best_p, best_t = bp[:, None], bt[:, None]
 
     # the smallest of the samples and every refined interval
