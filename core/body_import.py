@@ -123,8 +123,10 @@ class Imported:
     notes: tuple[str, ...] = ()
 
     def summary(self) -> str:
-        return (f"{self.view} outline from {self.source}: {self.points_read} points read, {len(self.points)} kept, "
-                f"largest deviation {self.deviation_m * 1000:.1f} mm")
+        ext = np.ptp(self.points, axis=0)
+        size = f"{ext[0]:.3f} m long, {ext[1]:.3f} m {'wide' if self.view == 'top' else 'high'}"
+        return (f"{self.view} outline from {self.source}: {size}; {self.points_read} points read, {len(self.points)} "
+                f"kept, largest deviation {self.deviation_m * 1000:.1f} mm")
 
 
 # ----- reading ---------------------------------------------------------------------------------
