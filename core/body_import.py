@@ -192,6 +192,21 @@ def _dxf_entities(entities):
             yield e
 
 
+def _dxf_entities_of(path: Path):
+    """The DXF document and its modelspace lines and curves (block inserts expanded)."""
+    from ezdxf import recover
+
+    data = _read(path)
+    try:
+        doc, auditor = recover.read(io.BytesIO(data))
+    except Exception as e:  # noqa: BLE001 - ezdxf raises several types for damaged files
+        raise BodyImportError(f"{path}: not a readable DXF file ({type(e).__name__}: {e})") from None
+    if auditor.has_errors:
+        raise BodyImportError(f"{path}: the DXF file is damaged ({len(auditor.errors)} errors found while reading)")
+    kinds = {"LINE", "ARC", "CIRCLE", "ELLIPSE", "LWPOLYLINE", "POLYLINE", "SPLINE"}
+    return doc, [e for e in _dxf_entities(doc.modelspace()) if e.dxftype() in kinds]
+
+
 def read_dxf(path: Path, layer: str | None = None) -> tuple[list[np.ndarray], list[np.ndarray], str | None, list[str]]:
     """Contours of the modelspace (or of ``layer``, case-insensitive) in drawing units.
 
@@ -264,23 +279,37 @@ def svg_unit_from_root(root) -> float | None:
     return w * _SVG_UNIT_MM[m.group(2)] * 1e-3 / vb_w
 
 
-def read_svg(path: Path, element_id: str | None = None) -> tuple[list[np.ndarray], list[np.ndarray], float | None, list[str]]:
-    """Contours of the SVG (or of the element ``element_id``) in user units, y up (the file's y is down).
+class _SvgPaths(list):
+    root = None
 
-    Returns (closed contours, open chains, metres per user unit from the root or None, notes)."""
+
+def _svg_paths(path: Path) -> _SvgPaths:
+    """Every drawable element of the SVG as an svgpathtools Path in user units (transforms applied)."""
     import warnings
     from xml.etree.ElementTree import ParseError
 
-    from svgpathtools import Document, Line
+    from svgpathtools import Document
 
     data = _read(path)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("error")
             doc = Document.from_svg_string(data.decode("utf-8"))
-            paths = doc.paths()
+            out = _SvgPaths(doc.paths())
     except (ParseError, UnicodeDecodeError, ValueError, Warning) as e:
         raise BodyImportError(f"{path}: not a readable SVG file ({type(e).__name__}: {e})") from None
+    out.root = doc.root
+    return out
+
+
+def read_svg(path: Path, element_id: str | None = None) -> tuple[list[np.ndarray], list[np.ndarray], float | None, list[str]]:
+    """Contours of the SVG (or of the element ``element_id``) in user units, y up (the file's y is down).
+
+    Returns (closed contours, open chains, metres per user unit from the root or None, notes)."""
+    from svgpathtools import Line
+
+    paths = _svg_paths(path)
+    root = paths.root
     ids = sorted({p.element.get("id") for p in paths if p.element.get("id")})
     if element_id is not None:
         paths = [p for p in paths if p.element.get("id") == element_id]
@@ -310,7 +339,15 @@ def read_svg(path: Path, element_id: str | None = None) -> tuple[list[np.ndarray
     closed = [p[:-1] for p, c in zip(pieces, closed_flags) if c and len(p) >= 4]
     loose = [p for p, c in zip(pieces, closed_flags) if not c]
     more, open_ = _chain(loose, JOIN_FRACTION * ext) if loose else ([], [])
-    return closed + more, open_, svg_unit_from_root(doc.root), []
+    return closed + more, open_, svg_unit_from_root(root), []
+
+
+def drawing_choices(path: Path) -> list[str]:
+    """The layers holding lines or curves (DXF) or the element ids (SVG) a drawing offers, sorted."""
+    if Source(Path(path)).kind == "dxf":
+        _doc, ents = _dxf_entities_of(Path(path))
+        return sorted({e.dxf.layer for e in ents})
+    return sorted({p.element.get("id") for p in _svg_paths(Path(path)) if p.element.get("id")})
 
 
 # ----- placing and simplifying -----------------------------------------------------------------
@@ -445,6 +482,7 @@ __all__ = [
     "Source",
     "VehicleFileError",
     "apply_outlines",
+    "drawing_choices",
     "import_outline",
     "import_zone",
     "parse_source",
