@@ -77,25 +77,31 @@ class _Placement(QWidget):
         self.view = QComboBox()
         self.view.addItem("Side view (x, z)", "side")
         self.view.addItem("Top view (x, y), seen from above", "top")
-        form.addRow("Outline of the", self.view)
+        form.addRow("View", self.view)
         self.front = QComboBox()
         self.front.addItem("to the right", "right")
         self.front.addItem("to the left", "left")
         form.addRow("Vehicle front points", self.front)
         self.ref_u = _spin(-1e7, 1e7, 3, f" {ref_unit}")
         self.ref_v = _spin(-1e7, 1e7, 3, f" {ref_unit}")
-        self.ref_row_label = QLabel("Reference point in the drawing (u right, v up)")
+        self.ref_row_label = QLabel("Reference point (u right, v up)")
+        self.ref_row_label.setToolTip("A point of the drawing you know the vehicle position of, e.g. the front "
+                                      "wheel's ground contact; in drawing units")
         form.addRow(self.ref_row_label, _pair_row(self.ref_u, self.ref_v))
         self.at_x = _spin(-50000, 50000, 1, " mm")
         self.at_y = _spin(-50000, 50000, 1, " mm")
-        self.at_label = QLabel()
+        self.at_label = QLabel("...lies at vehicle")
         form.addRow(self.at_label, _pair_row(self.at_x, self.at_y))
+        self.axes_note = QLabel()
+        self.axes_note.setWordWrap(True)
+        form.addRow(self.axes_note)
         self.view.currentIndexChanged.connect(self._label)
         self._label()
 
     def _label(self) -> None:
         second = "z" if self.view.currentData() == "side" else "y"
-        self.at_label.setText(f"...lies at vehicle x, {second} (origin: ground below the front axle's midpoint)")
+        up = "z up" if second == "z" else "y to the car's left"
+        self.axes_note.setText(f"Vehicle axes: origin on the ground below the front axle's midpoint, x forward, {up}.")
         self.at_x.setPrefix("x ")
         self.at_y.setPrefix(f"{second} ")
 
@@ -211,7 +217,7 @@ class TraceDialog(QDialog):
         self.result_outline: Imported | None = None
         lay = QHBoxLayout(self)
         self.plot = pg.PlotWidget()
-        self.plot.setBackground("w")
+        self.plot.setBackground("#e4e4e4")  # a white picture stands out from the view
         self.plot.getViewBox().invertY(True)
         self.plot.getViewBox().setAspectLocked(True)
         self.plot.setLabel("bottom", "picture x, px")
