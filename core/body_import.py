@@ -25,6 +25,7 @@ Lengths in metres unless a name says otherwise.
 
 from __future__ import annotations
 
+import functools
 import io
 import math
 import re
@@ -420,14 +421,15 @@ def _largest(closed: list[np.ndarray]) -> tuple[np.ndarray, int]:
     return closed[i], len(closed)
 
 
-def import_outline(src: Source, view: View, max_points: int | None = None) -> Imported:
-    """Read, place and simplify one outline (see the module docstring); raise BodyImportError."""
-    max_points = max_points or MAX_BODY_OUTLINE_POINTS
-    where = src.label()
-    if src.kind == "dxf":
-        closed, open_, file_unit, notes = read_dxf(Path(src.path), src.select)
+@functools.lru_cache(maxsize=8)
+def _contour(path: str, kind: str, select: str | None, _stamp: tuple[int, int]):
+    """The largest closed contour of a drawing's selection in drawing units (u right, v up), the file's
+    unit and notes; cached by the file's modification time and size (a dialog re-places it on every change)."""
+    where = Source(Path(path), select).label()
+    if kind == "dxf":
+        closed, open_, file_unit, notes = read_dxf(Path(path), select)
     else:
-        closed, open_, file_unit, notes = read_svg(Path(src.path), src.select)
+        closed, open_, file_unit, notes = read_svg(Path(path), select)
     notes = list(notes)
     if not closed:
         gaps = ""
@@ -441,6 +443,23 @@ def import_outline(src: Source, view: View, max_points: int | None = None) -> Im
     contour, n = _largest(closed)
     if n > 1:
         notes.append(f"{n} closed contours; the largest by area is used")
+    contour = contour.copy()
+    contour.flags.writeable = False
+    return contour, file_unit, tuple(notes)
+
+
+def import_outline(src: Source, view: View, max_points: int | None = None) -> Imported:
+    """Read, place and simplify one outline (see the module docstring); raise BodyImportError."""
+    max_points = max_points or MAX_BODY_OUTLINE_POINTS
+    where = src.label()
+    kind = src.kind
+    try:
+        st = Path(src.path).stat()
+        stamp = (st.st_mtime_ns, st.st_size)
+    except OSError:
+        stamp = (0, 0)  # the reader names the problem
+    contour, file_unit, notes = _contour(str(src.path), kind, src.select, stamp)
+    notes = list(notes)
     m_per_unit, how = unit_scale(src.placement, file_unit, where)
     notes.append(how)
     placed = place(contour, view, m_per_unit, src.placement)
