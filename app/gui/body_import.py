@@ -37,6 +37,7 @@ from PySide6.QtWidgets import (
 
 from app.gui.look import BODY_COLOUR
 from core.body_import import UNITS_M, BodyImportError, Imported, Placement, Source, drawing_choices, import_outline
+from core.bounds import MAX_BODY_OUTLINE_POINTS, MAX_OUTLINE_POINTS
 from core.picture_trace import PictureScale, trace_outline
 
 DRAWING_FILTER = "Drawings (*.dxf *.svg);;DXF (*.dxf);;SVG (*.svg);;All files (*)"
@@ -118,7 +119,7 @@ class _Placement(QWidget):
 class ImportOutlineDialog(QDialog):
     """Choose a DXF/SVG drawing, its layer or element, units and reference point; preview the result."""
 
-    def __init__(self, parent: QWidget | None = None, folder: str = ""):
+    def __init__(self, parent: QWidget | None = None, folder: str = "", materials=()):
         super().__init__(parent)
         self.setWindowTitle("Import body outline")
         self._folder = folder
@@ -139,6 +140,16 @@ class ImportOutlineDialog(QDialog):
         self.scale = _spin(0.0, 1e6, 4, " mm per unit")
         self.scale.setSpecialValueText("by the units")
         form.addRow("Drawing units", _pair_row(self.units, self.scale))
+        self.target = QComboBox()
+        self.target.addItem("the body outline", "body")
+        self.target.addItem("a zone (replaces one of the same name and view)", "zone")
+        form.addRow("Import as", self.target)
+        self.zone_name = QLineEdit()
+        self.zone_name.setPlaceholderText("zone name, e.g. rear glass")
+        self.zone_material = QComboBox()
+        for m in sorted(materials):
+            self.zone_material.addItem(m, m)
+        form.addRow("Zone name and material", _pair_row(self.zone_name, self.zone_material))
         lay.addLayout(form)
         self.where = _Placement("units")
         lay.addWidget(self.where)
@@ -153,6 +164,7 @@ class ImportOutlineDialog(QDialog):
         lay.addWidget(self.buttons)
         self.file.editingFinished.connect(self._file_changed)
         for sig in [self.select.currentIndexChanged, self.units.currentIndexChanged, self.scale.valueChanged,
+                    self.target.currentIndexChanged, self.zone_name.textChanged, self.zone_material.currentIndexChanged,
                     *self.where.changed_signals()]:
             sig.connect(self.preview)
         self.preview()
@@ -183,15 +195,29 @@ class ImportOutlineDialog(QDialog):
         return Source(Path(self.file.text()), self.select.currentData(),
                       self.where.placement(self.units.currentData(), scale / 1000.0 if scale > 0 else None))
 
+    def zone(self) -> tuple[str, str] | None:
+        """(name, material) when importing a zone, else None."""
+        if self.target.currentData() != "zone":
+            return None
+        return self.zone_name.text().strip(), self.zone_material.currentData()
+
     def preview(self) -> None:
         ok = self.buttons.button(QDialogButtonBox.StandardButton.Ok)
         self.result_outline = None
+        zone = self.zone()
+        self.zone_name.setEnabled(zone is not None)
+        self.zone_material.setEnabled(zone is not None)
+        if zone is not None and not zone[0]:
+            _message(self.status, "Name the zone.", False)
+            ok.setEnabled(False)
+            return
         if not self.file.text():
             _message(self.status, "Choose a DXF or SVG drawing.", False)
             ok.setEnabled(False)
             return
         try:
-            self.result_outline = import_outline(self.source(), self.where.view.currentData())
+            budget = MAX_OUTLINE_POINTS if zone is not None else MAX_BODY_OUTLINE_POINTS
+            self.result_outline = import_outline(self.source(), self.where.view.currentData(), budget)
         except BodyImportError as e:
             _message(self.status, str(e), True)
             ok.setEnabled(False)

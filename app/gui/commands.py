@@ -29,31 +29,33 @@ class Command:
 
 
 # ----- files -------------------------------------------------------------------------
-def apply_imported(doc: Document, ui, imp) -> bool:
-    """Put an imported or traced outline (core.body_import.Imported) into the body as ONE undoable edit.
+def apply_imported(doc: Document, ui, imp, zone: tuple[str, str] | None = None) -> bool:
+    """Put an imported or traced outline (core.body_import.Imported) into the body, or as the zone
+    ``zone`` = (name, material), as ONE undoable edit.
 
     The vehicle is rebuilt and checked like a loaded file first; a refusal (e.g. the wheels now lie
     outside the outline) is shown with its reason and changes nothing."""
     from core.body_import import apply_outlines
     from core.vehicle import VehicleFileError
 
-    kw = {imp.view: imp}
+    kw = {"zones": ((zone[0], zone[1], imp),)} if zone else {imp.view: imp}
+    what = f"zone {zone[0]!r}" if zone else f"{imp.view} outline"
     try:
         apply_outlines(doc.vehicle, **kw)
     except VehicleFileError as e:
         if ui is not None:
-            dialogs.refuse(ui, "Import body outline", f"The {imp.view} outline from {imp.source} does not fit this "
-                                                      f"vehicle; nothing changed.\n\n{e}")
+            dialogs.refuse(ui, "Import body outline", f"The {what} from {imp.source} does not fit this vehicle; "
+                                                      f"nothing changed.\n\n{e}")
         return False
-    return doc.apply(lambda v: apply_outlines(v, **kw), f"Import {imp.view} outline from {imp.source}")
+    return doc.apply(lambda v: apply_outlines(v, **kw), f"Import {what} from {imp.source}")
 
 
 def import_body_outline(doc: Document, ui) -> None:
     from app.gui.body_import import ImportOutlineDialog
 
-    dlg = ImportOutlineDialog(ui, ui.last_folder())
+    dlg = ImportOutlineDialog(ui, ui.last_folder(), sorted(doc.vehicle.material_names()))
     if dlg.exec() == QDialog.DialogCode.Accepted and dlg.result_outline is not None:
-        apply_imported(doc, ui, dlg.result_outline)
+        apply_imported(doc, ui, dlg.result_outline, dlg.zone())
 
 
 def trace_body_outline(doc: Document, ui) -> None:

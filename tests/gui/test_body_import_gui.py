@@ -132,3 +132,28 @@ def test_trace_over_a_picture_scaled_by_two_points(window, qtbot, tmp_path):
 def test_the_file_menu_offers_both(window):
     labels = [a.text() for a in window.menuBar().actions()[0].menu().actions()]
     assert "&Import body outline..." in labels and "&Trace body over a picture..." in labels
+
+
+def test_import_a_zone_from_svg(window, qtbot, tmp_path):
+    doc = window.doc
+    old, depth = doc.vehicle, doc.undo_stack.count()
+    # a side window in SVG user units of 1 mm (width 400 mm over a 400-unit viewBox), y down, front right
+    glass = [(-0.6, 0.95), (-1.4, 0.95), (-1.4, 1.25), (-0.6, 1.25)]
+    pts = " ".join(f"{x * 1000:.1f},{-z * 1000:.1f}" for x, z in glass)
+    (tmp_path / "w.svg").write_text('<svg xmlns="http://www.w3.org/2000/svg" width="400mm" height="400mm" '
+                                    f'viewBox="0 0 400 400"><polygon id="window" points="{pts}"/></svg>')
+    dlg = ImportOutlineDialog(window, materials=sorted(old.material_names()))
+    qtbot.addWidget(dlg)
+    dlg.set_file(str(tmp_path / "w.svg"))
+    dlg.select.setCurrentIndex(dlg.select.findData("window"))
+    dlg.target.setCurrentIndex(dlg.target.findData("zone"))
+    assert dlg.result_outline is None and "Name the zone" in dlg.status.text()
+    dlg.zone_name.setText("test window")
+    dlg.zone_material.setCurrentIndex(dlg.zone_material.findData("glass"))
+    assert dlg.result_outline is not None and dlg.zone() == ("test window", "glass")
+    assert commands.apply_imported(doc, None, dlg.result_outline, dlg.zone())
+    z = doc.vehicle.zones[-1]
+    assert z.name == "test window" and z.view == "side" and z.material == "glass" and _close(z.outline, glass, 1e-3)
+    assert doc.undo_stack.count() == depth + 1
+    doc.undo_stack.undo()
+    assert doc.vehicle == old
