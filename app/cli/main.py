@@ -12,6 +12,7 @@ import json
 import sys
 
 from app.cli.options import Parser
+from core.body_import import BodyImportError
 from core.bounds import NonFiniteResultError, WorkLimitError
 from core.files import install_signal_cleanup
 from core.vehicle import VehicleFileError, json_schema, load_vehicle
@@ -82,7 +83,7 @@ def _register_more(sub) -> None:
     """Commands of the engine, benchmark and report modules (registered when present)."""
     import importlib
 
-    for mod in ("app.cli.engine", "app.cli.bench", "app.cli.report", "app.cli.confirm"):
+    for mod in ("app.cli.engine", "app.cli.bench", "app.cli.report", "app.cli.confirm", "app.cli.body"):
         try:
             m = importlib.import_module(mod)
         except ModuleNotFoundError as e:
@@ -105,7 +106,7 @@ def main(argv: list[str] | None = None) -> int:
         install_signal_cleanup()
     try:
         return args.func(args)
-    except (VehicleFileError, WorkLimitError, NonFiniteResultError) as e:
+    except (VehicleFileError, WorkLimitError, NonFiniteResultError, BodyImportError) as e:
         print(f"error: {e}", file=sys.stderr)
         return 1
     except KeyboardInterrupt:

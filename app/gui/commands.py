@@ -29,6 +29,44 @@ class Command:
 
 
 # ----- files -------------------------------------------------------------------------
+def apply_imported(doc: Document, ui, imp, zone: tuple[str, str] | None = None) -> bool:
+    """Put an imported or traced outline (core.body_import.Imported) into the body, or as the zone
+    ``zone`` = (name, material), as ONE undoable edit.
+
+    The vehicle is rebuilt and checked like a loaded file first; a refusal (e.g. the wheels now lie
+    outside the outline) is shown with its reason and changes nothing."""
+    from core.body_import import apply_outlines
+    from core.vehicle import VehicleFileError
+
+    kw = {"zones": ((zone[0], zone[1], imp),)} if zone else {imp.view: imp}
+    what = f"zone {zone[0]!r}" if zone else f"{imp.view} outline"
+    try:
+        apply_outlines(doc.vehicle, **kw)
+    except VehicleFileError as e:
+        if ui is not None:
+            dialogs.refuse(ui, "Import body outline", f"The {what} from {imp.source} does not fit this vehicle; "
+                                                      f"nothing changed.\n\n{e}")
+        return False
+    return doc.apply(lambda v: apply_outlines(v, **kw), f"Import {what} from {imp.source}")
+
+
+def import_body_outline(doc: Document, ui) -> None:
+    from app.gui.body_import import ImportOutlineDialog
+
+    dlg = ImportOutlineDialog(ui, ui.last_folder(), sorted(doc.vehicle.material_names()))
+    if dlg.exec() == QDialog.DialogCode.Accepted and dlg.result_outline is not None:
+        apply_imported(doc, ui, dlg.result_outline, dlg.zone())
+
+
+def trace_body_outline(doc: Document, ui) -> None:
+    from app.gui.body_import import TraceDialog
+
+    dlg = TraceDialog(ui, ui.last_folder())
+    dlg.resize(1100, 640)
+    if dlg.exec() == QDialog.DialogCode.Accepted and dlg.result_outline is not None:
+        apply_imported(doc, ui, dlg.result_outline)
+
+
 def new_file(doc: Document, ui) -> None:
     if ui.confirm_discard():
         doc.replace(edits.new_vehicle(), None)
@@ -180,6 +218,10 @@ COMMANDS: tuple[Command, ...] = (
     Command("&File", "&Open...", open_file, "Ctrl+O", "Open a vehicle file"),
     Command("&File", "&Save", save_file, "Ctrl+S", "Save the vehicle file"),
     Command("&File", "Save &as...", save_file_as, "Ctrl+Shift+S", "Save under a new name"),
+    Command("&File", "&Import body outline...", import_body_outline, "Ctrl+I",
+            "Replace the top or side outline with one from a DXF or SVG drawing (undoable)"),
+    Command("&File", "&Trace body over a picture...", trace_body_outline, "Ctrl+T",
+            "Click the top or side outline over a drawing or photo, scaled by two points (undoable)"),
     Command("&File", "Export &report...", export_report, "Ctrl+Shift+E", "Write the placement report (PDF, with CSV/JSON data)"),
     Command("&File", "&Quit", quit_program, "Ctrl+Q", "Close the program"),
     Command("&Edit", "&Undo", undo, "Ctrl+Z", "Undo the last edit", enabled_when="undo"),
