@@ -5,7 +5,9 @@ from __future__ import annotations
 from functools import cache
 
 import pyqtgraph as pg
+from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
+from PySide6.QtWidgets import QLabel, QSizePolicy
 
 #: diverging map for link margin, centred on 0 dB (CET-D1 from the CET perceptual library)
 MARGIN_MAP = "CET-D1"
@@ -58,3 +60,43 @@ def lock_aspect(plot: pg.PlotWidget) -> None:
     few steps, since the labels' width is bounded."""
     plot.setAspectLocked(True)
     plot.getAxis("left").setStyle(autoReduceTextSpace=False)
+
+
+class ElidedLabel(QLabel):
+    """A one-line label that shortens its text with an ellipsis in the middle when the window is narrow
+    (so a long status line never sets the window's minimum width); the full text is its tooltip's first line."""
+
+    def __init__(self, text: str = "", parent=None):
+        super().__init__(parent)
+        self._full = ""
+        self._tip = ""
+        self.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Preferred)
+        self.set_full_text(text)
+
+    def set_full_text(self, text: str, tip: str = "") -> None:
+        self._full, self._tip = text, tip
+        super().setToolTip("\n".join(t for t in (text.replace("  |  ", "\n"), tip) if t))
+        self._elide()
+
+    def full_text(self) -> str:
+        return self._full
+
+    #: the widest the label asks to be, px (a status line leaves room for the messages beside it)
+    MAX_HINT_PX = 720
+
+    def sizeHint(self):
+        hint = super().sizeHint()
+        hint.setWidth(min(self.fontMetrics().horizontalAdvance(self._full) + 8, self.MAX_HINT_PX))
+        return hint
+
+    def minimumSizeHint(self):
+        hint = super().minimumSizeHint()
+        hint.setWidth(120)
+        return hint
+
+    def resizeEvent(self, ev) -> None:
+        super().resizeEvent(ev)
+        self._elide()
+
+    def _elide(self) -> None:
+        super().setText(self.fontMetrics().elidedText(self._full, Qt.TextElideMode.ElideMiddle, max(10, self.width() - 4)))

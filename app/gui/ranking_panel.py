@@ -114,7 +114,7 @@ class HeatmapPanel(QWidget):
         self.plot.addItem(self.spots)
         lay.addWidget(self.plot, 1)
         self.readout = QLabel("Click a cell to add a spot there. Black line: 0 dB margin.")
-        self.readout.setWordWrap(False)
+        self.readout.setWordWrap(True)  # a long summary wraps instead of widening the window
         lay.addWidget(self.readout)
 
         self.compute.clicked.connect(self.start)

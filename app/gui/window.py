@@ -31,6 +31,7 @@ from app.gui import commands, dialogs
 from app.gui.body_views import BodyView
 from app.gui.defence_panel import install_defence_panel
 from app.gui.document import Document
+from app.gui.look import ElidedLabel
 from app.gui.ranking_panel import RankingPanel
 from app.gui.recovery import DEBOUNCE_MS, RecoveryCopy, find_orphans, recovery_dir
 from app.gui.settings_panel import RadioPanel, ZonesPanel
@@ -52,6 +53,7 @@ class SpotReadout(QLabel):
         self.doc = doc
         self.margin_db: float | None = None
         self.setTextFormat(Qt.TextFormat.RichText)
+        self.setWordWrap(True)  # a long line wraps instead of setting the window's minimum width
         self.setToolTip("Selected receiver spot; while a spot is dragged the margin follows the mouse")
         doc.scoresReady.connect(self.refresh)
         doc.selectionChanged.connect(lambda _n: self.refresh())
@@ -145,7 +147,7 @@ class MainWindow(QMainWindow):
         dock.setMinimumWidth(390)
         self.dock = dock
 
-        self.model_label = QLabel()
+        self.model_label = ElidedLabel()  # the setup line; shortened, never widening the window
         self.work_bar = QProgressBar()
         self.work_bar.setMaximumWidth(220)
         self.work_bar.setFormat("scoring spots %p %")
@@ -271,11 +273,10 @@ class MainWindow(QMainWindow):
         first = (f"RADIO LIMIT EXCEEDED by {check.excess_db:.1f} dB (margins at the ceiling {check.excess_db:.1f} dB "
                  "lower)  |  " if check.over_ceiling else "")
         self.model_label.setStyleSheet("color: #b00000; font-weight: bold" if check.over_ceiling else "")
-        self.model_label.setToolTip(check.summary())
-        self.model_label.setText(
+        self.model_label.set_full_text(
             f"{first}{s.freq_hz / 1e6:.2f} MHz  |  sensor EIRP {s.eirp_dbm:.1f} dBm  |  sensitivity {s.sensitivity_dbm:.0f} dBm  |  "
-            f"wheel model: {s.wheel_model_label}  |  road reflection {'on' if s.ground_reflection else 'off'}"
-        )
+            f"wheel model: {s.wheel_model_label}  |  road reflection {'on' if s.ground_reflection else 'off'}",
+            check.summary())
 
     def _scoring_progress(self, done: int, total: int) -> None:
         if total <= 0:
