@@ -213,17 +213,8 @@ def read_dxf(path: Path, layer: str | None = None) -> tuple[list[np.ndarray], li
 
     Returns (closed contours, open chains, unit name from $INSUNITS or None, notes)."""
     from ezdxf import path as dxfpath
-    from ezdxf import recover
 
-    data = _read(path)
-    try:
-        doc, auditor = recover.read(io.BytesIO(data))
-    except Exception as e:  # noqa: BLE001 - ezdxf raises several types for damaged files
-        raise BodyImportError(f"{path}: not a readable DXF file ({type(e).__name__}: {e})") from None
-    if auditor.has_errors:
-        raise BodyImportError(f"{path}: the DXF file is damaged ({len(auditor.errors)} errors found while reading)")
-    kinds = {"LINE", "ARC", "CIRCLE", "ELLIPSE", "LWPOLYLINE", "POLYLINE", "SPLINE"}
-    ents = [e for e in _dxf_entities(doc.modelspace()) if e.dxftype() in kinds]
+    doc, ents = _dxf_entities_of(path)
     layers = sorted({e.dxf.layer for e in ents})
     if layer is not None:
         ents = [e for e in ents if e.dxf.layer.lower() == layer.lower()]
