@@ -39,7 +39,7 @@ from app.gui.tasks import Task
 TITLE = "Confirm with full-wave"
 #: what the user is told before starting (the order of magnitude measured on the sample sedan, issue 16)
 DURATION_NOTE = ("Full-wave runs take minutes per body and frequency (the sample sedan at lambda/8: about "
-                 "9 minutes per frequency on a laptop); finished runs are cached, so a repeat is immediate.")
+                 "9 minutes per frequency on a 2-core machine); finished runs are cached, so a repeat is immediate.")
 #: the CLI's default number of frequencies (``wheelreach confirm --frequencies``)
 DEFAULT_FREQUENCIES = 5
 DEFAULT_SPOTS = 3
@@ -168,6 +168,7 @@ def _status_widgets(window) -> tuple[QProgressBar, QPushButton]:
     """The window's full-wave progress bar and its Cancel button (made on first use, hidden when idle)."""
     if getattr(window, "fullwave_bar", None) is None:
         bar = QProgressBar()
+        bar.setMinimumWidth(170)
         bar.setMaximumWidth(220)
         bar.setFormat("full-wave %v/%m runs")
         bar.setToolTip("Full-wave confirmation runs (one per frequency) done / total")
@@ -231,7 +232,12 @@ class ConfirmResultsWindow(QMainWindow):
                     item.setForeground(QColor("#a3141e"))
                 self.table.setItem(i, j, item)
         self.table.resizeColumnsToContents()
+        self.table.resizeRowsToContents()
         self.table.horizontalHeader().setStretchLastSection(True)
+        rows_h = sum(self.table.rowHeight(i) for i in range(self.table.rowCount()))
+        fit = min(420, self.table.horizontalHeader().sizeHint().height() + rows_h + 2 * self.table.frameWidth() + 4)
+        self.table.setMinimumHeight(fit)
+        self.table.setMaximumHeight(fit)  # the rows, no empty space (a scroll bar beyond 420 px)
         self.agreement = QLabel(
             f"Agreement over {a['n']} spots: Spearman rho {rho}, mean offset {a['offset_db']:+.1f} dB (full-wave - "
             f"fast), RMS {a['rms_db']:.1f} dB and largest {a['max_db']:.1f} dB after the offset.")
@@ -252,12 +258,13 @@ class ConfirmResultsWindow(QMainWindow):
         central = QWidget()
         lay = QVBoxLayout(central)
         lay.addWidget(header)
-        lay.addWidget(self.table, 1)
+        lay.addWidget(self.table)
         lay.addWidget(self.agreement)
         lay.addWidget(foot)
+        lay.addStretch(1)
         lay.addLayout(row)
         self.setCentralWidget(central)
-        self.resize(980, 300 + 30 * len(conf.spots))
+        self.resize(1000, central.minimumSizeHint().height() + 30)
 
 
 def start_confirmation(window, options: dict) -> ConfirmJob:
