@@ -158,6 +158,11 @@ class ConfirmJob(QObject):
 
     def _done(self, _task, result) -> None:
         self._finish()
+        conf, m = result["confirmation"], result["margins"]
+        self.window.doc.fullwave = {"vehicle": self.vehicle, "setup": conf.setup.label(),
+                                    "margins": {s: float(m["fullwave"][i]) for i, s in enumerate(conf.spots)},
+                                    "fast": {s: float(m["fast"][i]) for i, s in enumerate(conf.spots)}}
+        self.window.ranking.table.refresh()  # the full-wave margin beside the fast one
         self.results_window = ConfirmResultsWindow(result["confirmation"], result["margins"], self.window)
         self.results_window.show()
         self.window.statusBar().showMessage(f"Full-wave confirmation of {self.vehicle.name} done.", 8000)

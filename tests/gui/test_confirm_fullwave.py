@@ -159,6 +159,20 @@ def test_menu_action_runs_in_a_worker_with_progress_and_shows_the_numbers_core_r
     assert f"wheel model: {window.doc.scene.wheel_model_label}" in joined
     assert "minutes per body" in joined and "confirm" in joined.lower()
     res.close()
+    # the ranking table shows the full-wave margin beside the fast one for the confirmed spots
+    table = window.ranking.table
+    col = table.FULLWAVE_COLUMN
+    assert not table.isColumnHidden(col)
+    shown = {table.item(r, 2).text(): table.item(r, col).text() for r in range(table.rowCount())}
+    for i, s in enumerate(conf.spots):
+        assert float(shown[s]) == pytest.approx(m["fullwave"][i], abs=0.051)
+    assert all(shown[s] == "" for s in shown if s not in conf.spots)
+    # an edit makes it another vehicle: the column goes; undo brings it back
+    window.doc.apply(lambda v: v.model_copy(update={"radio": v.radio.model_copy(update={"required_margin_db": 7.0})}),
+                     "Required margin 7 dB")
+    qtbot.waitUntil(lambda: table.isColumnHidden(col), timeout=10000)
+    window.doc.undo_stack.undo()
+    qtbot.waitUntil(lambda: not table.isColumnHidden(col), timeout=10000)
 
 
 def test_cancel_while_a_run_is_going_stops_at_once_and_the_worker_ends(window, qtbot, stand_in, errors):
