@@ -6,8 +6,9 @@ the local Dask worker processes. The run is ``core.fullwave.confirm.confirm`` in
 (``app.gui.tasks.Task``): its progress (tasks done / total) shows in a bar in the window's status bar,
 whose Cancel button is a request (Dask's tasks are cancelled at the next poll; nobody waits). The
 result opens in a results window: per spot the fast and the full-wave level and margin side by side,
-their agreement, and the setup that produced them. Results are cached by ``core`` (a repeat is
-immediate).
+their agreement, and the setup that produced them; the full-wave margins are kept as
+``Document.fullwave`` for the ranked spot table's full-wave column (shown while the vehicle is the one
+confirmed). Results are cached by ``core`` (a repeat is immediate).
 """
 
 from __future__ import annotations
