@@ -59,6 +59,9 @@ class Scene:
     tread_loss_db: float
     wheel_tables: tuple = ()
     wheel_model_label: str = "knife edge"
+    #: why the wheel model asked for in the file is not the one in use ("" when it is), e.g. no
+    #: installed-pattern table for the band; set where the fallback happens (Scene.from_vehicle)
+    wheel_model_fallback: str = ""
     cavity: object = None  # core.cavity.Cavity: the diffuse level inside the hull, or None
     fade_probability: float = 0.0  # the scores' level is the one exceeded with probability 1 - this (core.links.fade_power)
 
@@ -131,18 +134,21 @@ class Scene:
         sensor_kind = r.sensor.pattern
         tables: tuple = ()
         label = "knife edge"
+        fallback = ""
         if model == "installed_pattern" and r.sensor.pattern == "dipole":
             from core.wheel_patterns import table_for_wheel
 
             try:
                 tables = tuple(table_for_wheel(w, f, r.sensor.axis) for w in wheels)
             except (FileNotFoundError, ValueError) as e:  # no table for this band or size
-                label = f"knife edge (installed pattern unavailable: {e})"
+                fallback = f"installed pattern unavailable: {e}"
             else:
                 sensor_kind = "table"
                 label = "installed pattern: " + "; ".join(sorted({t.provenance for t in tables}))
         elif model == "installed_pattern":
-            label = "knife edge (installed patterns need a dipole sensor)"
+            fallback = "installed patterns need a dipole sensor"
+        if fallback:
+            label = f"knife edge ({fallback})"
         rx_gain = r.receiver.gain_dbi
         scene = cls(
             vehicle=v,
@@ -170,6 +176,7 @@ class Scene:
             tread_loss_db=loss("tire_tread"),
             wheel_tables=tables,
             wheel_model_label=label,
+            wheel_model_fallback=fallback,
             fade_probability=r.fade_probability,
         )
         if cavity:

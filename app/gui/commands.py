@@ -201,6 +201,13 @@ def compare_bodies(doc: Document, ui) -> None:
     ui.compare_window = open_compare_window(ui, [str(doc.path)] if doc.path else None)
 
 
+def confirm_fullwave(doc: Document, ui) -> None:
+    """Tools > Confirm with full-wave: the best spots through the full-wave model, in a worker."""
+    from app.gui.confirm_window import confirm_fullwave as run
+
+    run(ui)
+
+
 def help_usage(doc: Document, ui) -> None:
     ui.help_dialog = dialogs.show_help(ui, "Usage")
 
@@ -238,6 +245,9 @@ COMMANDS: tuple[Command, ...] = (
     Command("&View", "&Compute heatmap", compute_heatmap, "F5", "Compute the margin over the mounting region"),
     Command("&View", "Ca&ncel heatmap", cancel_heatmap, "Esc", "Stop the heatmap computation"),
     Command("&Tools", "&Compare bodies...", compare_bodies, "Ctrl+Shift+C", "Compare spots across several body files"),
+    Command("&Tools", "Confirm with &full-wave...", confirm_fullwave, "Ctrl+Shift+F",
+            "Run the full-wave (NEC-2) model for the best spots beside the fast levels (minutes per body; "
+            "needs the fullwave extra)"),
     Command("&Help", "&Using the program", help_usage, "F1", "README: set-up, usage and file format pointers"),
     Command("&Help", "&Cautions", help_caution, "", "README: limits of the results"),
     Command("&Help", "&About Wheelreach", about, "", "Version, models and the safety caution"),

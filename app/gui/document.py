@@ -150,6 +150,9 @@ class Document(QObject):
         self._live_request: tuple[str, tuple[float, float, float]] | None = None
         self._generation = 0
         self._auto_select = True
+        #: the latest full-wave confirmation of this document (app.gui.confirm_window), shown while the
+        #: vehicle is the one it was run on: {"vehicle", "margins" by spot name, "fast" by spot name, "setup"}
+        self.fullwave: dict | None = None
         self._install(Prepared(vehicle, self.scene, self.physics), first=True)
         if vehicle.spots and not self.pending.any():
             self.selected = vehicle.spots[int(self.scores.order()[0])].name

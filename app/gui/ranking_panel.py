@@ -368,8 +368,10 @@ class HeatmapPanel(QWidget):
 class SpotTable(QTableWidget):
     """The spots best first (``SpotScores.order()``); selecting a row selects the spot everywhere."""
 
-    COLUMNS = ("rank", "no.", "spot", "margin dB", "worst wheel", "at angle deg", "placement")
+    COLUMNS = ("rank", "no.", "spot", "margin dB", "worst wheel", "at angle deg", "placement",
+               "full-wave dB")
     PLACEMENT_COLUMN = 6
+    FULLWAVE_COLUMN = 7  # shown only while a full-wave confirmation of this very vehicle exists
 
     def __init__(self, doc: Document, parent: QWidget | None = None):
         super().__init__(0, len(self.COLUMNS), parent)
@@ -384,8 +386,12 @@ class SpotTable(QTableWidget):
         hh = self.horizontalHeader()
         hh.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         hh.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
-        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92), (6, 110)):
+        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92), (6, 110), (7, 96)):
             self.setColumnWidth(c, wpx)
+        self.setColumnHidden(self.FULLWAVE_COLUMN, True)
+        self.horizontalHeaderItem(self.FULLWAVE_COLUMN).setToolTip(
+            "Full-wave margin, dB, in free space (the full-wave model has no road), of the spots confirmed with "
+            "Tools > Confirm with full-wave; shown while the vehicle is the one confirmed")
         self.itemSelectionChanged.connect(self._selected)
         doc.scoresReady.connect(self.refresh)
         doc.liveScore.connect(self._live)
@@ -430,9 +436,32 @@ class SpotTable(QTableWidget):
                             item.setToolTip("a sensor comes nearer than lambda/2pi: near field, indicative only")
                     self.setItem(rank, c, item)
                 self._set_placement(rank, pl.status[i], pl.flag(i), pl.message(i))
+                self._set_fullwave(rank, sc.names[i])
         finally:
             self._loading = False
         self._select_row(self.doc.selected)
+
+    def fullwave_current(self) -> dict | None:
+        """The document's full-wave confirmation when it was run on the vehicle as it stands, else None."""
+        fw = self.doc.fullwave
+        return fw if fw is not None and fw["vehicle"] == self.doc.vehicle else None
+
+    def _set_fullwave(self, row: int, name: str) -> None:
+        """The full-wave margin beside the fast one (free space both: the full-wave model has no road)."""
+        fw = self.fullwave_current()
+        self.setColumnHidden(self.FULLWAVE_COLUMN, fw is None)
+        if fw is None:
+            return
+        if name not in fw["margins"]:
+            item = QTableWidgetItem("")
+            item.setToolTip("not among the spots confirmed with the full-wave model")
+        else:
+            item = QTableWidgetItem(f"{fw['margins'][name]:+.1f}")
+            item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+            item.setToolTip(f"full-wave margin {fw['margins'][name]:+.1f} dB against the fast engine's "
+                            f"{fw['fast'][name]:+.1f} dB, both in free space (the margin column includes the road "
+                            f"ray when it is on); full-wave setup: {fw['setup']}")
+        self.setItem(row, self.FULLWAVE_COLUMN, item)
 
     def _set_placement(self, row: int, status: str, flag: str, message: str) -> None:
         """The placement cell (core.placement): red for a spot that is not a receiver position, orange near a panel."""

@@ -132,6 +132,9 @@ class RadioPanel(QWidget):
             wheel_models.append(("installed pattern (full-wave table)", "installed_pattern"))
         self.wheel_model = _combo(wheel_models, "How the rim and tire act on the sensor's radiation")
         f.addRow("Wheel model", self.wheel_model)
+        self.wheel_model_status = QLabel()
+        self.wheel_model_status.setWordWrap(True)
+        f.addRow("", self.wheel_model_status)
         lay.addWidget(g)
 
         # --- receiver and scoring
@@ -261,6 +264,17 @@ class RadioPanel(QWidget):
         self.doc.apply(lambda v: edits.set_material_override(v, name, loss), text)
 
     # ----- document -> widgets ---------------------------------------------------------
+    def _show_wheel_model_in_use(self) -> None:
+        """The wheel model the engine uses (the scene's), and why when it is not the one chosen."""
+        scene = self.doc.scene
+        if scene.wheel_model_fallback:
+            self.wheel_model_status.setText(f"In use: knife edge (fallback). Reason: {scene.wheel_model_fallback}")
+            self.wheel_model_status.setStyleSheet("color: #b00000; font-weight: bold")
+        else:
+            self.wheel_model_status.setText(f"In use: {scene.wheel_model_label}")
+            self.wheel_model_status.setStyleSheet("color: #404040")
+        self.wheel_model_status.setToolTip(f"Wheel model of the engine's scene: {scene.wheel_model_label}")
+
     def refresh(self) -> None:
         self._loading = True
         try:
@@ -278,6 +292,7 @@ class RadioPanel(QWidget):
             _set_combo(self.sensor_axis, r.sensor.axis)
             self.return_loss.setValue(r.sensor.return_loss_db)
             _set_combo(self.wheel_model, r.wheel_model)
+            self._show_wheel_model_in_use()
             self.rx_gain.setValue(r.receiver.gain_dbi)
             _set_combo(self.rx_pattern, r.receiver.pattern)
             _set_combo(self.rx_axis, tuple(float(a) for a in r.receiver.axis))

@@ -411,6 +411,8 @@ class MainWindow(QMainWindow):
         self.doc.abandon_work()
         if getattr(self, "report_export", None) is not None:
             self.report_export.cancel()
+        if getattr(self, "fullwave_job", None) is not None:
+            self.fullwave_job.cancel()
         self.recovery_timer.stop()
         if self.recovery is not None:
             self.recovery.close()  # a clean close: this window's copy is no longer needed

@@ -222,6 +222,22 @@ class Confirmation:
         st = self.statistics()[statistic]
         return vr.agreement(st["engine"], st["reference"])
 
+    def margins(self, vehicle) -> dict:
+        """Spot margins, dB, of the full-wave (frequency-averaged) and the fast (free space) levels by the
+        engine's own rule (core.scoring.score_levels: the worst wheel's worst case over the turn -
+        sensitivity - required margin), with ``vehicle``'s receiver; also the two worst wheels' ids and the
+        scene's wheel model label (the fast engine's wheel model)."""
+        from core.scoring import score_levels
+
+        scene = vr.free_space_scene(vehicle, len(self.angles_deg))
+        fw = score_levels(scene, self.averaged_dbm, self.spots)
+        fa = score_levels(scene, self.engine_levels_dbm, self.spots)
+        return {"fullwave": fw.margin_db, "fast": fa.margin_db,
+                "fullwave_worst_wheel": [self.wheel_ids[i] for i in fw.worst_wheel],
+                "fast_worst_wheel": [self.wheel_ids[i] for i in fa.worst_wheel],
+                "sensitivity_dbm": scene.sensitivity_dbm, "required_margin_db": scene.required_margin_db,
+                "wheel_model": scene.wheel_model_label}
+
     def section(self, statistic: str = CONVERGED_STATISTIC) -> dict:
         """The confirmation section for the placement report (plain data)."""
         st = self.statistics()
@@ -303,7 +319,7 @@ def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.Reference
             workers: int | None = None, scheduler: str | None = None, serial: bool = False,
             cache_dir=None, use_cache: bool = True, progress: Callable[[int, int], None] | None = None,
             task_function: Callable | None = None, retries: int = 2, timeout_s: float = 10.0,
-            cancel: Callable[[], bool] | None = None) -> list[Confirmation]:
+            cancel: Callable[[], bool] | None = None, poll_s: float = 0.2) -> list[Confirmation]:
     """Confirm spots of each vehicle with the full-wave reference (one task per body and frequency).
 
     Parameters
@@ -318,8 +334,9 @@ def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.Reference
     cache_dir : cache folder (default :func:`fullwave_cache_dir`); use_cache False recomputes.
     progress : progress(done, total) after each task (cached tasks count at once).
     task_function : replaces :func:`run_task` (tests); called as f(task, cache_dir).
-    cancel : checked after each finished task; when it returns True the outstanding tasks are
-        cancelled and core.scoring.Cancelled is raised (finished tasks stay cached).
+    cancel : checked after each finished task (serial) or every ``poll_s`` seconds while tasks run
+        (Dask); when it returns True the outstanding tasks are cancelled and core.scoring.Cancelled is
+        raised (finished tasks stay cached).
     """
     from core.scoring import Cancelled
 
@@ -366,7 +383,17 @@ def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.Reference
         try:
             futures = {client.submit(fn, t, str(folder), key=f"wheelreach-confirm-{k}", retries=retries,
                                      pure=False): k for t, k in todo}
-            for fut in as_completed(futures):
+            finished = as_completed(futures)
+            while not finished.is_empty():
+                # the stop request is polled while tasks run (a body takes minutes): the outstanding
+                # tasks are cancelled and a LocalCluster's worker processes end when it closes below
+                if cancel is not None and cancel():
+                    client.cancel(list(futures))
+                    raise Cancelled()
+                if not finished.has_ready():
+                    time.sleep(poll_s)
+                    continue
+                fut = next(finished)
                 k = futures[fut]
                 results[k] = fut.result()
                 if use_cache:
@@ -374,9 +401,6 @@ def confirm(vehicles, *, spots=None, n_frequencies: int = 5, setup: vr.Reference
                 done += 1
                 if progress is not None:
                     progress(done, total)
-                if cancel is not None and cancel() and done < total:
-                    client.cancel(list(futures))
-                    raise Cancelled()
         finally:
             client.close()
             if cluster is not None:

@@ -69,6 +69,7 @@ __all__ = [
     "compare_stored",
     "coupling_to_level_dbm",
     "engine_levels",
+    "free_space_scene",
     "frequency_average_db",
     "load_reference_csv",
     "solve_frequency",
@@ -260,11 +261,19 @@ def agreement(engine_db, reference_db) -> dict:
 def engine_levels(vehicle, spots, angles_per_turn: int) -> np.ndarray:
     """The fast engine's levels (S, W, A), dBm, for spots (names, positions, axes), free space (no road:
     the reference has no ground, i.e. ``wheelreach rank --no-ground``), at the reference's angles."""
-    from core.scoring import Scene, spot_levels
+    from core.scoring import spot_levels
+
+    scene = free_space_scene(vehicle, angles_per_turn)
+    return spot_levels(scene, np.atleast_2d(spots[1]), np.atleast_2d(spots[2]))
+
+
+def free_space_scene(vehicle, angles_per_turn: int):
+    """The engine's scene of ``vehicle`` as the reference sees it: free space (no road), the reference's
+    angles per turn (core.scoring.Scene)."""
+    from core.scoring import Scene
 
     radio = vehicle.radio.model_copy(update={"angles_per_turn": int(angles_per_turn), "ground_reflection": False})
-    scene = Scene.from_vehicle(vehicle.model_copy(update={"radio": radio}))
-    return spot_levels(scene, np.atleast_2d(spots[1]), np.atleast_2d(spots[2]))
+    return Scene.from_vehicle(vehicle.model_copy(update={"radio": radio}))
 
 
 def compare_stored(vehicle, entry: dict, statistic: str = "median", percentile: float = 10.0) -> dict:
