@@ -535,21 +535,48 @@ def escape_clearance_m(hull: Hull, x, y, z) -> np.ndarray:
     return np.fmax(h, 0.0)  # fmax: nan (outside an envelope) -> 0
 
 
-def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> np.ndarray:
-    """Body loss of the straight paths a -> b (N, 3), dB.
+@dataclass(frozen=True)
+class BodyPaths:
+    """The hull crossings of N straight paths, and the knife-edge alternative of each passage.
 
-    Every hull crossing costs its panel loss; a passage through the hull (entering and leaving
-    again) costs the smaller of its two panel losses and the knife-edge loss over its dominant edge.
+    ``rows``, ``loss_db`` (C,): the path and panel loss (dB) of every crossing (core.geometry.Flips,
+    in order along each path); ``passage`` (P,): the index (into the crossings) of the entering crossing
+    of each passage through the hull (the leaving one follows it); ``edge_db`` (P,): the knife-edge
+    loss over that passage's dominant edge, dB. Everything here but the panel losses is geometry, so
+    the body loss for other panel losses (:meth:`total_db`) needs no new path tracing.
     """
+
+    n: int
+    rows: np.ndarray
+    loss_db: np.ndarray
+    passage: np.ndarray
+    edge_db: np.ndarray
+
+    def total_db(self, crossing_loss_db: np.ndarray | None = None) -> np.ndarray:
+        """Body loss of each path (N,), dB: the sum of its crossings' losses, each passage costing the
+        smaller of its two panel losses and its knife edge. ``crossing_loss_db`` (C,) replaces the
+        crossings' panel losses (default: ``loss_db``)."""
+        loss = self.loss_db if crossing_loss_db is None else np.asarray(crossing_loss_db, float)
+        total = np.bincount(self.rows, weights=loss, minlength=self.n).astype(float)
+        if len(self.passage) == 0:
+            return total
+        pen = loss[self.passage] + loss[self.passage + 1]
+        np.add.at(total, self.rows[self.passage], np.minimum(pen, self.edge_db) - pen)
+        return total
+
+
+def body_paths(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> BodyPaths:
+    """The crossings of the straight paths a -> b (N, 3), m, and the knife edge over each passage
+    (the dominant edge among DIFFRACTION_SAMPLES points of the passage, ITU-R P.526-15 eq. 26, 31)."""
     a = np.asarray(a, float)
     b = np.asarray(b, float)
     f = hull_flips(hull, a, b, bits0)
-    total = np.bincount(f.rows, weights=f.loss_db, minlength=f.n).astype(float)
+    none = np.empty(0, np.intp)
     if len(f.rows) < 2:
-        return total
+        return BodyPaths(f.n, f.rows, f.loss_db, none, np.empty(0))
     passage = np.nonzero((f.rows[1:] == f.rows[:-1]) & (f.direction[:-1] == 1) & (f.direction[1:] == -1))[0]
     if len(passage) == 0:
-        return total
+        return BodyPaths(f.n, f.rows, f.loss_db, none, np.empty(0))
     lam = float(wavelength_m(freq_hz))
     rows = f.rows[passage]
     t0, t1 = f.t[passage], f.t[passage + 1]
@@ -564,7 +591,13 @@ def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0
     d1 = np.maximum(ts * length[:, None], 1e-6)
     d2 = np.maximum((1.0 - ts) * length[:, None], 1e-6)
     v = h * np.sqrt(2.0 / lam * (1.0 / d1 + 1.0 / d2))
-    j_db = knife_edge_loss_db(v.max(axis=1))
-    pen = f.loss_db[passage] + f.loss_db[passage + 1]
-    np.add.at(total, rows, np.minimum(pen, j_db) - pen)
-    return total
+    return BodyPaths(f.n, f.rows, f.loss_db, passage, knife_edge_loss_db(v.max(axis=1)))
+
+
+def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> np.ndarray:
+    """Body loss of the straight paths a -> b (N, 3), dB.
+
+    Every hull crossing costs its panel loss; a passage through the hull (entering and leaving
+    again) costs the smaller of its two panel losses and the knife-edge loss over its dominant edge.
+    """
+    return body_paths(hull, a, b, freq_hz, bits0).total_db()

@@ -38,7 +38,7 @@ import numpy as np
 
 from core.geometry import body_loss_db, start_bits
 from core.propagation import fresnel_reflection
-from core.wheel import wheel_loss_db
+from core.wheel import wheel_loss_parts as _wheel_parts
 
 _Z = np.array([0.0, 0.0, 1.0])
 _MIRROR = np.array([1.0, 1.0, -1.0])
@@ -130,14 +130,126 @@ def _sensor_fields(scene, groups, theta, s_axis, u, r_axis, dist) -> np.ndarray:
 
 def _wheel_losses(scene, groups, src, dst) -> np.ndarray:
     """Knife-edge wheel loss (core.wheel.wheel_loss_db) over links of several wheels, dB."""
+    rim_db, tread = wheel_loss_parts(scene, groups, src, dst)
+    return rim_db + np.where(tread, scene.tread_loss_db, scene.sidewall_loss_db)
+
+
+def wheel_loss_parts(scene, groups, src, dst) -> tuple[np.ndarray, np.ndarray]:
+    """core.wheel.wheel_loss_parts over links of several wheels: rim knife-edge loss (dB), leaves through the tread."""
     if len(groups) == 1:
-        w = scene.wheels[groups[0][0]]
-        return wheel_loss_db(w, src, dst, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
-    out = np.empty(len(src))
+        return _wheel_parts(scene.wheels[groups[0][0]], src, dst, scene.freq_hz)
+    rim_db = np.empty(len(src))
+    tread = np.empty(len(src), bool)
     for wi, g in groups:
-        out[g] = wheel_loss_db(scene.wheels[wi], src[g], dst[g], scene.freq_hz, scene.sidewall_loss_db,
-                               scene.tread_loss_db)
-    return out
+        rim_db[g], tread[g] = _wheel_parts(scene.wheels[wi], src[g], dst[g], scene.freq_hz)
+    return rim_db, tread
+
+
+@dataclass(frozen=True)
+class Rays:
+    """The rays of N links before any loss: geometry, antenna coupling and the road's reflection.
+
+    ``c_d`` (N,) complex: the direct ray's pattern-and-polarization coupling; ``d`` (N,): its length, m.
+    With the road ray (``road`` True): ``c_r`` the reflected ray's coupling (Fresnel coefficients
+    included), ``d_r`` its image path length (m), ``cos_phase``, ``sin_phase`` of its lag behind the
+    direct ray k (d_r - d), and ``g_pt`` (N, 3) the road point. The legs whose body loss each ray
+    takes: direct ``src -> dst`` (start bits ``bits0``), reflected ``src -> g_pt`` (``bits0``) and
+    ``dst -> g_pt`` (``spot_bits``). ``groups``: (wheel, link selection) pairs.
+    """
+
+    groups: list
+    src: np.ndarray
+    dst: np.ndarray
+    bits0: np.ndarray
+    c_d: np.ndarray
+    d: np.ndarray
+    road: bool = False
+    spot_bits: np.ndarray | None = None
+    g_pt: np.ndarray | None = None
+    c_r: np.ndarray | None = None
+    d_r: np.ndarray | None = None
+    cos_phase: np.ndarray | None = None
+    sin_phase: np.ndarray | None = None
+
+
+def link_rays(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: np.ndarray,
+              bits0: np.ndarray, dst: np.ndarray, r_axis: np.ndarray,
+              spot_bits: np.ndarray | None = None) -> Rays:
+    """The rays of N links (arguments as :func:`link_field`), without their losses."""
+    groups = _wheel_groups(wheel_index, len(src))
+    # direct ray
+    u, d = _unit(dst - src)
+    d = np.maximum(d, MIN_PATH_M)
+    e_d = _sensor_fields(scene, groups, theta, s_axis, u, r_axis, d)
+    if scene.receiver_pattern == "dipole":
+        c_d = _dot(e_d, r_axis)
+    else:
+        norm_d = np.linalg.norm(e_d, axis=-1)
+        ref = e_d / np.maximum(norm_d, 1e-12)[:, None]  # the direct ray's polarization
+        c_d = norm_d.astype(complex)
+    if not scene.ground_reflection:
+        return Rays(groups, src, dst, bits0, c_d, d)
+    img = src * _MIRROR
+    u_r, d_r = _unit(dst - img)
+    d_r = np.maximum(d_r, MIN_PATH_M)
+    u_i = u_r * _MIRROR  # direction leaving the sensor toward the road
+    tg = src[:, 2] / np.maximum(src[:, 2] + dst[:, 2], 1e-9)
+    g_pt = img + tg[:, None] * (dst - img)
+    g_pt[:, 2] = 0.0
+    e_i = _sensor_fields(scene, groups, theta, s_axis, u_i, r_axis, d_r)
+    n_te, n_len = _unit(np.cross(_Z, u_i))
+    vertical = n_len < 1e-9
+    if vertical.any():
+        n_te[vertical] = np.array([0.0, 1.0, 0.0])
+    t_i = np.cross(n_te, u_i)
+    grazing = np.arcsin(np.clip(u_r[:, 2], 0.0, 1.0))
+    g_perp, g_par = fresnel_reflection(scene.road_eps, grazing)
+    e_r = (g_perp * _dot(e_i, n_te))[:, None] * n_te - (g_par * _dot(e_i, t_i))[:, None] * (t_i * _MIRROR)
+    # the road point -> receiver leg is traced from the receiver end (same panels and passages),
+    # so its start membership is the spot's, shared by every angle
+    if spot_bits is None:
+        spot_bits = start_bits(scene.hull, dst[:, 0], dst[:, 1], dst[:, 2])
+    if scene.receiver_pattern == "dipole":
+        c_r = _dot(e_r, r_axis)
+    else:
+        c_r = _dot(e_r, np.conj(ref))
+    phase = scene.wavenumber * (d_r - d)  # the reflected ray's lag behind the direct ray, rad
+    return Rays(groups, src, dst, bits0, c_d, d, True, spot_bits, g_pt, c_r, d_r, np.cos(phase), np.sin(phase))
+
+
+def ray_losses(scene, rays: Rays) -> tuple[np.ndarray, np.ndarray | None]:
+    """Losses of the direct and the road ray (None without it), dB: body loss of their legs
+    (core.geometry.body_loss_db) plus, for the knife-edge wheel, the wheel loss."""
+    loss_d = body_loss_db(scene.hull, rays.src, rays.dst, scene.freq_hz, rays.bits0)
+    if scene.use_wheel_loss:
+        loss_d = loss_d + _wheel_losses(scene, rays.groups, rays.src, rays.dst)
+    if not rays.road:
+        return loss_d, None
+    loss_r = body_loss_db(scene.hull, rays.src, rays.g_pt, scene.freq_hz, rays.bits0)
+    loss_r = loss_r + body_loss_db(scene.hull, rays.dst, rays.g_pt, scene.freq_hz, rays.spot_bits)
+    if scene.use_wheel_loss:
+        loss_r = loss_r + _wheel_losses(scene, rays.groups, rays.src, rays.g_pt)
+    return loss_d, loss_r
+
+
+def combine_rays(rays: Rays, loss_d: np.ndarray, loss_r: np.ndarray | None, null_floor_db: float) -> LinkField:
+    """The received field of the rays with their losses (dB) and the null floor (dB, see :func:`link_field`)."""
+    floor2_amp = 10.0 ** (null_floor_db / 10.0)
+    # The ray sum in real arithmetic, relative to the direct ray's phase e^{-jkd} (which drops out
+    # of the magnitude): field = c_d g_d + c_r g_r e^{-jk (d_r - d)}, g = 10^(-L/20) / d.
+    c_d = rays.c_d
+    g_d = 10.0 ** (-loss_d / 20.0) / rays.d
+    field_re = c_d.real * g_d
+    field_im = c_d.imag * g_d
+    floor2 = g_d * g_d
+    if rays.road:
+        g_r = 10.0 ** (-loss_r / 20.0) / rays.d_r
+        b = rays.c_r * g_r
+        cos, sin = rays.cos_phase, rays.sin_phase
+        field_re = field_re + (b.real * cos + b.imag * sin)  # b e^{-j phase}
+        field_im = field_im + (b.imag * cos - b.real * sin)
+        floor2 = floor2 + g_r * g_r
+    return LinkField(field_re, field_im, floor2_amp * floor2)
 
 
 def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: np.ndarray,
@@ -158,68 +270,13 @@ def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: n
     sum of the rays' powers. With one ray this is the pattern-and-polarization floor
     max(|c|, f) of the design; with the road ray it also bounds the two-ray nulls. The depth f is
     the radio setup's ``null_floor_db`` (engineering default -30 dB).
+
+    The work is split in three (:func:`link_rays`, :func:`ray_losses`, :func:`combine_rays`) so that a
+    caller varying only losses, EIRP or the null floor (core.link_terms) traces the rays once.
     """
-    groups = _wheel_groups(wheel_index, len(src))
-    floor2_amp = 10.0 ** (scene.null_floor_db / 10.0)
-
-    # direct ray
-    u, d = _unit(dst - src)
-    d = np.maximum(d, MIN_PATH_M)
-    e_d = _sensor_fields(scene, groups, theta, s_axis, u, r_axis, d)
-    loss_d = body_loss_db(scene.hull, src, dst, scene.freq_hz, bits0)
-    if scene.use_wheel_loss:
-        loss_d = loss_d + _wheel_losses(scene, groups, src, dst)
-    if scene.receiver_pattern == "dipole":
-        c_d = _dot(e_d, r_axis)
-    else:
-        norm_d = np.linalg.norm(e_d, axis=-1)
-        ref = e_d / np.maximum(norm_d, 1e-12)[:, None]  # the direct ray's polarization
-        c_d = norm_d.astype(complex)
-    # The ray sum in real arithmetic, relative to the direct ray's phase e^{-jkd} (which drops out
-    # of the magnitude): field = c_d g_d + c_r g_r e^{-jk (d_r - d)}, g = 10^(-L/20) / d.
-    g_d = 10.0 ** (-loss_d / 20.0) / d
-    field_re = c_d.real * g_d
-    field_im = c_d.imag * g_d
-    floor2 = g_d * g_d
-
-    if scene.ground_reflection:
-        img = src * _MIRROR
-        u_r, d_r = _unit(dst - img)
-        d_r = np.maximum(d_r, MIN_PATH_M)
-        u_i = u_r * _MIRROR  # direction leaving the sensor toward the road
-        tg = src[:, 2] / np.maximum(src[:, 2] + dst[:, 2], 1e-9)
-        g_pt = img + tg[:, None] * (dst - img)
-        g_pt[:, 2] = 0.0
-        e_i = _sensor_fields(scene, groups, theta, s_axis, u_i, r_axis, d_r)
-        n_te, n_len = _unit(np.cross(_Z, u_i))
-        vertical = n_len < 1e-9
-        if vertical.any():
-            n_te[vertical] = np.array([0.0, 1.0, 0.0])
-        t_i = np.cross(n_te, u_i)
-        grazing = np.arcsin(np.clip(u_r[:, 2], 0.0, 1.0))
-        g_perp, g_par = fresnel_reflection(scene.road_eps, grazing)
-        e_r = (g_perp * _dot(e_i, n_te))[:, None] * n_te - (g_par * _dot(e_i, t_i))[:, None] * (t_i * _MIRROR)
-        loss_r = body_loss_db(scene.hull, src, g_pt, scene.freq_hz, bits0)
-        # the road point -> receiver leg, traced from the receiver end (same panels and passages),
-        # so the start membership is the spot's, shared by every angle
-        if spot_bits is None:
-            spot_bits = start_bits(scene.hull, dst[:, 0], dst[:, 1], dst[:, 2])
-        loss_r = loss_r + body_loss_db(scene.hull, dst, g_pt, scene.freq_hz, spot_bits)
-        if scene.use_wheel_loss:
-            loss_r = loss_r + _wheel_losses(scene, groups, src, g_pt)
-        if scene.receiver_pattern == "dipole":
-            c_r = _dot(e_r, r_axis)
-        else:
-            c_r = _dot(e_r, np.conj(ref))
-        g_r = 10.0 ** (-loss_r / 20.0) / d_r
-        b = c_r * g_r
-        phase = scene.wavenumber * (d_r - d)  # the reflected ray's lag behind the direct ray, rad
-        cos, sin = np.cos(phase), np.sin(phase)
-        field_re = field_re + (b.real * cos + b.imag * sin)  # b e^{-j phase}
-        field_im = field_im + (b.imag * cos - b.real * sin)
-        floor2 = floor2 + g_r * g_r
-
-    return LinkField(field_re, field_im, floor2_amp * floor2)
+    rays = link_rays(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits)
+    loss_d, loss_r = ray_losses(scene, rays)
+    return combine_rays(rays, loss_d, loss_r, scene.null_floor_db)
 
 
 def turn_field(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,

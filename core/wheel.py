@@ -125,6 +125,14 @@ def wheel_loss_db(
     freq_hz : frequency, Hz
     sidewall_loss_db, tread_loss_db : crossing losses of the tire sidewall and the steel-belted tread, dB
     """
+    rim_db, tread = wheel_loss_parts(w, src, dst, freq_hz)
+    return rim_db + np.where(tread, tread_loss_db, sidewall_loss_db)
+
+
+def wheel_loss_parts(w: WheelGeometry, src: np.ndarray, dst: np.ndarray, freq_hz: float) -> tuple[np.ndarray, np.ndarray]:
+    """The geometry of :func:`wheel_loss_db`: the rim knife-edge loss (dB) of each path, and whether it
+    leaves the tire through the tread (True) or a sidewall (False). A path that enters the rim barrel
+    leaves through the sidewall beyond the flange it diffracts over."""
     src = np.asarray(src, float)
     dst = np.asarray(dst, float)
     sx, sz, sw = _to_wheel_frame(w, src)
@@ -189,5 +197,4 @@ def wheel_loss_db(
     t_side = np.where(np.abs(uw) > 1e-12, (side_w - sw) / uw_safe, np.inf)
     t_side = np.where(t_side > 0, t_side, np.inf)
     through_tread = (t_tread < t_side) & (t_tread < length)
-    tire_db = np.where(enters, sidewall_loss_db, np.where(through_tread, tread_loss_db, sidewall_loss_db))
-    return rim_db + tire_db
+    return rim_db, ~enters & through_tread
