@@ -37,7 +37,8 @@ def describe_position(search: CommonSearch) -> str:
     return f"{abs(dx):.3f} m {where} the {lm}, y = {y + 0.0:+.3f} m, {z}"
 
 
-def comparison_text(c: Comparison, search: CommonSearch | None = None, search_error: str = "") -> str:
+def comparison_text(c: Comparison, search: CommonSearch | None = None, search_error: str = "",
+                    calibration_note: str = "") -> str:
     labels = body_labels(c)
     w = max(24, max(len(n) for n in c.spot_names) + 1)
     head = f"{'spot':<{w}}" + "".join(f"{lab:^14}" for lab in labels) + f"{'min dB':>9}  limited by"
@@ -70,6 +71,8 @@ def comparison_text(c: Comparison, search: CommonSearch | None = None, search_er
                          f"({search.best_worst_wheel[b]})")
     elif search_error:
         lines.append(f"Shared-region search: {search_error}")
+    if calibration_note:
+        lines.append(calibration_note)
     lines.append(SAFETY_NOTE)
     return "\n".join(lines)
 
@@ -102,7 +105,7 @@ def comparison_csv(c: Comparison, search: CommonSearch | None = None) -> str:
 
 
 def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: CommonSearch | None,
-                         search_error: str = "") -> int:
+                         search_error: str = "", calibration_note: str = "") -> int:
     """The comparison as a PDF: inputs with hashes, small top views, the table, the search, the caution."""
     from PySide6.QtCore import QRectF
 
@@ -121,6 +124,8 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
         f.table(["Body", "Vehicle", "Input", "SHA-256"],
                 [[esc(lab), esc(v.name), esc(Path(p).name if p else "unsaved document"), f"<span class='mono'>{h}</span>"]
                  for lab, v, p, h in zip(labels, vehicles, paths, hashes)], [11, 24, 18, 47], small=True)
+        if calibration_note:
+            f.html(f"<p><b>{esc(calibration_note)}</b></p>", 4)
         if best >= 0:
             lb = int(c.limiting_body[best])
             f.html(f"<h2>Platform-common best spot</h2><p><b>{esc(c.spot_names[best])}</b>: smallest margin over the "
