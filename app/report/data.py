@@ -115,6 +115,7 @@ def _materials_in_use(v: Vehicle, calibration: dict | None = None) -> tuple[dict
     if v.radio.wheel_model == "knife_edge" or v.radio.sensor.pattern == "isotropic":
         used += [("tire_sidewall", "tire sidewall"), ("tire_tread", "tire tread")]
     rows: dict[str, dict] = {}
+    fitted: set[str] = set()
     f = v.radio.frequency_hz
     for name, where in used:
         if name in rows:
@@ -128,6 +129,7 @@ def _materials_in_use(v: Vehicle, calibration: dict | None = None) -> tuple[dict
                    + (f" +- {se:.2f}" if se is not None else "") + f" dB ({calibration.get('note', '')})")
             default = False
             loss = v.materials[name].loss_db
+            fitted.add(name)
         elif name in v.materials:
             m = v.materials[name]
             src = "value given in the vehicle file" + (f": {m.description}" if m.description else "")
@@ -138,7 +140,7 @@ def _materials_in_use(v: Vehicle, calibration: dict | None = None) -> tuple[dict
             src, default = bm.source, bm.engineering_default
             loss = float(material_loss_db(name, f))
         rows[name] = {"material": name, "loss_db": float(loss), "source": src,
-                      "engineering_default": bool(default), "used_by": [where]}
+                      "engineering_default": bool(default), "calibrated": name in fitted, "used_by": [where]}
     return tuple(rows.values())
 
 
@@ -221,7 +223,7 @@ def _placement_findings(scores: SpotScores, placement: Placement) -> list[str]:
 
 
 def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, regions, eirp_note: str,
-              placement: Placement) -> str:
+              placement: Placement, calibration: dict | None = None) -> str:
     cand = placement.candidate
     order = [int(i) for i in scores.order() if cand[i]] or [int(i) for i in scores.order()]
     b = int(order[0])
@@ -246,6 +248,8 @@ def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, r
     if len(order) > 1:
         s2 = int(order[1])
         parts.append(f"The runner-up is '{scores.names[s2]}' at {scores.margin_db[s2]:+.1f} dB.")
+    if calibration:
+        parts.append(f"These margins use the calibrated model: {calibration.get('note', '')}.")
     check = check_sensor_eirp(v.radio)
     if check.over_ceiling:
         paras.insert(0, [check.warning()])
@@ -381,7 +385,7 @@ def build_report_data(
         near_field_limit_m=float(near_field_limit_m(scene.freq_hz)), placement=placement, setup=setup,
         eirp_check=check, calibration=calibration,
     )
-    findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note, placement)
+    findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note, placement, calibration)
     return ReportData(**{**data.__dict__, "findings": findings})
 
 

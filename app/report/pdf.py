@@ -202,6 +202,8 @@ def _overrides_text(o: dict) -> str:
         parts.append(f"wheel model {o['wheel_model']}")
     for sp in o.get("extra_spots", []):
         parts.append(f"added spot '{sp['name']}'")
+    if o.get("calibration"):
+        parts.append("calibration applied (below)")
     return ", ".join(parts) or "none (the file as it is)"
 
 
@@ -258,7 +260,8 @@ def _title_page(f: Flow, d: ReportData) -> None:
            "measurements where available.</p>", 2, keep=120 * S)
     rows = []
     for m in d.materials:
-        kind = "engineering default" if m["engineering_default"] else "published / by definition"
+        kind = ("calibrated from measurements" if m.get("calibrated") else
+                "engineering default" if m["engineering_default"] else "published / by definition")
         rows.append([esc(m["material"]), f"{m['loss_db']:.2f}", esc(kind),
                      f"<span class='small'>{esc(', '.join(m['used_by']))}</span>",
                      f"<span class='small'>{esc(m['source'])}</span>"])
