@@ -7,8 +7,8 @@ docs/calibration-format.md, schema docs/calibration-format.json) that ``rank``, 
 place where a calibration changes a vehicle: material losses become material entries of the
 vehicle (``Vehicle.materials``), the EIRP offset is added to the sensor's EIRP (or to its
 conducted power when the EIRP is built from it), the null floor replaces the radio's. Only the
-parameters the measurements informed are applied (``applied`` in the file); the others keep the
-vehicle's own values. The values applied are recorded in every output's setup
+parameters the measurements depend on are applied (``applied`` in the file,
+core.calibration_fit); the others keep the vehicle's own values. The values applied are recorded in every output's setup
 (core.provenance, ``overrides.calibration``), so a recorded output can be produced again.
 
 A parameter is one entry of :data:`PARAMETERS`: a cabin/contents loss (when the engine has one)
@@ -148,7 +148,9 @@ Db = Annotated[float, Field(ge=-1000.0, le=1000.0)]
 
 
 class FittedParameter(_Strict):
-    """One fitted parameter: prior (centre and width), fitted value and standard error, dB."""
+    """One fitted parameter: prior (centre and width), fitted value and standard error, dB; whether the
+    measurements determine it alone (``informed``), how much they depend on it (``sensitivity``, their
+    information on it alone over the prior's), whether it is applied, and its strongest correlation."""
 
     key: Literal[PARAMETER_KEYS]  # type: ignore[valid-type]
     label: str
@@ -157,9 +159,37 @@ class FittedParameter(_Strict):
     value_db: Db
     standard_error_db: Annotated[float, Field(ge=0.0, le=1000.0)]
     informed: bool
+    sensitivity: Annotated[float, Field(ge=0.0)]
     applied: bool
+    correlated_with: Literal[PARAMETER_KEYS] | None = None  # type: ignore[valid-type]
+    correlation: Annotated[float, Field(ge=-1.0001, le=1.0001)] | None = None
     lower_db: Db
     upper_db: Db
+
+    def at_bound(self) -> str:
+        """"lower" or "upper" when the fitted value sits on that bound of the fit, else ""."""
+        tol = 1e-3 * max(self.upper_db - self.lower_db, 1e-9)
+        if self.value_db - self.lower_db <= tol:
+            return "lower"
+        if self.upper_db - self.value_db <= tol:
+            return "upper"
+        return ""
+
+    def status(self, labels: Mapping[str, str] | None = None) -> str:
+        """The parameter's state in words, for tables."""
+        if not self.applied:
+            return "not informed by the measurements: the vehicle's value is kept"
+        parts = ["applied"]
+        if self.correlated_with:
+            other = (labels or {}).get(self.correlated_with, self.correlated_with)
+            parts.append(f"correlated with {other} (r = {self.correlation:+.2f}): the measurements fix their "
+                         "combination" + ("" if self.informed else ", not each alone"))
+        elif not self.informed:
+            parts.append("weakly determined (standard error near the prior width)")
+        bound = self.at_bound()
+        if bound:
+            parts.append(f"at its {bound} bound: the measurements ask for more than the model's range")
+        return "; ".join(parts)
 
 
 class HoldOutRecord(_Strict):
@@ -201,8 +231,11 @@ class Calibration(_Strict):
     caution: str = ""
 
     def applied_values(self) -> dict[str, float]:
-        """The values applied to a vehicle: the informed parameters, key -> dB."""
+        """The values applied to a vehicle: the parameters the measurements depend on, key -> dB."""
         return {p.key: p.value_db for p in self.parameters if p.applied}
+
+    def labels(self) -> dict[str, str]:
+        return {p.key: p.label for p in self.parameters}
 
     def standard_errors(self) -> dict[str, float]:
         return {p.key: p.standard_error_db for p in self.parameters}
@@ -225,7 +258,7 @@ class Calibration(_Strict):
     def values_text(self) -> str:
         """The applied values, e.g. "metal crossing loss 23.1 +- 0.4 dB; ..." ("none" when none was applied)."""
         parts = [f"{p.label} {p.value_db:.1f} +- {p.standard_error_db:.1f} dB" for p in self.parameters if p.applied]
-        return "; ".join(parts) or "none (the measurements informed no parameter)"
+        return "; ".join(parts) or "none (the measurements depend on no parameter)"
 
 
 class CalibrationFileError(VehicleFileError):

@@ -22,9 +22,16 @@ median absolute value, corrected for the parameters' degrees of freedom) until i
 priors weigh against data of the noise actually found. Solver: scipy.optimize.least_squares
 (trust-region reflective, bounded). Standard errors: the square roots of the diagonal of (J^T J)^-1,
 J the Jacobian of the scaled residuals at the solution (the Gauss-Newton approximation of the
-posterior covariance, robust weights included); a parameter is *informed* by the measurements when
-its standard error is at most ``INFORMED_SHARE`` of its prior width, and only informed parameters are
-applied by a calibration.
+posterior covariance, robust weights included); a parameter is *determined* by the measurements when
+its standard error is at most ``INFORMED_SHARE`` of its prior width. A calibration applies every
+parameter the measurements depend on: its *sensitivity*, the information the items carry on it alone
+(the sum of its squared Jacobian column over the items) in units of its prior's information
+(1 / width^2), is at least ``SENSITIVE_RATIO``. Parameters the measured paths never touch (a material
+they do not cross, the tread loss under the installed wheel pattern) have sensitivity 0 and keep the
+vehicle's values. Two parameters may each be undetermined while their combination is well fixed (when
+every measured path crosses exactly one metal panel, the metal loss and the EIRP offset shift the
+levels alike): both are applied, since together they reproduce the measurements, and their
+correlation (from the covariance) is reported when it is 0.9 or more in size.
 
 Hold-out: the spots are split into k folds (a seeded shuffle); each fold's items are predicted by a
 fit to the other folds. The hold-out RMS (every item predicted once, by a fit that never saw its
@@ -74,8 +81,12 @@ NOISE_START_DB = 3.0
 NOISE_MIN_DB = 0.1
 #: residuals beyond this many noise scales weigh less (soft-L1 loss)
 ROBUST_SCALE = 2.0
-#: a parameter is informed when its standard error is at most this share of its prior width
+#: a parameter is determined when its standard error is at most this share of its prior width
 INFORMED_SHARE = 0.5
+#: a parameter is applied when the items' information on it alone is at least this times its prior's
+SENSITIVE_RATIO = 1.0
+#: correlations reported from this size on
+STRONG_CORRELATION = 0.9
 #: k of the k-fold hold-out, and the seed of the spots' shuffle
 HOLDOUT_FOLDS = 5
 HOLDOUT_SEED = 0
@@ -252,6 +263,7 @@ class FitResult:
     standard_error: np.ndarray
     informed: np.ndarray
     covariance: np.ndarray
+    sensitivity: np.ndarray  # (n,) the items' information on each parameter alone / its prior's
     used: np.ndarray
     measured: np.ndarray
     predicted_before: np.ndarray
@@ -270,17 +282,42 @@ class FitResult:
     def values(self) -> dict[str, float]:
         return {k: float(v) for k, v in zip(self.keys, self.x)}
 
+    @property
+    def applied(self) -> np.ndarray:
+        """(n,) True for the parameters the measurements depend on (sensitivity >= SENSITIVE_RATIO)."""
+        return self.sensitivity >= SENSITIVE_RATIO
+
     def applied_values(self) -> dict[str, float]:
-        """The values of the informed parameters, key -> dB."""
-        return {k: float(v) for k, v, ok in zip(self.keys, self.x, self.informed) if ok}
+        """The values of the applied parameters, key -> dB."""
+        return {k: float(v) for k, v, ok in zip(self.keys, self.x, self.applied) if ok}
+
+    def correlation(self) -> np.ndarray:
+        """(n, n) correlation matrix of the fitted values."""
+        se = np.where(self.standard_error > 0, self.standard_error, 1.0)
+        return self.covariance / np.outer(se, se)
+
+    def strongest_correlation(self, i: int) -> tuple[int, float]:
+        """(index, correlation) of the parameter most correlated with parameter i; (-1, 0) when none is."""
+        c = self.correlation()[i].copy()
+        c[i] = 0.0
+        if len(c) < 2:
+            return -1, 0.0
+        j = int(np.argmax(np.abs(c)))
+        return j, float(c[j])
 
     def fitted_parameters(self) -> list[FittedParameter]:
-        return [FittedParameter(key=p.key, label=p.label, prior_db=round(float(self.prior[i]), 6),
-                                prior_width_db=p.prior_width_db, value_db=round(float(self.x[i]), 6),
-                                standard_error_db=round(float(self.standard_error[i]), 6),
-                                informed=bool(self.informed[i]), applied=bool(self.informed[i]),
-                                lower_db=float(self.lower[i]), upper_db=float(self.upper[i]))
-                for i, p in enumerate(self.parameters)]
+        out = []
+        for i, p in enumerate(self.parameters):
+            j, r = self.strongest_correlation(i)
+            strong = j >= 0 and abs(r) >= STRONG_CORRELATION
+            out.append(FittedParameter(
+                key=p.key, label=p.label, prior_db=round(float(self.prior[i]), 6), prior_width_db=p.prior_width_db,
+                value_db=round(float(self.x[i]), 6), standard_error_db=round(float(self.standard_error[i]), 6),
+                informed=bool(self.informed[i]), sensitivity=round(float(self.sensitivity[i]), 4),
+                applied=bool(self.applied[i]), correlated_with=self.parameters[j].key if strong else None,
+                correlation=round(r, 4) if strong else None,
+                lower_db=float(self.lower[i]), upper_db=float(self.upper[i])))
+        return out
 
 
 def _rms(r: np.ndarray) -> float:
@@ -321,8 +358,8 @@ def fit_model(model: MeasurementModel, used: np.ndarray | None = None, max_round
     if n == 0:
         r = before[used] - meas
         return FitResult((), prior, width, lower, upper, prior, np.zeros(0), np.zeros(0, bool), np.zeros((0, 0)),
-                         used, model.measured, before, before, max(NOISE_MIN_DB, _rms(r)), _rms(r), _rms(r), 0,
-                         "no parameters to fit", True)
+                         np.zeros(0), used, model.measured, before, before, max(NOISE_MIN_DB, _rms(r)), _rms(r),
+                         _rms(r), 0, "no parameters to fit", True)
     noise = NOISE_START_DB
     # start strictly inside the bounds (least_squares requires it)
     span = upper - lower
@@ -352,10 +389,12 @@ def fit_model(model: MeasurementModel, used: np.ndarray | None = None, max_round
     J = final.jac
     cov = np.linalg.pinv(J.T @ J)
     se = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    sensitivity = np.sum(J[:nd] ** 2, axis=0) * width ** 2  # the items' information on each alone / the prior's
     after = model.predict(x)
     return FitResult(
         parameters=params, prior=prior, width=width, lower=lower, upper=upper, x=x, standard_error=se,
-        informed=se <= INFORMED_SHARE * width, covariance=cov, used=used, measured=model.measured,
+        informed=se <= INFORMED_SHARE * width, covariance=cov, sensitivity=sensitivity, used=used,
+        measured=model.measured,
         predicted_before=before, predicted_after=after, noise_db=float(noise),
         rms_before_db=_rms(before[used] - meas), rms_after_db=_rms(after[used] - meas),
         function_evaluations=int(nfev), message=str(res.message), success=bool(res.success),

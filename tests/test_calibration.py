@@ -177,16 +177,30 @@ def test_outliers_weigh_less():
     assert np.all(np.abs(fit.x - x_true) <= 1.0), _recovery_table(fit, x_true)
 
 
-def test_parameters_the_body_does_not_use_are_not_informed_and_not_applied():
+def test_parameters_the_body_does_not_use_are_not_applied_and_correlated_ones_are():
     # the sample sedan's paths to its own spots never cross glass, and the installed wheel pattern holds the
     # tread: neither can be learned from these measurements
     v = load_vehicle(SAMPLES_DIR / "sedan.json")
-    ms, _, _ = synthetic(v, PARAMETERS, True, per_turn=24, spots=["under dash centre", "rear bumper", "roof lining"])
+    spots = ["under dash centre", "rear bumper", "roof lining"]
+    ms, x_true, noise = synthetic(v, PARAMETERS, True, per_turn=24, spots=spots)
     fit = fit_model(MeasurementModel.build(v, ms, PARAMETERS))
-    informed = dict(zip(fit.keys, fit.informed))
-    assert not informed["glass_loss_db"] and not informed["tread_loss_db"]
-    assert fit.standard_error[fit.keys.index("tread_loss_db")] == pytest.approx(4.0, rel=1e-3)  # the prior's width
-    assert "glass_loss_db" not in fit.applied_values() and "tread_loss_db" not in fit.applied_values()
+    fitted = {p.key: p for p in fit.fitted_parameters()}
+    for key in ("glass_loss_db", "tread_loss_db"):
+        assert fitted[key].sensitivity == 0.0 and not fitted[key].applied and not fitted[key].informed
+        assert fitted[key].standard_error_db == pytest.approx(fitted[key].prior_width_db, rel=1e-3)
+        assert key not in fit.applied_values()
+    # every path to these cabin spots crosses exactly one metal panel: metal loss and EIRP offset move the
+    # levels alike, so each alone is known only to a quarter of its prior width (the priors split them), but
+    # their combination is fixed; both are applied and said to be correlated, and together they reproduce the
+    # measurements to the noise
+    metal, eirp = fitted["metal_loss_db"], fitted["sensor_eirp_offset_db"]
+    assert metal.applied and eirp.applied
+    assert metal.standard_error_db > 2.0 and eirp.standard_error_db > 2.0
+    assert metal.correlated_with == "sensor_eirp_offset_db" and metal.correlation > 0.99
+    assert "correlated with sensor_eirp_offset_db (r = +1.00): the measurements fix their combination" in metal.status()
+    k_m, k_e = fit.keys.index("metal_loss_db"), fit.keys.index("sensor_eirp_offset_db")
+    assert (eirp.value_db - metal.value_db) == pytest.approx(x_true[k_e] - x_true[k_m], abs=0.5)
+    assert fit.rms_after_db == pytest.approx(np.sqrt(np.mean(noise ** 2)), rel=0.05)
 
 
 # ----- hold-out ----------------------------------------------------------------------------------------

@@ -54,7 +54,7 @@ def _cmd_calibrate(args) -> int:
     print(f"wheel model: {cal.model['wheel_model']}; road reflection {'on' if cal.model['ground_reflection'] else 'off'}")
     print(f"{'parameter':<22} {'prior dB':>9} {'width':>6} {'fitted dB':>10} {'s.e.':>6} {'change':>7}  status")
     for p in cal.parameters:
-        status = "applied" if p.applied else "not informed by the measurements: the vehicle's value is kept"
+        status = p.status(cal.labels())
         print(f"{p.label:<22} {p.prior_db:9.2f} {p.prior_width_db:6.1f} {p.value_db:10.2f} {p.standard_error_db:6.2f} "
               f"{p.value_db - p.prior_db:+7.2f}  {status}")
     f = cal.fit

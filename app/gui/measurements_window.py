@@ -182,7 +182,7 @@ class MeasurementsWindow(QMainWindow):
             f"Wheel model: {cal.model['wheel_model']}.")
         self.table.setRowCount(len(cal.parameters))
         for i, p in enumerate(cal.parameters):
-            status = "applied" if p.applied else "not informed by these measurements: the vehicle's value is kept"
+            status = p.status(cal.labels())
             cells = [p.label, f"{p.prior_db:.2f} (width {p.prior_width_db:g})", f"{p.value_db:.2f}",
                      f"{p.standard_error_db:.2f}", f"{p.value_db - p.prior_db:+.2f}", status]
             for j, text in enumerate(cells):
