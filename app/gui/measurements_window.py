@@ -261,6 +261,10 @@ class MeasurementsWindow(QMainWindow):
         if notes:
             text += (f" Levels without wheel angles ({', '.join(notes)}): their measured 10th, 50th and 90th "
                      "percentiles as dotted lines.")
+        same = [f"{ms.wheel_ids[a]} and {ms.wheel_ids[b]}" for a in range(len(ms.wheel_ids))
+                for b in range(a + 1, len(ms.wheel_ids)) if np.max(np.abs(after[a] - after[b])) < 0.05]
+        if same:
+            text += f" The curves of {'; '.join(same)} coincide (the spot sees them alike), so one hides the other."
         self.turn_note.setText(text)
         self.turn.setTitle(f"Level over the turn at '{ms.spot_names[k]}'")
 
