@@ -314,7 +314,30 @@ def calibration_override(cal: Calibration, path: str | os.PathLike | None, sha25
     (re-applied by core.provenance.apply_overrides) and the one-line note."""
     return {"file": str(path) if path else None, "sha256": sha256, "values": cal.applied_values(),
             "standard_errors": {k: v for k, v in cal.standard_errors().items() if k in cal.applied_values()},
-            "note": cal.note(), "measured_vehicle": cal.vehicle.get("name")}
+            "note": cal.note(), "measured_vehicle": cal.vehicle.get("name"),
+            "frequencies_hz": list(cal.model.get("frequencies_hz", [])), "wheel_model": cal.model.get("wheel_model")}
+
+
+#: a body within this share of a calibrated frequency counts as the same band
+SAME_BAND_SHARE = 0.03
+
+
+def calibration_warnings(v: Vehicle, record: Mapping) -> list[str]:
+    """Why a calibration (its ``overrides.calibration`` record) may not carry over to vehicle ``v``: fitted at
+    another frequency, or with the other wheel model. Empty when neither."""
+    out = []
+    f = v.radio.frequency_hz
+    freqs = [float(x) for x in record.get("frequencies_hz") or []]
+    if freqs and not any(abs(f - x) <= SAME_BAND_SHARE * x for x in freqs):
+        out.append(f"the calibration was fitted at {', '.join(f'{x / 1e6:.2f}' for x in freqs)} MHz and "
+                   f"'{v.name}' runs at {f / 1e6:.2f} MHz: the fitted losses and EIRP offset may not carry over")
+    label = record.get("wheel_model") or ""
+    if label:
+        fitted = "installed_pattern" if label.startswith("installed pattern") else "knife_edge"
+        if fitted != v.radio.wheel_model:
+            out.append(f"the calibration was fitted with the {fitted.replace('_', ' ')} wheel model and '{v.name}' "
+                       f"uses the {v.radio.wheel_model.replace('_', ' ')} one")
+    return out
 
 
 def calibration_record(path: str | os.PathLike) -> tuple[Calibration, dict]:
@@ -369,6 +392,7 @@ __all__ = [
     "calibration_override",
     "calibration_record",
     "calibration_schema",
+    "calibration_warnings",
     "load_calibration",
     "parameter",
     "parse_calibration",

@@ -153,6 +153,9 @@ def test_compare_applies_the_calibration_to_every_body(cal_file, capsys):
     assert main(["compare", str(SEDAN), str(hatch), "--no-search", "--calibration", str(cal_file)]) == 0
     out = capsys.readouterr().out
     assert f"Calibration {cal_file} applied to every body: calibrated from 1,088 measurements" in out
+    # fitted on the 433.92 MHz sedan, applied to the 315 MHz hatchback: said so
+    assert ("Warning: the calibration was fitted at 433.92 MHz and 'Demo compact hatchback' runs at 315.00 MHz"
+            in out) and "'Demo mid-size sedan' runs" not in out
     assert out != plain and out.rstrip().endswith(SAFETY_NOTE)
 
 

@@ -66,12 +66,18 @@ def calibration_override(args) -> dict | None:
     return calibration_record(path)[1]
 
 
-def print_calibration(overrides: dict) -> None:
-    """One line naming the calibration applied (nothing without one)."""
+def print_calibration(overrides: dict, vehicles=()) -> None:
+    """One line naming the calibration applied, and a warning line for each of ``vehicles`` it may not
+    fit (core.calibration.calibration_warnings); nothing without a calibration."""
     rec = overrides.get("calibration")
     if rec:
+        from core.calibration import calibration_warnings
+
         values = ", ".join(f"{k} {x:.2f}" for k, x in rec["values"].items()) or "no value (none was informed)"
         print(f"calibration {rec['file']}: {rec['note']}; applied: {values}")
+        for v in vehicles:
+            for w in calibration_warnings(v, rec):
+                print(f"warning: {w}")
 
 
 def _setup(args, v, scene, source, overrides, extra=None) -> dict:
@@ -110,7 +116,7 @@ def _cmd_rank(args) -> int:
           f"{scores.sensitivity_dbm:.1f} dBm, required margin {scores.required_margin_db:.1f} dB, "
           f"{len(scores.angles_deg)} angles per turn, wheel model: {scene.wheel_model_label}")
     print(f"worst case: {scene.score_method}")
-    print_calibration(overrides)
+    print_calibration(overrides, [v])
     if not check.over_ceiling:
         print(f"radio limit: {check.summary()}")
     at = f" {'at ceiling':>10}" if check.over_ceiling else ""
@@ -186,7 +192,7 @@ def _cmd_heatmap(args) -> int:
           f"{cells} cells computed, {ok} with margin >= 0 dB ({100.0 * ok / max(cells, 1):.0f} % of the computed cells)")
     if excluded:
         print(f"not computed (not a receiver position): {excluded}")
-    print_calibration(overrides)
+    print_calibration(overrides, [v])
     at = f" {'at ceiling':>10}" if check.over_ceiling else ""
     print(f"{'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}{at}  worst wheel")
     for x, y, z, m, w in hm.best_cells(args.top):

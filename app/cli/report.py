@@ -39,7 +39,7 @@ def _cmd_report(args) -> int:
     print(f"wrote {args.output}: {n} pages; {d.vehicle.name}; best spot '{s.names[b]}' at {s.margin_db[b]:+.1f} dB "
           f"(worst wheel {s.wheel_ids[s.worst_wheel[b]]})")
     if calibration:
-        print_calibration({"calibration": calibration})
+        print_calibration({"calibration": calibration}, [d.vehicle])
     for p in (args.csv, args.json):
         if p:
             print(f"wrote {p}")
@@ -61,8 +61,14 @@ def _cmd_compare(args) -> int:
         from core.provenance import apply_overrides
 
         vehicles = [apply_overrides(v, {"calibration": calibration}, f) for v, f in zip(vehicles, args.files)]
-    note = (f"Calibration {calibration['file']} applied to every body: {calibration['note']}"
-            if calibration else "")
+    note = ""
+    if calibration:
+        from core.calibration import calibration_warnings
+
+        note = f"Calibration {calibration['file']} applied to every body: {calibration['note']}"
+        for v in vehicles:
+            for w in calibration_warnings(v, calibration):
+                note += f"\nWarning: {w}"
     scenes = [Scene.from_vehicle(v) for v in vehicles]
     c = compare_bodies(vehicles, scenes)
     search, err = None, ""

@@ -125,7 +125,7 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
                 [[esc(lab), esc(v.name), esc(Path(p).name if p else "unsaved document"), f"<span class='mono'>{h}</span>"]
                  for lab, v, p, h in zip(labels, vehicles, paths, hashes)], [11, 24, 18, 47], small=True)
         if calibration_note:
-            f.html(f"<p><b>{esc(calibration_note)}</b></p>", 4)
+            f.html("".join(f"<p><b>{esc(line)}</b></p>" for line in calibration_note.splitlines()), 4)
         if best >= 0:
             lb = int(c.limiting_body[best])
             f.html(f"<h2>Platform-common best spot</h2><p><b>{esc(c.spot_names[best])}</b>: smallest margin over the "

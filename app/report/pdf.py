@@ -207,14 +207,19 @@ def _overrides_text(o: dict) -> str:
     return ", ".join(parts) or "none (the file as it is)"
 
 
-def _calibration_text(cal: dict | None) -> str:
-    """The title page's calibration line: "calibrated from N measurements, hold-out RMS x dB", the file and values."""
+def _calibration_text(cal: dict | None, v=None) -> str:
+    """The title page's calibration line: "calibrated from N measurements, hold-out RMS x dB", the file, the values
+    and why it may not carry over to this vehicle (core.calibration.calibration_warnings)."""
     if not cal:
         return "none: the model's own parameter values (File &gt; Import measurements or 'wheelreach calibrate' fit them)"
+    from core.calibration import calibration_warnings
+
     values = "; ".join(f"{esc(k)} {x:.2f} dB" for k, x in cal.get("values", {}).items()) or "no value applied"
+    warn = "".join(f"<br/><b style='color:#a3141e'>Warning: {esc(w)}</b>"
+                   for w in (calibration_warnings(v, cal) if v is not None else []))
     return (f"<b>{esc(cal.get('note', ''))}</b><br/><span class='small'>{esc(cal.get('file') or '')} "
             f"(SHA-256 <span class='mono'>{esc((cal.get('sha256') or '')[:16])}...</span>); applied: {values}; "
-            f"measured on {esc(cal.get('measured_vehicle') or '?')}</span>")
+            f"measured on {esc(cal.get('measured_vehicle') or '?')}</span>{warn}")
 
 
 def _title_page(f: Flow, d: ReportData) -> None:
@@ -239,7 +244,7 @@ def _title_page(f: Flow, d: ReportData) -> None:
         ["Command line", f"<span class='mono'>{esc(shlex.join(cmd))}</span>" if cmd
          else "desktop program (File &gt; Export report)"],
         ["Overrides", esc(_overrides_text(st.get("overrides", {})))],
-        ["Calibration", _calibration_text(d.calibration)],
+        ["Calibration", _calibration_text(d.calibration, v)],
         ["Wheel model", esc(d.scene.wheel_model_label)
          + (f"<br/><span class='small'>tables: {esc(ts.get('solver', ''))}, model {esc(ts.get('model_version', ''))}, "
             f"{esc(ts.get('date_utc', ''))}</span>" if ts else "")],
