@@ -47,7 +47,9 @@ class Parameter:
     ``kind``: "material" (the crossing loss of ``material``), "eirp_offset" (added to the sensor's
     EIRP) or "null_floor" (the radio's null floor). ``prior_width`` is the standard deviation of the
     prior around the vehicle's own value (the documented default unless its file overrides it);
-    ``lower``, ``upper`` bound the fit. ``why`` says where the prior and its width come from.
+    ``lower``, ``upper`` bound the fit (:meth:`bounds`). ``why`` says where the prior and its width come
+    from. ``hull_panel``: a material of the body's panels, whose loss also decides whether the panel is an
+    opening that feeds the cabin (core.cavity.OPENING_LOSS_DB).
     """
 
     key: str
@@ -58,6 +60,7 @@ class Parameter:
     upper: float
     why: str
     material: str = ""
+    hull_panel: bool = False
 
     def prior(self, v: Vehicle) -> float:
         """The vehicle's own value at its frequency, dB: the prior's centre."""
@@ -71,6 +74,28 @@ class Parameter:
             return float(v.radio.null_floor_db)
         raise ValueError(f"unknown parameter kind {self.kind!r}")
 
+    def bounds(self, v: Vehicle) -> tuple[float, float]:
+        """The fit's bounds for vehicle ``v``, dB: ``lower``..``upper`` widened to hold the prior; for a hull
+        panel's material, also kept on the prior's side of the opening threshold (core.cavity.OPENING_LOSS_DB:
+        under it a panel is an opening that feeds the cabin, at or over it a conducting wall). Which panels
+        are openings is the model's structure, not a number to fit: across the threshold the level jumps
+        (a metal shell under 10 dB would feed the cabin over its whole area), which a least-squares fit
+        cannot cross meaningfully."""
+        from core.cavity import OPENING_LOSS_DB
+
+        prior = self.prior(v)
+        lo, hi = min(self.lower, prior), max(self.upper, prior)
+        if self.hull_panel:
+            if prior < OPENING_LOSS_DB:
+                hi = min(hi, OPENING_LOSS_DB - OPENING_MARGIN_DB)
+            else:
+                lo = max(lo, OPENING_LOSS_DB)
+        return lo, hi
+
+
+#: a hull panel's fitted loss stays this far under the opening threshold when its prior is under it, dB
+OPENING_MARGIN_DB = 0.01
+
 
 #: The fitted parameters, in the order of every table and file. The prior widths are engineering
 #: defaults of this program (no published spread exists for them), stated with their reasons.
@@ -78,13 +103,13 @@ PARAMETERS: tuple[Parameter, ...] = (
     Parameter("metal_loss_db", "metal crossing loss", "material", 10.0, 0.0, 60.0,
               "built-in 20 dB is an engineering default (leakage through seams and gaps); width 10 dB, twice the "
               "5 dB spread of whole-car penetration loss in 3GPP TR 38.901 sec. 7.4.3.2 (engineering default)",
-              material="metal"),
+              material="metal", hull_panel=True),
     Parameter("glass_loss_db", "glass crossing loss", "material", 4.0, 0.0, 30.0,
               "built-in 3GPP TR 38.901 Table 7.4.3-1 standard glass; width 4 dB for heated or coated glass and "
-              "frames (engineering default)", material="glass"),
+              "frames (engineering default)", material="glass", hull_panel=True),
     Parameter("plastic_loss_db", "plastic crossing loss", "material", 3.0, 0.0, 20.0,
               "built-in slab loss of a typical polymer (under 0.1 dB); width 3 dB for paint, brackets and parts "
-              "behind the panel (engineering default)", material="plastic"),
+              "behind the panel (engineering default)", material="plastic", hull_panel=True),
     Parameter("tread_loss_db", "tire tread loss", "material", 4.0, 0.0, 40.0,
               "built-in 10 dB engineering default, typical range 8-15 dB; used by the knife-edge wheel only (the "
               "installed wheel pattern holds the steel belt itself)", material="tire_tread"),

@@ -66,7 +66,7 @@ from core.calibration import (
     Parameter,
     apply_values,
 )
-from core.link_terms import LinkTerms
+from core.link_terms import LinkTerms, cabin_of
 from core.measurements import MeasurementSet
 from core.scoring import Scene
 from core.vehicle import Vehicle
@@ -145,6 +145,7 @@ class MeasurementModel:
             vf = vehicle if f == vehicle.radio.frequency_hz else vehicle.model_copy(
                 update={"radio": vehicle.radio.model_copy(update={"frequency_hz": f})})
             scenes[f] = Scene.from_vehicle(vf, wheel_model=wheel_model, ground_reflection=ground_reflection)
+        cabins = {f: cabin_of(sc) for f, sc in scenes.items()}  # one cabin per scene, shared by its links
         level = ms.antenna_level_dbm
         n_pct = len(PERCENTILES)
         measured = [level[rows]]
@@ -155,7 +156,7 @@ class MeasurementModel:
             if len(sel):
                 r = rows[sel]
                 lt = LinkTerms.build(scenes[f], ms.wheel[r], ms.angle_rad[r], ms.spot_positions[ms.spot[r]],
-                                     ms.spot_axes[ms.spot[r]])
+                                     ms.spot_axes[ms.spot[r]], cabins[f])
                 angle_terms.append((lt, sel))
         turn_terms = []
         theta = np.arange(FIT_TURN_ANGLES) * (2.0 * np.pi / FIT_TURN_ANGLES)
@@ -168,7 +169,7 @@ class MeasurementModel:
             if len(gsel):
                 sp = np.repeat(groups[gsel, 0], FIT_TURN_ANGLES)
                 lt = LinkTerms.build(scenes[f], np.repeat(groups[gsel, 1], FIT_TURN_ANGLES),
-                                     np.tile(theta, len(gsel)), ms.spot_positions[sp], ms.spot_axes[sp])
+                                     np.tile(theta, len(gsel)), ms.spot_positions[sp], ms.spot_axes[sp], cabins[f])
                 turn_terms.append((lt, gsel))
         n_rows = len(rows)
         return cls(
@@ -274,6 +275,7 @@ class FitResult:
     function_evaluations: int
     message: str
     success: bool
+    held: np.ndarray | None = None  # (n,) not identifiable from the items: held at the prior (see fit_model)
 
     @property
     def keys(self) -> tuple[str, ...]:
@@ -284,8 +286,10 @@ class FitResult:
 
     @property
     def applied(self) -> np.ndarray:
-        """(n,) True for the parameters the measurements depend on (sensitivity >= SENSITIVE_RATIO)."""
-        return self.sensitivity >= SENSITIVE_RATIO
+        """(n,) True for the parameters the measurements depend on (sensitivity >= SENSITIVE_RATIO) and do not
+        leave at the prior (``held``)."""
+        ok = self.sensitivity >= SENSITIVE_RATIO
+        return ok if self.held is None else ok & ~self.held
 
     def applied_values(self) -> dict[str, float]:
         """The values of the applied parameters, key -> dB."""
@@ -293,8 +297,7 @@ class FitResult:
 
     def correlation(self) -> np.ndarray:
         """(n, n) correlation matrix of the fitted values."""
-        se = np.where(self.standard_error > 0, self.standard_error, 1.0)
-        return self.covariance / np.outer(se, se)
+        return _correlation(self.covariance, self.standard_error)
 
     def strongest_correlation(self, i: int) -> tuple[int, float]:
         """(index, correlation) of the parameter most correlated with parameter i; (-1, 0) when none is."""
@@ -351,54 +354,103 @@ def fit_model(model: MeasurementModel, used: np.ndarray | None = None, max_round
     n = len(params)
     prior = model.priors()
     width = np.array([p.prior_width_db for p in params])
-    lower = np.array([min(p.lower, pr) for p, pr in zip(params, prior)])
-    upper = np.array([max(p.upper, pr) for p, pr in zip(params, prior)])
+    lower, upper = np.array([p.bounds(model.vehicle) for p in params]).reshape(n, 2).T
     before = model.predict(None)
-    nd = len(meas)
     if n == 0:
         r = before[used] - meas
         return FitResult((), prior, width, lower, upper, prior, np.zeros(0), np.zeros(0, bool), np.zeros((0, 0)),
                          np.zeros(0), used, model.measured, before, before, max(NOISE_MIN_DB, _rms(r)), _rms(r),
                          _rms(r), 0, "no parameters to fit", True)
-    noise = NOISE_START_DB
+    fit = _solve(model, used, meas, prior, width, lower, upper, np.ones(n, bool), max_rounds)
+    # a parameter the items barely touch is not identifiable from this design: its standard error stays near
+    # its prior width and no strongly correlated partner fixes a combination with it. Its fitted value would be
+    # mostly the prior's pull against noise: it is held at the prior and the others are fitted again.
+    corr = _correlation(fit["cov"], fit["se"])
+    np.fill_diagonal(corr, 0.0)
+    paired = np.any(np.abs(corr) >= STRONG_CORRELATION, axis=1)
+    informed = fit["se"] <= INFORMED_SHARE * width
+    held = ~informed & ~paired
+    if held.any() and not held.all():
+        again = _solve(model, used, meas, prior, width, lower, upper, ~held, max_rounds, fit["x"], fit["noise"])
+        again["nfev"] += fit["nfev"]
+        fit = again
+    elif held.all():
+        held[:] = False  # nothing else to fit: the result is the fit as it is, reported as not informed
+    x, cov, se, sensitivity, noise = fit["x"], fit["cov"], fit["se"], fit["sensitivity"], fit["noise"]
+    after = model.predict(x)
+    return FitResult(
+        parameters=params, prior=prior, width=width, lower=lower, upper=upper, x=x, standard_error=se,
+        informed=(se <= INFORMED_SHARE * width) & ~held, covariance=cov, sensitivity=sensitivity, used=used,
+        measured=model.measured,
+        predicted_before=before, predicted_after=after, noise_db=float(noise),
+        rms_before_db=_rms(before[used] - meas), rms_after_db=_rms(after[used] - meas),
+        function_evaluations=int(fit["nfev"]), message=fit["message"], success=fit["success"], held=held,
+    )
+
+
+def _correlation(cov: np.ndarray, se: np.ndarray) -> np.ndarray:
+    s = np.where(se > 0, se, 1.0)
+    return cov / np.outer(s, s)
+
+
+def _solve(model: MeasurementModel, used, meas, prior, width, lower, upper, free: np.ndarray, max_rounds: int,
+           start: np.ndarray | None = None, noise_start: float = NOISE_START_DB) -> dict:
+    """The robust, regularised least squares over the parameters ``free`` (the others at their priors), the
+    noise scale re-estimated from the residuals until it settles; the covariance of the free parameters
+    from the Jacobian at the solution (the held ones: their prior width, uncorrelated) and the items'
+    sensitivity to every parameter. ``start``, ``noise_start``: where the solver starts (default: the priors
+    and NOISE_START_DB)."""
+    n = len(prior)
+    nd = len(meas)
+    k = int(free.sum())
+    noise = noise_start
     # start strictly inside the bounds (least_squares requires it)
     span = upper - lower
-    x = np.clip(prior, lower + 1e-6 * span, upper - 1e-6 * span)
+    x0 = np.clip(prior if start is None else start, lower + 1e-6 * span, upper - 1e-6 * span)
+    full = prior.copy()
+
+    def whole(xf):
+        out = full.copy()
+        out[free] = xf
+        return out
+
+    def fun(xf, s, f=free):
+        xx = whole(xf) if f is free else xf
+        return np.concatenate([(model.predict(xx)[used] - meas) / s, (xx[f] - prior[f]) / width[f]])
+
+    xf = x0[free]
     nfev = 0
     res = None
     for _ in range(max_rounds):
-        def fun(xx, s=noise):
-            return np.concatenate([(model.predict(xx)[used] - meas) / s, (xx - prior) / width])
-
-        res = least_squares(fun, x, bounds=(lower, upper), loss=_mixed_loss(nd), f_scale=ROBUST_SCALE,
-                            x_scale=width, method="trf", xtol=1e-8, ftol=1e-10, gtol=1e-10, max_nfev=200 * n)
+        res = least_squares(fun, xf, args=(noise,), bounds=(lower[free], upper[free]), loss=_mixed_loss(nd),
+                            f_scale=ROBUST_SCALE, x_scale=width[free], method="trf", xtol=1e-8, ftol=1e-10,
+                            gtol=1e-10, max_nfev=200 * k)
         nfev += res.nfev
-        x = res.x
-        r = model.predict(x)[used] - meas
-        dof = max(nd - n, 1)
+        xf = res.x
+        r = model.predict(whole(xf))[used] - meas
+        dof = max(nd - k, 1)
         new = max(NOISE_MIN_DB, 1.4826 * float(np.median(np.abs(r))) * np.sqrt(nd / dof))
         settled = abs(new - noise) <= 0.02 * noise
         noise = new
         if settled:
             break
-    # the covariance at the final noise scale (one more Jacobian at the solution)
-    final = least_squares(lambda xx: np.concatenate([(model.predict(xx)[used] - meas) / noise, (xx - prior) / width]),
-                          x, bounds=(lower, upper), loss=_mixed_loss(nd), f_scale=ROBUST_SCALE, x_scale=width,
-                          method="trf", max_nfev=1)
+    x = whole(xf)
+    # one more Jacobian at the solution, at the final noise scale, over every parameter (the held ones at their
+    # priors, strictly inside the bounds): the sensitivities; the covariance of the free ones
+    xj = np.clip(x, lower + 1e-6 * span, upper - 1e-6 * span)
+    final = least_squares(lambda xx: fun(xx, noise, np.ones(n, bool)), xj, bounds=(lower, upper),
+                          loss=_mixed_loss(nd), f_scale=ROBUST_SCALE, x_scale=width, method="trf", max_nfev=1)
     nfev += final.nfev
     J = final.jac
-    cov = np.linalg.pinv(J.T @ J)
-    se = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     sensitivity = np.sum(J[:nd] ** 2, axis=0) * width ** 2  # the items' information on each alone / the prior's
-    after = model.predict(x)
-    return FitResult(
-        parameters=params, prior=prior, width=width, lower=lower, upper=upper, x=x, standard_error=se,
-        informed=se <= INFORMED_SHARE * width, covariance=cov, sensitivity=sensitivity, used=used,
-        measured=model.measured,
-        predicted_before=before, predicted_after=after, noise_db=float(noise),
-        rms_before_db=_rms(before[used] - meas), rms_after_db=_rms(after[used] - meas),
-        function_evaluations=int(nfev), message=str(res.message), success=bool(res.success),
-    )
+    Jf = J[:, free]
+    cov = np.zeros((n, n))
+    cov[np.ix_(free, free)] = np.linalg.pinv(Jf.T @ Jf)
+    held = ~free
+    cov[held, held] = width[held] ** 2
+    se = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    return {"x": x, "cov": cov, "se": se, "sensitivity": sensitivity, "noise": noise, "nfev": nfev,
+            "message": str(res.message), "success": bool(res.success)}
 
 
 @dataclass(frozen=True, eq=False)

@@ -30,8 +30,12 @@ every wheel's sensor at the cavity's input angles to *every* hull patch (core.ca
 core.cavity.surface_samples) are traced once on the coded hull, like the rays; an evaluation re-sums
 their losses, decides the openings and assembles the cavity with core.cavity.cavity_from (the
 engine's own assembly), then the receivers' diffuse factor with core.cavity.diffuse_factor: a few
-milliseconds, exact for any material losses.
+milliseconds, exact for any material losses. The cavity does not depend on the links, so one
+:class:`Cabin` per scene serves every LinkTerms of it (core.calibration_fit shares it between the
+levels with angles and the turns of the drive logs), and the crossings of the paths to a material's
+patches are traced only once that material is an opening.
 """
+
 
 from __future__ import annotations
 
@@ -47,27 +51,104 @@ from core.materials import material_loss_db
 from core.scoring import Scene, vehicle_hull
 
 
-@dataclass(frozen=True, eq=False)
-class CabinTerms:
-    """The parts of the cabin's diffuse field that stay while the losses change (see the module notes).
+def _coded_hull(scene: Scene):
+    """The scene's hull built with material numbers in place of losses, and the material names by number."""
+    number: dict[str, int] = {}
 
-    ``patches``: (centres, normals, areas) of every hull patch (core.cavity.surface_samples) and
-    ``patch_material`` (P,) the material number of each; ``paths`` the sensor -> patch paths
-    (core.cavity.InputPaths, to every patch) with their body crossings ``legs`` (direct; and the road
-    ray's sensor -> road and patch -> road legs) and material numbers, and the knife-edge wheel's parts
-    ``wheel_parts`` (rim loss dB, leaves through the tread) of the direct and road legs (None with the
-    installed pattern); per link: ``inside`` (N,) the receiver is in the hull, ``wall`` (2, N) its wall
-    factors and ``wall_material`` (2, N) the panel material behind each (core.cavity.wall_terms)."""
+    def material_number(name: str) -> float:
+        return float(number.setdefault(name, len(number)))
 
-    patches: tuple[np.ndarray, np.ndarray, np.ndarray]
-    patch_material: np.ndarray
-    paths: cv.InputPaths
-    legs: tuple[tuple[BodyPaths, np.ndarray], ...]
-    wheel_parts: tuple[tuple[np.ndarray, np.ndarray], ...] | None
-    inside: np.ndarray
-    wall: np.ndarray
-    wall_material: np.ndarray
-    contents_m2: float
+    coded = vehicle_hull(scene.vehicle, scene.wheels, material_number)
+    return coded, tuple(number)
+
+
+def _tire(scene: Scene, tread: float, parts: tuple[np.ndarray, np.ndarray]) -> np.ndarray:
+    """The knife-edge wheel's loss, dB: rim knife edge plus the tire exit (tread or sidewall loss)."""
+    rim, through_tread = parts
+    return rim + np.where(through_tread, tread, scene.sidewall_loss_db)
+
+
+class Cabin:
+    """The cabin's diffuse field of one scene for other losses: what stays is traced once (see the module
+    notes); :meth:`cavity` assembles the cavity for given material losses. Shared by every LinkTerms of the
+    scene (:func:`cabin_of`): the cavity does not depend on the links.
+
+    ``patches``: (centres, normals, areas) of every hull patch (core.cavity.surface_samples);
+    ``patch_material`` (P,) the material number of each; ``paths`` the sensor -> patch paths to every patch
+    (core.cavity.InputPaths); ``wheel_parts``: the knife-edge wheel's (rim loss dB, leaves through the tread)
+    of the direct and the road legs (None with the installed pattern). The body crossings of the paths to
+    a material's patches are traced when that material is first an opening (metal never is in a fit:
+    core.calibration.Parameter.bounds), and kept."""
+
+    def __init__(self, scene: Scene, coded, materials: tuple[str, ...]):
+        cav = scene.cavity
+        p, n, a, number = cv.surface_samples(coded)
+        if not np.isclose(float(a.sum()), cav.surface_area_m2, rtol=1e-12, atol=0.0):
+            raise ValueError("the cavity's hull patches are not those of the default spacing")
+        self.scene, self.coded, self.materials = scene, coded, materials
+        self.patches = (p, n, a)
+        self.patch_material = np.rint(number).astype(int)
+        self.paths = paths = cv.input_paths(scene, p, n, cav.input_angles)
+        W, A, _ = paths.shape
+        self._path_material = np.tile(self.patch_material, W * A)
+        self.wheel_parts = None
+        if scene.use_wheel_loss:
+            groups = _wheel_groups(paths.wheel, len(paths.src))
+            ends = (paths.outside,) if paths.road_point is None else (paths.outside, paths.road_point)
+            self.wheel_parts = tuple((w.rim_db, w.through_tread) for w in
+                                     (_wheel_losses(scene, groups, paths.src, end, detail=True) for end in ends))
+        self.contents_m2 = cav.sigma_contents_m2
+        self._legs: dict[int, tuple] = {}
+        self._last: tuple | None = None
+
+    def _legs_of(self, m: int):
+        """(path indices, legs with their material numbers) of the paths to material m's patches."""
+        hit = self._legs.get(m)
+        if hit is None:
+            idx = np.flatnonzero(self._path_material == m)
+            ps, f = self.paths, self.scene.freq_hz
+            legs = [body_paths(self.coded, ps.src[idx], ps.outside[idx], f, ps.bits[idx])]
+            if ps.road_point is not None:
+                legs += [body_paths(self.coded, ps.src[idx], ps.road_point[idx], f, ps.bits[idx]),
+                         body_paths(self.coded, ps.outside[idx], ps.road_point[idx], f)]
+            hit = self._legs[m] = (idx, tuple((lp, lp.loss_db.astype(int)) for lp in legs))
+        return hit
+
+    def cavity(self, mat: np.ndarray, tread_loss_db: float | None) -> cv.Cavity:
+        """The core.cavity.Cavity with material losses ``mat`` (dB by material number) and the tire tread loss
+        (None: the scene's), assembled by core.cavity.cavity_from as the engine assembles it; the last kept."""
+        sc = self.scene
+        tread = sc.tread_loss_db if tread_loss_db is None else float(tread_loss_db)
+        key = (mat.tobytes(), tread)
+        if self._last is not None and self._last[0] == key:
+            return self._last[1]
+        patch_loss = mat[self.patch_material]
+        K = len(self._path_material)
+        # the losses of the paths to the openings (the others are not summed: core.cavity.input_power)
+        loss_d = np.zeros(K)
+        loss_r = None if self.paths.road_point is None else np.zeros(K)
+        for m in np.unique(self.patch_material[cv.is_opening(patch_loss)]):
+            idx, legs = self._legs_of(int(m))
+            body = [lp.total_db(mat[numbers]) for lp, numbers in legs]
+            loss_d[idx] = body[0]
+            if loss_r is not None:
+                loss_r[idx] = body[1] + body[2]
+        if self.wheel_parts is not None:
+            loss_d = loss_d + _tire(sc, tread, self.wheel_parts[0])
+            if loss_r is not None:
+                loss_r = loss_r + _tire(sc, tread, self.wheel_parts[1])
+        cav = cv.cavity_from(self.patches, patch_loss, self.paths, np.arange(len(patch_loss)), loss_d, loss_r,
+                             self.contents_m2, sc.freq_hz, sc.wavelength_m, sc.cavity.input_angles)
+        self._last = (key, cav)
+        return cav
+
+
+def cabin_of(scene: Scene) -> Cabin | None:
+    """The :class:`Cabin` of a scene (None without a cavity), to share among its LinkTerms."""
+    if getattr(scene, "cavity", None) is None:
+        return None
+    coded, materials = _coded_hull(scene)
+    return Cabin(scene, coded, materials)
 
 
 @dataclass(frozen=True, eq=False)
@@ -79,6 +160,9 @@ class LinkTerms:
     two legs (sensor -> road, receiver -> road) when the road reflection is on. ``wheel_parts``:
     (rim knife-edge loss dB, leaves through the tread) of the direct and the road ray, for the
     knife-edge wheel; None with the installed wheel pattern (which holds the rim and tire already).
+    With a cavity: ``cabin`` (:class:`Cabin`), and per link ``inside`` (N,) the receiver is in the hull,
+    ``wall`` (2, N) its wall factors and ``wall_material`` (2, N) the material number of the panel behind
+    each (core.cavity.wall_terms).
     """
 
     scene: Scene
@@ -91,13 +175,17 @@ class LinkTerms:
     theta: np.ndarray
     spots: np.ndarray
     axes: np.ndarray
-    cabin: CabinTerms | None = None
+    cabin: Cabin | None = None
+    inside: np.ndarray | None = None
+    wall: np.ndarray | None = None
+    wall_material: np.ndarray | None = None
 
     @classmethod
     def build(cls, scene: Scene, wheel: np.ndarray, theta: np.ndarray, spots: np.ndarray,
-              axes: np.ndarray) -> LinkTerms:
+              axes: np.ndarray, cabin: Cabin | None = None) -> LinkTerms:
         """Prepare links: ``wheel`` (N,) wheel indices, ``theta`` (N,) wheel angles (rad), ``spots`` and
-        ``axes`` (N, 3) receiver positions (m) and unit antenna axes."""
+        ``axes`` (N, 3) receiver positions (m) and unit antenna axes; ``cabin``: the scene's
+        :func:`cabin_of` when already made (shared by the LinkTerms of a scene)."""
         wheel = np.asarray(wheel, int)
         theta = np.asarray(theta, float)
         spots = np.asarray(spots, float).reshape(-1, 3)
@@ -107,14 +195,8 @@ class LinkTerms:
         spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2]) if road else None
         rays = link_rays(scene, wheel, theta, src, s_axis, bits0, spots, axes, spot_bits, detail=road)
         v = scene.vehicle
-        number: dict[str, int] = {}
-
-        def material_number(name: str) -> float:
-            return float(number.setdefault(name, len(number)))
-
-        coded = vehicle_hull(v, scene.wheels, material_number)
+        coded, materials = _coded_hull(scene)
         overrides = {name: m.loss_db for name, m in v.materials.items()}
-        materials = tuple(number)
         base = np.array([float(material_loss_db(name, scene.freq_hz, overrides)) for name in materials])
         f = scene.freq_hz
         paths = [body_paths(coded, src, spots, f, bits0)]
@@ -128,10 +210,17 @@ class LinkTerms:
             ends = (spots, g_pt) if road else (spots,)
             parts = tuple((w.rim_db, w.through_tread) for w in
                           (_wheel_losses(scene, groups, src, end, detail=True) for end in ends))
-        cabin = None
-        if getattr(scene, "cavity", None) is not None:
-            cabin = _cabin_terms(scene, coded, spots, axes)
-        return cls(scene, rays, materials, base, legs, parts, wheel, theta, spots, axes, cabin)
+        if getattr(scene, "cavity", None) is None:
+            return cls(scene, rays, materials, base, legs, parts, wheel, theta, spots, axes)
+        if cabin is None:
+            cabin = Cabin(scene, coded, materials)
+        elif cabin.scene is not scene or cabin.materials != materials:
+            raise ValueError("the cabin is another scene's")
+        wall, wall_material = cv.wall_terms(coded, spots, axes if scene.receiver_pattern == "dipole" else None,
+                                            scene.wavelength_m)
+        return cls(scene, rays, materials, base, legs, parts, wheel, theta, spots, axes, cabin,
+                   inside_hull(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2]), wall,
+                   np.rint(wall_material).astype(int))
 
     def __len__(self) -> int:
         return len(self.rays.direct.d)
@@ -145,43 +234,31 @@ class LinkTerms:
                 loss[self.materials.index(name)] = float(value)
         return loss
 
-    def _tire(self, tread_loss_db: float | None, parts: tuple[np.ndarray, np.ndarray]) -> np.ndarray:
-        """The knife-edge wheel's loss, dB: rim knife edge plus the tire exit (tread or sidewall loss)."""
-        sc = self.scene
-        tread = sc.tread_loss_db if tread_loss_db is None else float(tread_loss_db)
-        rim, through_tread = parts
-        return rim + np.where(through_tread, tread, sc.sidewall_loss_db)
-
-    def _leg_losses(self, mat: np.ndarray, legs, wheel_parts, tread_loss_db) -> tuple[np.ndarray, np.ndarray | None]:
-        """Losses of a direct ray and a road ray (None without it) from their legs' crossings, dB."""
-        body = [paths.total_db(mat[numbers]) for paths, numbers in legs]
-        loss_d = body[0]
-        loss_r = body[1] + body[2] if len(body) == 3 else None
-        if wheel_parts is not None:
-            loss_d = loss_d + self._tire(tread_loss_db, wheel_parts[0])
-            if loss_r is not None:
-                loss_r = loss_r + self._tire(tread_loss_db, wheel_parts[1])
-        return loss_d, loss_r
-
     def ray_losses(self, material_loss_db: Mapping[str, float] | None = None,
                    tread_loss_db: float | None = None) -> tuple[np.ndarray, np.ndarray | None]:
         """Losses of the direct and the road ray (None without it), dB, as core.links.link_rays computes
         them, with the given material losses and tire tread loss (None: the scene's)."""
-        return self._leg_losses(self.material_losses(material_loss_db), self.legs, self.wheel_parts, tread_loss_db)
+        mat = self.material_losses(material_loss_db)
+        body = [paths.total_db(mat[numbers]) for paths, numbers in self.legs]
+        loss_d = body[0]
+        loss_r = body[1] + body[2] if len(body) == 3 else None
+        if self.wheel_parts is not None:
+            sc = self.scene
+            tread = sc.tread_loss_db if tread_loss_db is None else float(tread_loss_db)
+            loss_d = loss_d + _tire(sc, tread, self.wheel_parts[0])
+            if loss_r is not None:
+                loss_r = loss_r + _tire(sc, tread, self.wheel_parts[1])
+        return loss_d, loss_r
 
     def cavity(self, material_loss_db: Mapping[str, float] | None = None, tread_loss_db: float | None = None):
         """(core.cavity.Cavity, diffuse factor (N,) of the receivers) with these losses, as core.scoring builds
-        them for a vehicle with these values (None, None without a cavity)."""
-        cab = self.cabin
-        if cab is None:
+        them for a vehicle with these values ((None, None) without a cavity)."""
+        if self.cabin is None:
             return None, None
         mat = self.material_losses(material_loss_db)
-        loss_d, loss_r = self._leg_losses(mat, cab.legs, cab.wheel_parts, tread_loss_db)
-        sc = self.scene
-        cav = cv.cavity_from(cab.patches, mat[cab.patch_material], cab.paths, np.arange(len(cab.patch_material)),
-                             loss_d, loss_r, cab.contents_m2, sc.freq_hz, sc.wavelength_m, sc.cavity.input_angles)
-        wall = cv.combine_wall_factors(cab.wall, mat[cab.wall_material])
-        return cav, cv.diffuse_factor(cab.inside, wall, cav.sigma_total_m2, sc.receiver_pattern == "dipole")
+        cav = self.cabin.cavity(mat, tread_loss_db)
+        wall = cv.combine_wall_factors(self.wall, mat[self.wall_material])
+        return cav, cv.diffuse_factor(self.inside, wall, cav.sigma_total_m2, self.scene.receiver_pattern == "dipole")
 
     def levels_dbm(self, material_loss_db: Mapping[str, float] | None = None, tread_loss_db: float | None = None,
                    null_floor_db: float | None = None, eirp_offset_db: float = 0.0) -> np.ndarray:
@@ -197,33 +274,4 @@ class LinkTerms:
         return level_dbm(self.scene, f.power()) + eirp_offset_db
 
 
-def _cabin_terms(scene: Scene, coded, spots: np.ndarray, axes: np.ndarray) -> CabinTerms:
-    """Trace the cabin's sensor -> patch paths and the receivers' wall terms once on the coded hull
-    (material numbers in place of losses), as core.scoring's cavity is built (core.cavity.build_cavity)."""
-    cav = scene.cavity
-    p, n, a, number = cv.surface_samples(coded)
-    if not np.isclose(float(a.sum()), cav.surface_area_m2, rtol=1e-12, atol=0.0):
-        raise ValueError("the cavity's hull patches are not those of the default spacing")
-    paths = cv.input_paths(scene, p, n, cav.input_angles)
-    f = scene.freq_hz
-    legs = [body_paths(coded, paths.src, paths.outside, f, paths.bits)]
-    road = paths.road_point is not None
-    if road:
-        legs += [body_paths(coded, paths.src, paths.road_point, f, paths.bits),
-                 body_paths(coded, paths.outside, paths.road_point, f)]
-    parts = None
-    if scene.use_wheel_loss:
-        groups = _wheel_groups(paths.wheel, len(paths.src))
-        ends = (paths.outside, paths.road_point) if road else (paths.outside,)
-        parts = tuple((w.rim_db, w.through_tread) for w in
-                      (_wheel_losses(scene, groups, paths.src, end, detail=True) for end in ends))
-    dipole = scene.receiver_pattern == "dipole"
-    wall, wall_material = cv.wall_terms(coded, spots, axes if dipole else None, cav.wavelength_m)
-    return CabinTerms(
-        patches=(p, n, a), patch_material=np.rint(number).astype(int), paths=paths,
-        legs=tuple((lp, lp.loss_db.astype(int)) for lp in legs), wheel_parts=parts,
-        inside=inside_hull(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2]), wall=wall,
-        wall_material=np.rint(wall_material).astype(int), contents_m2=cav.sigma_contents_m2)
-
-
-__all__ = ["CabinTerms", "LinkTerms"]
+__all__ = ["Cabin", "LinkTerms", "cabin_of"]

@@ -192,43 +192,73 @@ def test_recovery_without_angles_within_2_db():
 
 
 def test_outliers_weigh_less():
-    # 3 % of the levels 20 dB low (frames lost to someone walking past): the robust loss still recovers
+    """3 % of the levels 20 dB low (frames lost to someone walking past): the robust loss still recovers every
+    offset within 1 dB but the null floor, within 1.5 dB. Why the floor's bound is wider than before the cabin
+    field: the floor acts only where a level sits in a null, and inside the box the cabin's diffuse field fills
+    every null, so only the four outside spots inform it (its standard error without dropouts is 0.41 dB at this
+    seed); a dropout at an angle near a null looks like a deeper floor, and here the dropouts move the fitted
+    floor from -24.3 dB (same seed without them) to -25.3 dB. The other offsets move by at most 0.15 dB."""
     v = calibration_box()
     ms, x_true, _ = synthetic(v, WITHOUT_TREAD, True, seed=5, dropouts=0.03)
     fit = fit_model(MeasurementModel.build(v, ms, WITHOUT_TREAD))
-    assert np.all(np.abs(fit.x - x_true) <= 1.0), _recovery_table(fit, x_true)
+    bound = np.array([1.5 if k == "null_floor_db" else 1.0 for k in fit.keys])
+    assert np.all(np.abs(fit.x - x_true) <= bound), _recovery_table(fit, x_true)
 
 
-def test_parameters_the_body_does_not_use_are_not_applied_and_correlated_ones_are():
-    # the sample sedan's paths to its own spots never cross glass, and the installed wheel pattern holds the
-    # tread: neither can be learned from these measurements
+def test_a_parameter_the_design_cannot_identify_is_held_at_its_prior():
+    """Levels at the cabin's centre and outside only: inside a closed cabin fed through its windows the diffuse
+    field sets the level, and the straight path through the metal is 20-25 dB below it, so the metal loss moves
+    these levels by about 0.01 dB per dB (sensitivity about 3 prior units, standard error about 7 dB of the 10 dB
+    prior width if fitted). The fit says so: it holds the metal at the vehicle's value (not informed, not applied,
+    standard error = prior width) and fits the rest, which are recovered within 1 dB."""
+    v = calibration_box()
+    spots = ["behind glass", "behind plastic", "outside left", "outside right", "outside front", "outside rear"]
+    ms, x_true, noise = synthetic(v, WITHOUT_TREAD, True, spots=spots, per_turn=36)
+    fit = fit_model(MeasurementModel.build(v, ms, WITHOUT_TREAD))
+    table = _recovery_table(fit, x_true)
+    fitted = {p.key: p for p in fit.fitted_parameters()}
+    metal = fitted["metal_loss_db"]
+    assert fit.held.tolist() == [k == "metal_loss_db" for k in fit.keys], table
+    assert metal.value_db == metal.prior_db and metal.standard_error_db == metal.prior_width_db, table
+    assert 0.0 < metal.sensitivity and not metal.informed and not metal.applied, table
+    assert "metal_loss_db" not in fit.applied_values() and metal.status().startswith("not informed")
+    others = [k != "metal_loss_db" for k in fit.keys]
+    assert fit.informed[others].all() and np.all(np.abs(fit.x - x_true)[others] <= 1.0), table
+    assert fit.rms_after_db == pytest.approx(np.sqrt(np.mean(noise ** 2)), rel=0.05)
+
+
+def test_parameters_the_measurements_do_not_touch_are_not_applied_and_correlated_ones_are():
+    """Three spots of the sample sedan, in the cabin and the boot, with the installed wheel pattern. The
+    installed pattern holds the tread itself, and inside the body the cabin's diffuse field fills every null so
+    the null floor never acts: neither moves these levels (sensitivity 0), so both keep the vehicle's values.
+    (Before the cabin field the glass was the untouched one: no straight path to these spots crosses glass; now
+    the cabin is fed through the glazing, and the glass loss is informed.) The plastic loss and the EIRP offset
+    move these levels alike (most of the power enters through plastic panels): each alone is known less well,
+    their combination is fixed; both are applied and said to be correlated, and together with the rest they
+    reproduce the measurements to the noise."""
     v = load_vehicle(SAMPLES_DIR / "sedan.json")
     spots = ["under dash centre", "rear bumper", "roof lining"]
     ms, x_true, noise = synthetic(v, PARAMETERS, True, per_turn=24, spots=spots)
     fit = fit_model(MeasurementModel.build(v, ms, PARAMETERS))
     fitted = {p.key: p for p in fit.fitted_parameters()}
-    for key in ("glass_loss_db", "tread_loss_db"):
-        assert fitted[key].sensitivity == 0.0 and not fitted[key].applied and not fitted[key].informed
+    table = _recovery_table(fit, x_true)
+    for key in ("tread_loss_db", "null_floor_db"):
+        assert fitted[key].sensitivity == 0.0 and not fitted[key].applied and not fitted[key].informed, table
         assert fitted[key].standard_error_db == pytest.approx(fitted[key].prior_width_db, rel=1e-3)
+        assert fitted[key].value_db == pytest.approx(fitted[key].prior_db, abs=1e-6)
         assert key not in fit.applied_values()
-    # every path to these cabin spots crosses exactly one metal panel: metal loss and EIRP offset move the
-    # levels alike, so each alone is known only to a quarter of its prior width (the priors split them), but
-    # their combination is fixed; both are applied and said to be correlated, and together they reproduce the
-    # measurements to the noise
-    metal, eirp = fitted["metal_loss_db"], fitted["sensor_eirp_offset_db"]
-    assert metal.applied and eirp.applied
-    assert metal.standard_error_db > 2.0 and eirp.standard_error_db > 2.0
-    assert metal.correlated_with == "sensor_eirp_offset_db" and metal.correlation > 0.99
-    assert "correlated with sensor_eirp_offset_db (r = +1.00): the measurements fix their combination" in metal.status()
-    k_m, k_e = fit.keys.index("metal_loss_db"), fit.keys.index("sensor_eirp_offset_db")
-    assert (eirp.value_db - metal.value_db) == pytest.approx(x_true[k_e] - x_true[k_m], abs=0.5)
+    assert fitted["glass_loss_db"].applied and fitted["glass_loss_db"].sensitivity > 1.0
+    plastic, eirp = fitted["plastic_loss_db"], fitted["sensor_eirp_offset_db"]
+    assert plastic.applied and eirp.applied
+    assert plastic.correlated_with == "sensor_eirp_offset_db" and plastic.correlation >= 0.9, table
+    assert "the measurements fix their combination" in plastic.status()
     assert fit.rms_after_db == pytest.approx(np.sqrt(np.mean(noise ** 2)), rel=0.05)
 
 
 # ----- hold-out ----------------------------------------------------------------------------------------
 def test_calibrating_on_half_the_spots_lowers_the_prediction_rms_on_the_other_half(box_with_angles):
     _, model, _, _, _ = box_with_angles
-    half = ("behind glass", "low metal front", "outside left", "outside front")
+    half = ("behind glass", "metal wall front", "outside left", "outside front")
     names = model.measurements.spot_names
     train = np.isin(model.item_spot, [names.index(n) for n in half])
     fit = fit_model(model, train)
@@ -274,14 +304,16 @@ def test_calibration_file_round_trip_and_apply(demo_run, tmp_path):
     assert load_calibration(path) == cal
     jsonschema.validate(json.loads(path.read_text()), calibration_schema())
     applied = cal.applied_values()
-    assert set(applied) == {"metal_loss_db", "plastic_loss_db", "sensor_eirp_offset_db", "null_floor_db"}
+    assert set(applied) == {"metal_loss_db", "glass_loss_db", "plastic_loss_db", "sensor_eirp_offset_db"}
     v2 = apply_calibration(v, cal)
     assert v2.materials["metal"].loss_db == pytest.approx(applied["metal_loss_db"], abs=0.005)
     assert v2.materials["metal"].description.startswith("calibrated from 1,088 measurements")
     assert v2.radio.sensor.eirp_dbm == pytest.approx(v.radio.sensor.eirp_dbm + applied["sensor_eirp_offset_db"],
                                                      abs=0.005)
-    assert v2.radio.null_floor_db == pytest.approx(applied["null_floor_db"], abs=0.005)
-    assert "glass" not in v2.materials  # not informed: the vehicle's own value stays
+    assert v2.materials["glass"].loss_db == pytest.approx(applied["glass_loss_db"], abs=0.005)
+    # not informed (the null floor does not act on these levels, the installed pattern holds the tread): the
+    # vehicle's own values stay
+    assert v2.radio.null_floor_db == v.radio.null_floor_db and "tire_tread" not in v2.materials
     # another body of the platform whose EIRP is built from conducted power: the offset goes there
     d = vehicle_to_dict(load_vehicle(SAMPLES_DIR / "hatchback.json"))
     d["radio"]["sensor"] = {"conducted_power_dbm": -10.0, "antenna_gain_dbi": -3.0, "return_loss_db": 10.0}
