@@ -11,10 +11,12 @@ parameters the measurements depend on are applied (``applied`` in the file,
 core.calibration_fit); the others keep the vehicle's own values. The values applied are recorded in every output's setup
 (core.provenance, ``overrides.calibration``), so a recorded output can be produced again.
 
-A parameter is one entry of :data:`PARAMETERS`: a cabin/contents loss (when the engine has one)
-is added by one more entry with its prior, bounds and how it changes a vehicle; core.link_terms
-evaluates the present ones fast, and core.calibration_fit evaluates any other exactly by building
-the vehicle with the value (slower, never wrong).
+A parameter is one entry of :data:`PARAMETERS`; core.link_terms evaluates the present ones fast (the
+rays and the cabin's diffuse field, core.cavity, for any material losses), and core.calibration_fit
+evaluates any other exactly by building the vehicle with the value (slower, never wrong). The cabin
+contents' absorption (``Body.cabin_absorption_m2``, which sets the cabin's diffuse level) is not fitted
+yet: it would be one more entry, and core.link_terms.Cabin holds what its fast form needs (the
+cross-sections are re-assembled per evaluation).
 """
 
 from __future__ import annotations

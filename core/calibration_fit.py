@@ -26,12 +26,26 @@ posterior covariance, robust weights included); a parameter is *determined* by t
 its standard error is at most ``INFORMED_SHARE`` of its prior width. A calibration applies every
 parameter the measurements depend on: its *sensitivity*, the information the items carry on it alone
 (the sum of its squared Jacobian column over the items) in units of its prior's information
-(1 / width^2), is at least ``SENSITIVE_RATIO``. Parameters the measured paths never touch (a material
-they do not cross, the tread loss under the installed wheel pattern) have sensitivity 0 and keep the
-vehicle's values. Two parameters may each be undetermined while their combination is well fixed (when
-every measured path crosses exactly one metal panel, the metal loss and the EIRP offset shift the
-levels alike): both are applied, since together they reproduce the measurements, and their
-correlation (from the covariance) is reported when it is 0.9 or more in size.
+(1 / width^2), is at least ``SENSITIVE_RATIO``, and the design identifies it. Parameters the measured
+paths never touch (a material they do not cross, the tread loss under the installed wheel pattern, the
+null floor where the cabin's diffuse field fills every null) have sensitivity 0 and keep the vehicle's
+values. A parameter the items touch only faintly is not identifiable from the design: its standard
+error stays over ``INFORMED_SHARE`` of its prior width and no strongly correlated partner fixes a
+combination with it (the metal loss seen only from the middle of a cabin fed through its windows: the
+diffuse field sets those levels, core.cavity). Its fitted value would be mostly the prior's pull
+against the noise, so it is *held* at the prior (value = prior, standard error = prior width, not
+informed, not applied) and the others are fitted again without it (one refit, started from the first
+solution). Two parameters may each be undetermined while their combination is well fixed (when every
+measured path crosses exactly one metal panel, the metal loss and the EIRP offset shift the levels
+alike): both are applied, since together they reproduce the measurements, and their correlation (from
+the covariance) is reported when it is 0.9 or more in size. The standard errors are those of the
+linearised model at the solution: where a level depends on a loss far from linearly (a path through
+metal sinking under the cabin's diffuse field as the metal loss grows) they understate the spread on
+the flat side.
+
+The hull panels' losses are bounded on their prior's side of the opening threshold
+(core.calibration.Parameter.bounds): whether a panel is an opening feeding the cabin is the model's
+structure, and the level jumps across it.
 
 Hold-out: the spots are split into k folds (a seeded shuffle); each fold's items are predicted by a
 fit to the other folds. The hold-out RMS (every item predicted once, by a fit that never saw its
