@@ -42,8 +42,8 @@ def test_fit_scatter_and_turn_curves(qtbot, window):
     # the parameter table: one row per parameter, the uninformed ones say so
     labels = [w.table.item(i, 0).text() for i in range(w.table.rowCount())]
     assert labels[0] == "metal crossing loss" and len(labels) == len(run.calibration.parameters)
-    glass = labels.index("glass crossing loss")
-    assert w.table.item(glass, 5).text().startswith("not informed")
+    tread = labels.index("tire tread loss")  # the installed wheel pattern holds the tread
+    assert w.table.item(tread, 5).text().startswith("not informed")
     # the scatter: the 1:1 line over the whole range, then measured against predicted, before and after
     items = w.scatter.getPlotItem().listDataItems()
     x, y = items[0].getData()
