@@ -421,16 +421,19 @@ def _solve(model: MeasurementModel, used, meas, prior, width, lower, upper, free
     # start strictly inside the bounds (least_squares requires it)
     span = upper - lower
     x0 = np.clip(prior if start is None else start, lower + 1e-6 * span, upper - 1e-6 * span)
-    full = prior.copy()
 
     def whole(xf):
-        out = full.copy()
+        """All parameters: the free ones ``xf``, the held ones at their priors."""
+        out = prior.copy()
         out[free] = xf
         return out
 
-    def fun(xf, s, f=free):
-        xx = whole(xf) if f is free else xf
-        return np.concatenate([(model.predict(xx)[used] - meas) / s, (xx[f] - prior[f]) / width[f]])
+    def residuals(xx, s):
+        """Scaled residuals of the items and the priors for all parameters ``xx``."""
+        return np.concatenate([(model.predict(xx)[used] - meas) / s, (xx - prior) / width])
+
+    def fun(xf, s):
+        return np.delete(residuals(whole(xf), s), nd + np.flatnonzero(~free))
 
     xf = x0[free]
     nfev = 0
@@ -452,7 +455,7 @@ def _solve(model: MeasurementModel, used, meas, prior, width, lower, upper, free
     # one more Jacobian at the solution, at the final noise scale, over every parameter (the held ones at their
     # priors, strictly inside the bounds): the sensitivities; the covariance of the free ones
     xj = np.clip(x, lower + 1e-6 * span, upper - 1e-6 * span)
-    final = least_squares(lambda xx: fun(xx, noise, np.ones(n, bool)), xj, bounds=(lower, upper),
+    final = least_squares(residuals, xj, args=(noise,), bounds=(lower, upper),
                           loss=_mixed_loss(nd), f_scale=ROBUST_SCALE, x_scale=width, method="trf", max_nfev=1)
     nfev += final.nfev
     J = final.jac
