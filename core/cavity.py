@@ -371,19 +371,21 @@ def path_losses(scene, paths: InputPaths) -> tuple[np.ndarray, np.ndarray | None
     from core.wheel import wheel_loss_db
 
     hull, f = scene.hull, scene.freq_hz
-    loss = body_loss_db(hull, paths.src, paths.outside, f, paths.bits)
-    loss_r = None
-    if paths.road_point is not None:
-        loss_r = body_loss_db(hull, paths.src, paths.road_point, f, paths.bits) + body_loss_db(
-            hull, paths.outside, paths.road_point, f)
-    if scene.use_wheel_loss:
-        loss, loss_r = loss.copy(), None if loss_r is None else loss_r.copy()
-        for wi, w in enumerate(scene.wheels):
-            g = paths.wheel == wi
-            loss[g] += wheel_loss_db(w, paths.src[g], paths.outside[g], f, scene.sidewall_loss_db, scene.tread_loss_db)
-            if loss_r is not None:
-                loss_r[g] += wheel_loss_db(w, paths.src[g], paths.road_point[g], f, scene.sidewall_loss_db,
-                                           scene.tread_loss_db)
+    _, A, P = paths.shape
+    road = paths.road_point is not None
+    loss = np.empty(len(paths.src))
+    loss_r = np.empty(len(paths.src)) if road else None
+    for wi, w in enumerate(scene.wheels):  # one wheel at a time (arrays of A * P paths)
+        g = slice(wi * A * P, (wi + 1) * A * P)
+        src, out, bits = paths.src[g], paths.outside[g], paths.bits[g]
+        loss[g] = body_loss_db(hull, src, out, f, bits)
+        if road:
+            pt = paths.road_point[g]
+            loss_r[g] = body_loss_db(hull, src, pt, f, bits) + body_loss_db(hull, out, pt, f)
+        if scene.use_wheel_loss:
+            loss[g] += wheel_loss_db(w, src, out, f, scene.sidewall_loss_db, scene.tread_loss_db)
+            if road:
+                loss_r[g] += wheel_loss_db(w, src, pt, f, scene.sidewall_loss_db, scene.tread_loss_db)
     return loss, loss_r
 
 
