@@ -53,6 +53,13 @@ incidence directions weighted as a diffuse flux, 1/2 (engineering default, :data
 
 The whole hull is one cavity (no inner partitions such as a firewall or a rear bulkhead).
 
+Code: :func:`build_cavity` (the engine, through core.scoring) and the calibration's fast model
+(core.link_terms.Cabin, which re-assembles the cavity for other material losses) share every step:
+the patches (:func:`surface_samples`), the sensor -> patch paths (:func:`input_paths`), the opening
+rule and tau (:func:`is_opening`, :func:`transmission`), the input sum (:func:`input_power`), the
+cross-sections (:func:`cross_sections`), the assembly (:func:`cavity_from`) and the receiver's factor
+(:func:`wall_terms`, :func:`combine_wall_factors`, :func:`diffuse_factor`).
+
 References
 ----------
 - D. A. Hill, M. T. Ma, A. R. Ondrejka, B. F. Riddle, M. L. Crawford, R. T. Johnk, "Aperture
