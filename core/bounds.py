@@ -64,6 +64,23 @@ MAX_TIRE_CODE_CHARS = 24
 #: JSON nesting the loader accepts
 MAX_NESTING = 32
 
+# ----- the measurement file (core.measurements, docs/measurement-format.md) --------------------
+#: size of a measurement file, bytes, and its rows of measured levels (a slow turn of every wheel at
+#: 1 degree steps on 40 receiver positions is 57,600 rows; a long drive log at a few frames a second
+#: per wheel stays well within)
+MAX_MEASUREMENT_BYTES = 20_000_000
+MAX_MEASUREMENT_ROWS = 200_000
+#: distinct receiver positions in one file (as many as a vehicle file's spots)
+MAX_MEASUREMENT_SPOTS = MAX_SPOTS
+#: distinct frequencies in one file: the model is prepared once per frequency
+MAX_MEASUREMENT_FREQUENCIES = 8
+#: levels without a wheel angle needed per (position, wheel, frequency): the fit compares their
+#: percentiles (10th to 90th) with the model's, which needs at least this many to mean anything
+MIN_LEVELS_WITHOUT_ANGLE = 10
+#: links the fit prepares (one per level with an angle, FIT_TURN_ANGLES per group without angles);
+#: about 0.3 kB each stays in memory for the whole fit (core.link_terms)
+MAX_FIT_LINKS = 400_000
+
 # ----- work per computation --------------------------------------------------------------------
 #: links (position x wheel x wheel angle) of one ranking, one heatmap, all heatmaps of one report, or
 #: one shared-region search. Measured on a shared 2-core machine (docs/performance.md, Work limits):

@@ -53,6 +53,13 @@ incidence directions weighted as a diffuse flux, 1/2 (engineering default, :data
 
 The whole hull is one cavity (no inner partitions such as a firewall or a rear bulkhead).
 
+Code: :func:`build_cavity` (the engine, through core.scoring) and the calibration's fast model
+(core.link_terms.Cabin, which re-assembles the cavity for other material losses) share every step:
+the patches (:func:`surface_samples`), the sensor -> patch paths (:func:`input_paths`), the opening
+rule and tau (:func:`is_opening`, :func:`transmission`), the input sum (:func:`input_power`), the
+cross-sections (:func:`cross_sections`), the assembly (:func:`cavity_from`) and the receiver's factor
+(:func:`wall_terms`, :func:`combine_wall_factors`, :func:`diffuse_factor`).
+
 References
 ----------
 - D. A. Hill, M. T. Ma, A. R. Ondrejka, B. F. Riddle, M. L. Crawford, R. T. Johnk, "Aperture
@@ -75,13 +82,28 @@ from core.geometry import Hull, body_loss_db, inside_hull, points_in_polygon, st
 from core.propagation import fresnel_reflection
 
 __all__ = [
-    "OPENING_LOSS_DB",
     "DEFAULT_CONTENTS_M2",
     "INCIDENCE_FACTOR",
+    "OPENING_LOSS_DB",
     "Cavity",
+    "CrossSections",
+    "InputPaths",
     "build_cavity",
+    "cavity_from",
+    "combine_wall_factors",
+    "conducting",
+    "cross_sections",
+    "diffuse_factor",
+    "input_angles_of",
+    "input_paths",
+    "input_power",
+    "is_opening",
+    "path_losses",
+    "spot_factor",
     "surface_samples",
+    "transmission",
     "wall_factor",
+    "wall_terms",
 ]
 
 #: a panel whose crossing loss is under this is an opening (dB; metal 20 dB, glass 2 dB, plastic ~0)
@@ -216,11 +238,14 @@ def _boundary_factors(x):
     return ft, fn
 
 
-def wall_factor(hull: Hull, positions: np.ndarray, axes: np.ndarray | None, wavelength_m: float) -> np.ndarray:
-    """(S,) the diffuse field's mean-square projection on each receiver axis near the walls,
-    relative to the free interior: the factors of the nearest top-outline wall and of the nearest
-    side-outline face, each where that face is conducting (``axes`` None: an isotropic receiver, the
-    mean of the three directions)."""
+def wall_terms(hull: Hull, positions: np.ndarray, axes: np.ndarray | None,
+               wavelength_m: float) -> tuple[np.ndarray, np.ndarray]:
+    """The two wall factors of each receiver and the panel each one belongs to: ``factors`` (2, S), the
+    diffuse field's mean-square projection on the receiver axis relative to the free interior near
+    the nearest top-outline wall and the nearest side-outline face (``axes`` None: an isotropic
+    receiver, the mean of the three directions), and ``panel`` (2, S), the crossing value of the panel
+    at the foot point on the hull (dB; on a hull built with material numbers, the material's number).
+    :func:`wall_factor` applies the factors where the panel conducts (:func:`conducting`)."""
     from core.placement import _edge_distance, _outline
 
     p = np.atleast_2d(np.asarray(positions, float))
@@ -246,93 +271,222 @@ def wall_factor(hull: Hull, positions: np.ndarray, axes: np.ndarray | None, wave
     # between two panels takes the one the receiver faces)
     foot_t = foot_t + 1e-6 * dir_t
     foot_s = foot_s + 1e-6 * dir_s
-    metal_t = zone_loss_at(hull.side_zones, foot_t[:, 0], p[:, 2], None, hull.default_loss_db) >= OPENING_LOSS_DB
-    metal_s = zone_loss_at(hull.top_zones, foot_s[:, 0], p[:, 1], foot_s[:, 1], hull.default_loss_db) >= OPENING_LOSS_DB
-    out = np.ones(len(p))
-    for d, n, metal in ((d_t, n_t, metal_t), (d_s, n_s, metal_s)):
+    panel_t = zone_loss_at(hull.side_zones, foot_t[:, 0], p[:, 2], None, hull.default_loss_db)
+    panel_s = zone_loss_at(hull.top_zones, foot_s[:, 0], p[:, 1], foot_s[:, 1], hull.default_loss_db)
+    factors = []
+    for d, n in ((d_t, n_t), (d_s, n_s)):
         ft, fn = _boundary_factors(2.0 * k * d)
         if axes is None:
             f = (fn + 2.0 * ft) / 3.0
         else:
             c2 = np.einsum("ij,ij->i", np.atleast_2d(axes), n) ** 2
             f = c2 * fn + (1.0 - c2) * ft
-        out *= np.where(metal, f, 1.0)
-    return out
+        factors.append(f)
+    return np.stack(factors), np.stack([panel_t, panel_s]).astype(float)
 
 
-def _input_power(scene, openings, normals, areas, tau, angles) -> np.ndarray:
-    """P_t / EIRP per wheel at the given wheel angles, (W, A): the sensor's power density at every
-    opening patch (direct, and road-reflected when the road is on) times tau * cos * dA. All angles
-    and patches of a wheel in one vectorised pass."""
+def conducting(loss_db) -> np.ndarray:
+    """Whether panels of crossing loss ``loss_db`` (dB) are conducting walls: not openings."""
+    return ~is_opening(loss_db)
+
+
+def combine_wall_factors(factors: np.ndarray, panel_loss_db: np.ndarray) -> np.ndarray:
+    """(S,) the product of the wall factors (2, S) of :func:`wall_terms` over the faces whose panel
+    (crossing loss (2, S), dB) conducts; an opening imposes no boundary."""
+    return np.prod(np.where(conducting(panel_loss_db), factors, 1.0), axis=0)
+
+
+def wall_factor(hull: Hull, positions: np.ndarray, axes: np.ndarray | None, wavelength_m: float) -> np.ndarray:
+    """(S,) the diffuse field's mean-square projection on each receiver axis near the walls,
+    relative to the free interior: the factors of the nearest top-outline wall and of the nearest
+    side-outline face, each where that face is conducting (``axes`` None: an isotropic receiver, the
+    mean of the three directions)."""
+    return combine_wall_factors(*wall_terms(hull, positions, axes, wavelength_m))
+
+
+@dataclass(frozen=True)
+class InputPaths:
+    """The straight paths from every wheel's sensor, at the input angles, to the outer face of P hull
+    patches: K = W * A * P paths ordered wheel, angle, patch. ``density`` (K,): the sensor's power
+    density at the patch per watt of EIRP before any loss, e^2 / d^2 (1/m^2, the installed or bare
+    pattern toward the patch); with the road on, ``road_density`` (K,) the road-reflected image's,
+    Fresnel power reflection (unpolarized mean) included, and ``road_point`` (K, 3) where it meets the
+    road. ``src``, ``outside`` (K, 3) m, ``bits`` (K,) the sensor's hull membership bits,
+    ``wheel`` (K,) the wheel index. The losses along these paths are the caller's: the engine's body and
+    wheel losses at the scene's values (:func:`path_losses`), or re-summed for other values
+    (core.link_terms)."""
+
+    shape: tuple[int, int, int]
+    src: np.ndarray
+    outside: np.ndarray
+    bits: np.ndarray
+    wheel: np.ndarray
+    density: np.ndarray
+    road_point: np.ndarray | None = None
+    road_density: np.ndarray | None = None
+
+
+def input_paths(scene, openings: np.ndarray, normals: np.ndarray, angles: np.ndarray) -> InputPaths:
+    """The sensor -> patch paths of :class:`InputPaths` for patches at ``openings`` (P, 3) m with outward
+    unit ``normals``, at wheel angles ``angles`` (A,) rad: all angles and patches of a wheel in one pass."""
     from core.links import sensor_field
-    from core.wheel import sensor_axes, sensor_positions, wheel_loss_db
+    from core.wheel import sensor_axes, sensor_positions
 
     n_p, A = len(openings), len(angles)
     W = len(scene.wheels)
-    out = np.zeros((W, A))
-    if n_p == 0:
-        return out
-    outside = np.tile(openings + 1e-3 * normals, (A, 1))  # the patch's outer face (A * n_p, 3)
-    weight = np.tile(tau * areas * INCIDENCE_FACTOR / (4.0 * np.pi), A)
+    outside1 = np.tile(openings + 1e-3 * normals, (A, 1))  # the patch's outer face (A * n_p, 3)
     th = np.repeat(angles, n_p)
     r_axis = np.broadcast_to(np.array([0.0, 0.0, 1.0]), (A * n_p, 3))  # the field's magnitude is used
     mirror = np.array([1.0, 1.0, -1.0])
+    srcs, dens, points, road_dens = [], [], [], []
     for wi, w in enumerate(scene.wheels):
         src = np.repeat(sensor_positions(w, angles), n_p, axis=0)
         s_ax = np.repeat(sensor_axes(angles, scene.vehicle.radio.sensor.axis), n_p, axis=0)
-        bits = start_bits(scene.hull, src[:, 0], src[:, 1], src[:, 2])
-        d = outside - src
+        d = outside1 - src
         dist = np.maximum(np.linalg.norm(d, axis=1), 1e-3)
         u = d / dist[:, None]
         e2 = np.sum(np.abs(sensor_field(scene, wi, th, s_ax, u, r_axis, dist)) ** 2, axis=1)
-        loss = body_loss_db(scene.hull, src, outside, scene.freq_hz, bits)
-        if scene.use_wheel_loss:
-            loss = loss + wheel_loss_db(w, src, outside, scene.freq_hz, scene.sidewall_loss_db, scene.tread_loss_db)
-        per = weight * e2 * 10.0 ** (-loss / 10.0) / dist**2
+        srcs.append(src)
+        dens.append(e2 / dist**2)
         if scene.ground_reflection:
             img = src * mirror
-            dr = outside - img
+            dr = outside1 - img
             dist_r = np.maximum(np.linalg.norm(dr, axis=1), 1e-3)
             u_up = dr / dist_r[:, None]
-            tg = src[:, 2] / np.maximum(src[:, 2] + outside[:, 2], 1e-9)
+            tg = src[:, 2] / np.maximum(src[:, 2] + outside1[:, 2], 1e-9)
             road = img + tg[:, None] * dr
             road[:, 2] = 0.0
             e2r = np.sum(np.abs(sensor_field(scene, wi, th, s_ax, u_up * mirror, r_axis, dist_r)) ** 2, axis=1)
             g_te, g_tm = fresnel_reflection(scene.road_eps, np.arcsin(np.clip(u_up[:, 2], 0.0, 1.0)))
             refl = 0.5 * (np.abs(g_te) ** 2 + np.abs(g_tm) ** 2)  # unpolarized mean: the patch takes both
-            loss_r = body_loss_db(scene.hull, src, road, scene.freq_hz, bits) + body_loss_db(
-                scene.hull, outside, road, scene.freq_hz)
-            if scene.use_wheel_loss:
-                loss_r = loss_r + wheel_loss_db(w, src, road, scene.freq_hz, scene.sidewall_loss_db,
-                                                scene.tread_loss_db)
-            per = per + weight * e2r * refl * 10.0 ** (-loss_r / 10.0) / dist_r**2
-        out[wi] = per.reshape(A, n_p).sum(axis=1)
-    return out
+            points.append(road)
+            road_dens.append(e2r * refl / dist_r**2)
+    src = np.concatenate(srcs) if srcs else np.empty((0, 3))
+    road = scene.ground_reflection
+    return InputPaths(
+        shape=(W, A, n_p), src=src, outside=np.tile(outside1, (W, 1)),
+        bits=start_bits(scene.hull, src[:, 0], src[:, 1], src[:, 2]),
+        wheel=np.repeat(np.arange(W), A * n_p), density=np.concatenate(dens) if dens else np.empty(0),
+        road_point=(np.concatenate(points) if points else np.empty((0, 3))) if road else None,
+        road_density=(np.concatenate(road_dens) if road_dens else np.empty(0)) if road else None)
+
+
+def path_losses(scene, paths: InputPaths) -> tuple[np.ndarray, np.ndarray | None]:
+    """The engine's losses along the input paths at the scene's values, dB: (direct (K,), road (K,) or
+    None): body loss of the legs (core.geometry.body_loss_db) plus, with the knife-edge wheel, the
+    wheel loss (core.wheel.wheel_loss_db)."""
+    from core.wheel import wheel_loss_db
+
+    hull, f = scene.hull, scene.freq_hz
+    _, A, P = paths.shape
+    road = paths.road_point is not None
+    loss = np.empty(len(paths.src))
+    loss_r = np.empty(len(paths.src)) if road else None
+    for wi, w in enumerate(scene.wheels):  # one wheel at a time (arrays of A * P paths)
+        g = slice(wi * A * P, (wi + 1) * A * P)
+        src, out, bits = paths.src[g], paths.outside[g], paths.bits[g]
+        loss[g] = body_loss_db(hull, src, out, f, bits)
+        if road:
+            pt = paths.road_point[g]
+            loss_r[g] = body_loss_db(hull, src, pt, f, bits) + body_loss_db(hull, out, pt, f)
+        if scene.use_wheel_loss:
+            loss[g] += wheel_loss_db(w, src, out, f, scene.sidewall_loss_db, scene.tread_loss_db)
+            if road:
+                loss_r[g] += wheel_loss_db(w, src, pt, f, scene.sidewall_loss_db, scene.tread_loss_db)
+    return loss, loss_r
+
+
+def input_power(paths: InputPaths, keep: np.ndarray, tau: np.ndarray, areas: np.ndarray, loss_db: np.ndarray,
+                road_loss_db: np.ndarray | None) -> np.ndarray:
+    """P_t / EIRP per wheel at the input angles (W, A): over the patches ``keep`` (P,) bool of the
+    paths (the openings), the power density at each (direct, plus the road-reflected one) after the
+    path's loss (dB, (K,) over all paths) times tau * cos * dA, with tau (P_open,) and the areas
+    (P_open,) m^2 of the kept patches."""
+    W, A, P = paths.shape
+    n = int(np.count_nonzero(keep))
+    if n == 0:
+        return np.zeros((W, A))
+    weight = tau * areas * INCIDENCE_FACTOR / (4.0 * np.pi)
+
+    def kept(x):
+        return x.reshape(W, A, P)[:, :, keep]
+
+    per = weight * kept(paths.density) * 10.0 ** (-kept(loss_db) / 10.0)
+    if paths.road_density is not None:
+        per = per + weight * kept(paths.road_density) * 10.0 ** (-kept(road_loss_db) / 10.0)
+    return per.sum(axis=2)
+
+
+def is_opening(loss_db) -> np.ndarray:
+    """Whether panels of crossing loss ``loss_db`` (dB) are openings that feed the cavity."""
+    return np.asarray(loss_db) < OPENING_LOSS_DB
+
+
+def transmission(loss_db) -> np.ndarray:
+    """tau = 10^(-L/10) of panels of crossing loss L, dB."""
+    return 10.0 ** (-np.asarray(loss_db, float) / 10.0)
+
+
+@dataclass(frozen=True)
+class CrossSections:
+    """The cavity's absorption cross-sections, m^2 (see the module notes)."""
+
+    leak: float
+    contents: float
+    walls: float
+    rx: float
+
+
+def cross_sections(tau: np.ndarray, opening_areas_m2: np.ndarray, metal_area_m2: float, contents_m2: float,
+                   freq_hz: float, wavelength_m: float) -> CrossSections:
+    """sigma_leak (sum tau dA / 4 over the openings), sigma_contents, sigma_walls ((4 pi / 3) mu_r delta S /
+    lambda over the conducting area S) and sigma_rx (lambda^2 / 8 pi), m^2."""
+    delta = 1.0 / math.sqrt(math.pi * freq_hz * _MU0 * WALL_CONDUCTIVITY_S_PER_M)
+    return CrossSections(
+        leak=float(np.sum(tau * opening_areas_m2) / 4.0), contents=float(contents_m2),
+        walls=4.0 * math.pi / 3.0 * delta * float(metal_area_m2) / wavelength_m,
+        rx=wavelength_m**2 / (8.0 * np.pi))
+
+
+def cavity_from(patches, patch_loss_db: np.ndarray, paths: InputPaths, path_patches: np.ndarray,
+                loss_db: np.ndarray, road_loss_db: np.ndarray | None, contents_m2: float, freq_hz: float,
+                wavelength_m: float, angles: np.ndarray) -> Cavity:
+    """The :class:`Cavity` of hull patches ``patches`` = (centres (P, 3), normals (P, 3), areas (P,)) with
+    crossing losses ``patch_loss_db`` (P,) dB: the openings (:func:`is_opening`), their tau, the
+    cross-sections and the input over a turn along ``paths``, traced to the patches ``path_patches``
+    (increasing indices; every opening among them) with losses ``loss_db`` and ``road_loss_db`` (dB).
+    The one place where a cavity is assembled: :func:`build_cavity` (the engine, paths to the openings
+    only) and core.link_terms (paths to every patch, re-assembled for other material losses)."""
+    p, n, a = patches
+    opening = is_opening(patch_loss_db)
+    keep = opening[path_patches]
+    if int(np.count_nonzero(keep)) != int(np.count_nonzero(opening)):
+        raise ValueError("the input paths do not reach every opening")
+    tau = transmission(patch_loss_db[opening])
+    area = a[opening]
+    cs = cross_sections(tau, area, float(a[~opening].sum()), contents_m2, freq_hz, wavelength_m)
+    return Cavity(
+        openings=p[opening], normals=n[opening], areas_m2=area, tau=tau, surface_area_m2=float(a.sum()),
+        sigma_leak_m2=cs.leak, sigma_contents_m2=cs.contents, sigma_walls_m2=cs.walls, sigma_rx_m2=cs.rx,
+        input_angles=angles, input=input_power(paths, keep, tau, area, loss_db, road_loss_db),
+        wavelength_m=wavelength_m)
+
+
+def input_angles_of(count: int = INPUT_ANGLES) -> np.ndarray:
+    """The wheel angles the cavity input is computed at, rad."""
+    return np.arange(count) * (2.0 * np.pi / count)
 
 
 def build_cavity(scene, contents_m2: float = DEFAULT_CONTENTS_M2, spacing_m: float = SAMPLE_SPACING_M,
                  input_angles: int = INPUT_ANGLES) -> Cavity:
     """The cavity of a prepared scene (core.scoring.Scene): openings, losses, input over a turn."""
-    hull = scene.hull
-    p, n, a, loss = surface_samples(hull, spacing_m)
-    lam = scene.wavelength_m
-    opening = loss < OPENING_LOSS_DB
-    tau = 10.0 ** (-loss[opening] / 10.0)
-    area = a[opening]
-    delta = 1.0 / math.sqrt(math.pi * scene.freq_hz * _MU0 * WALL_CONDUCTIVITY_S_PER_M)
-    metal_area = float(a[~opening].sum())
-    angles = np.arange(input_angles) * (2.0 * np.pi / input_angles)
-    return Cavity(
-        openings=p[opening], normals=n[opening], areas_m2=area, tau=tau,
-        surface_area_m2=float(a.sum()),
-        sigma_leak_m2=float(np.sum(tau * area) / 4.0),
-        sigma_contents_m2=float(contents_m2),
-        sigma_walls_m2=4.0 * math.pi / 3.0 * delta * metal_area / lam,
-        sigma_rx_m2=lam**2 / (8.0 * np.pi),
-        input_angles=angles,
-        input=_input_power(scene, p[opening], n[opening], area, tau, angles),
-        wavelength_m=lam,
-    )
+    p, n, a, loss = surface_samples(scene.hull, spacing_m)
+    to = np.flatnonzero(is_opening(loss))  # the engine traces the paths to the openings only
+    angles = input_angles_of(input_angles)
+    paths = input_paths(scene, p[to], n[to], angles)
+    loss_d, loss_r = path_losses(scene, paths)
+    return cavity_from((p, n, a), loss, paths, to, loss_d, loss_r, contents_m2, scene.freq_hz, scene.wavelength_m,
+                       angles)
 
 
 def spot_factor(scene, positions, axes) -> np.ndarray:
@@ -346,6 +500,12 @@ def spot_factor(scene, positions, axes) -> np.ndarray:
         return np.zeros(len(p))
     dipole = scene.receiver_pattern == "dipole"
     f = wall_factor(scene.hull, p, axes if dipole else None, cav.wavelength_m)
-    k = 4.0 * np.pi / 3.0 if dipole else 2.0 * np.pi
     inside = inside_hull(scene.hull, p[:, 0], p[:, 1], p[:, 2])
-    return np.where(inside, k * f / cav.sigma_total_m2, 0.0)
+    return diffuse_factor(inside, f, cav.sigma_total_m2, dipole)
+
+
+def diffuse_factor(inside: np.ndarray, wall: np.ndarray, sigma_total_m2: float, dipole: bool) -> np.ndarray:
+    """(S,) :func:`spot_factor` from the receivers' membership of the hull, their wall factors
+    (:func:`wall_factor`) and the cavity's total cross-section sigma_d, m^2."""
+    k = 4.0 * np.pi / 3.0 if dipole else 2.0 * np.pi
+    return np.where(inside, k * wall / sigma_total_m2, 0.0)

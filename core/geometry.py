@@ -630,6 +630,38 @@ class BodyTerms:
     p_used_db: np.ndarray
 
 
+@dataclass(frozen=True)
+class BodyPaths:
+    """The hull crossings of N straight paths and the knife-edge alternative of each passage, for
+    re-summing with other panel losses (core.link_terms): ``rows``, ``loss_db`` of the crossings (as
+    :class:`BodyTerms`), ``passage`` the index of each passage's entering crossing, ``edge_db`` its J(v)."""
+
+    n: int
+    rows: np.ndarray
+    loss_db: np.ndarray
+    passage: np.ndarray
+    edge_db: np.ndarray
+
+    def total_db(self, crossing_loss_db: np.ndarray | None = None) -> np.ndarray:
+        """Body loss of each path (N,), dB, as :func:`body_loss_db`: the crossings' losses, each passage
+        costing the smaller of its two panel losses and its knife edge. ``crossing_loss_db`` (C,)
+        replaces the crossings' panel losses (default: ``loss_db``)."""
+        loss = self.loss_db if crossing_loss_db is None else np.asarray(crossing_loss_db, float)
+        total = np.bincount(self.rows, weights=loss, minlength=self.n).astype(float)
+        if len(self.passage) == 0:
+            return total
+        pen = loss[self.passage] + loss[self.passage + 1]
+        np.add.at(total, self.rows[self.passage], np.minimum(pen, self.edge_db) - pen)
+        return total
+
+
+def body_paths(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> BodyPaths:
+    """The crossings of the paths a -> b (N, 3), m, and each passage's knife edge (:class:`BodyPaths`),
+    from :func:`body_loss_terms` (the same code as the engine's body loss)."""
+    t = body_loss_terms(hull, a, b, freq_hz, bits0)
+    return BodyPaths(t.n, t.rows, t.loss_db, t.p_first, t.p_j_db)
+
+
 def body_loss_db(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None) -> np.ndarray:
     """Body loss of the straight paths a -> b (N, 3), dB.
 

@@ -9,8 +9,9 @@ report's JSON, CSV and PDF:
 - ``vehicle_file``: the path as given, its absolute path and the SHA-256 of the bytes read (for an
   unsaved document: the SHA-256 of its canonical JSON, and no path);
 - ``overrides``: what the command changed on top of the file (angles per turn, road reflection,
-  wheel model, spots added with ``--spot``): :func:`apply_overrides` applies them, the one place
-  where this is done;
+  wheel model, spots added with ``--spot``, the calibration given with ``--calibration``: its file,
+  hash and the values applied): :func:`apply_overrides` applies them, the one place where this is
+  done (the calibration through core.calibration.apply_calibration);
 - ``data_tables``: SHA-256 of every shipped data table (``core/data/*.npz``, ``*.json``);
 - ``wheel_model``: requested and used (``Scene.wheel_model_label``), the tables used per wheel and
   the provenance of the table set;
@@ -152,25 +153,32 @@ def load_with_source(path_or_vehicle) -> tuple[Vehicle, dict]:
 
 # ----- overrides ----------------------------------------------------------------------------------
 def no_overrides() -> dict:
-    return {"angles_per_turn": None, "ground_reflection": None, "wheel_model": None, "extra_spots": []}
+    return {"angles_per_turn": None, "ground_reflection": None, "wheel_model": None, "extra_spots": [],
+            "calibration": None}
 
 
 def apply_overrides(v: Vehicle, overrides: dict | None, path: str | os.PathLike | None = None) -> Vehicle:
     """The vehicle with a command's overrides applied (None or missing keys: the file's values).
 
     ``overrides``: ``angles_per_turn`` (int), ``ground_reflection`` (bool), ``wheel_model`` (name),
-    ``extra_spots`` (spot objects in the file format, appended to the file's spots). The result is
-    validated like a file (VehicleFileError naming ``path`` and the field, e.g. an added spot whose
-    name is already used, or an angle count out of range).
+    ``extra_spots`` (spot objects in the file format, appended to the file's spots), ``calibration``
+    (the record of core.calibration.calibration_override: applied last, by
+    core.calibration.apply_calibration). The result is validated like a file (VehicleFileError naming
+    ``path`` and the field, e.g. an added spot whose name is already used, or an angle count out of
+    range; core.calibration.CalibrationFileError naming the calibration file when its values do not fit).
     """
     o = {**no_overrides(), **(overrides or {})}
     update = {k: o[k] for k in ("angles_per_turn", "ground_reflection", "wheel_model") if o[k] is not None}
-    if not update and not o["extra_spots"]:
-        return v
-    d = vehicle_to_dict(v)
-    d["radio"].update(update)
-    d["spots"] = list(d.get("spots", [])) + [dict(s) for s in o["extra_spots"]]
-    return vehicle_from_dict(d, path)
+    if update or o["extra_spots"]:
+        d = vehicle_to_dict(v)
+        d["radio"].update(update)
+        d["spots"] = list(d.get("spots", [])) + [dict(s) for s in o["extra_spots"]]
+        v = vehicle_from_dict(d, path)
+    if o["calibration"]:
+        from core.calibration import apply_calibration
+
+        v = apply_calibration(v, o["calibration"], o["calibration"].get("file"))
+    return v
 
 
 # ----- the record -----------------------------------------------------------------------------

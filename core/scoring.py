@@ -103,27 +103,7 @@ class Scene:
             return float(material_loss_db(name, f, overrides))
 
         wheels = tuple(WheelGeometry.from_wheel(w) for w in v.wheels)
-        clearance = v.body.wheelhouse_clearance_m
-        wh = []
-        for w in wheels:
-            inner = abs(w.centre[1]) - 0.5 * w.tire_width_m - clearance
-            wh.append((w.centre[0], w.centre[2], w.tire_radius_m + clearance, w.outboard_sign, inner))
-        top_zones, side_zones, top_labels, side_labels = [], [], [], []
-        for z in v.zones:
-            if z.view == "top":
-                zmin = z.z_min_m if z.z_min_m is not None else -np.inf
-                zmax = z.z_max_m if z.z_max_m is not None else np.inf
-                top_zones.append((np.asarray(z.outline), loss(z.material), zmin, zmax))
-                top_labels.append((z.name, z.material))
-            else:
-                side_zones.append((np.asarray(z.outline), loss(z.material)))
-                side_labels.append((z.name, z.material))
-        hull = build_hull(
-            v.body.top_outline, v.body.side_outline, wh, top_zones, side_zones,
-            default_loss_db=loss("metal"), wheelhouse_loss_db=loss(v.body.wheelhouse_material),
-            top_zone_labels=top_labels, side_zone_labels=side_labels, default_material="metal",
-            wheelhouse_material=v.body.wheelhouse_material,
-        )
+        hull = vehicle_hull(v, wheels, loss)
         n = r.angles_per_turn
         angles = np.arange(n) * (2.0 * np.pi / n)
         pos = np.stack([sensor_positions(w, angles) for w in wheels])
@@ -208,6 +188,34 @@ def _cavity_of(scene: Scene):
             _CAVITIES.pop(next(iter(_CAVITIES)))
         _CAVITIES[key] = cav
     return cav
+
+
+def vehicle_hull(v: Vehicle, wheels: tuple[WheelGeometry, ...], loss: Callable[[str], float]) -> Hull:
+    """The vehicle's 2.5-D hull (core.geometry.build_hull): outlines, wheelhouses (tire radius plus the
+    body's clearance), zones with their names and materials. ``loss(material name)`` gives each panel's
+    crossing loss, dB; a body panel in no zone is ``metal``. (core.link_terms builds the same hull with
+    material numbers in place of the losses, to learn which material each crossing goes through.)"""
+    clearance = v.body.wheelhouse_clearance_m
+    wh = []
+    for w in wheels:
+        inner = abs(w.centre[1]) - 0.5 * w.tire_width_m - clearance
+        wh.append((w.centre[0], w.centre[2], w.tire_radius_m + clearance, w.outboard_sign, inner))
+    top_zones, side_zones, top_labels, side_labels = [], [], [], []
+    for z in v.zones:
+        if z.view == "top":
+            zmin = z.z_min_m if z.z_min_m is not None else -np.inf
+            zmax = z.z_max_m if z.z_max_m is not None else np.inf
+            top_zones.append((np.asarray(z.outline), loss(z.material), zmin, zmax))
+            top_labels.append((z.name, z.material))
+        else:
+            side_zones.append((np.asarray(z.outline), loss(z.material)))
+            side_labels.append((z.name, z.material))
+    return build_hull(
+        v.body.top_outline, v.body.side_outline, wh, top_zones, side_zones,
+        default_loss_db=loss("metal"), wheelhouse_loss_db=loss(v.body.wheelhouse_material),
+        top_zone_labels=top_labels, side_zone_labels=side_labels, default_material="metal",
+        wheelhouse_material=v.body.wheelhouse_material,
+    )
 
 
 def _spot_inputs(scene: Scene, spots, axes):
@@ -581,5 +589,6 @@ def heatmap(
 __all__ = [
     "Scene", "SpotScores", "TurnLevels", "Heatmap", "Cancelled", "spot_levels", "spot_turns", "score_levels",
     "score_spots", "near_field_flags",
-    "score_vehicle", "heatmap", "grid_for_region", "worst_case", "vehicle_spot_arrays", "SHORT_DIPOLE_GAIN_DBI",
+    "score_vehicle", "heatmap", "grid_for_region", "worst_case", "vehicle_spot_arrays", "vehicle_hull",
+    "SHORT_DIPOLE_GAIN_DBI",
 ]

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from core.vehicle import Body, Radio, Receiver, Sensor, Vehicle, Wheel, Zone, check_vehicle, load_vehicle
+from core.vehicle import Body, Radio, Receiver, Sensor, Spot, Vehicle, Wheel, Zone, check_vehicle, load_vehicle
 
 REPO = Path(__file__).resolve().parents[1]
 SEDAN_PATH = REPO / "sample_vehicles" / "sedan.json"
@@ -82,5 +82,33 @@ def box_cabin(window_material: str | None) -> Vehicle:
         )
     wheel = Wheel(id="W", x_m=0.0, y_m=1.0, tire="225/50R17", rim_width_m=0.19)
     v = Vehicle(name="box cabin", body_style="test", body=body, zones=zones, wheels=(wheel,))
+    check_vehicle(v)
+    return v
+
+
+def calibration_box(wheel_model: str = "installed_pattern") -> Vehicle:
+    """A closed box (x -1..1, y -0.8..0.8, z 0.2..1.4 m) with a wheel beside each side (clear of the box) and
+    receiver spots that separate the fitted parameters: behind a glass window (side-view zone x -0.7..-0.05 m),
+    behind a plastic panel (x 0.05..0.7 m), 3 cm from each metal end wall with the antenna along the wall
+    (there the cabin's diffuse field, fed through the glass and plastic, is weak: the tangential field
+    vanishes on a conducting wall, core.cavity.wall_factor; so the straight path through the metal counts),
+    and four outside the box (free-space references for the sensor's EIRP). The calibration tests
+    (tests/test_calibration.py) make measurements of it."""
+    body = Body(top_outline=((-1.0, -0.8), (1.0, -0.8), (1.0, 0.8), (-1.0, 0.8)),
+                side_outline=((-1.0, 0.2), (1.0, 0.2), (1.0, 1.4), (-1.0, 1.4)))
+    zones = (Zone(name="window", view="side", material="glass",
+                  outline=((-0.7, 0.6), (-0.05, 0.6), (-0.05, 1.3), (-0.7, 1.3))),
+             Zone(name="panel", view="side", material="plastic",
+                  outline=((0.05, 0.6), (0.7, 0.6), (0.7, 1.3), (0.05, 1.3))))
+    wheels = (Wheel(id="L", x_m=0.0, y_m=1.0, tire="225/50R17", rim_width_m=0.19),
+              Wheel(id="R", x_m=0.0, y_m=-1.0, tire="225/50R17", rim_width_m=0.19))
+    spots = (Spot(name="behind glass", x_m=-0.4, y_m=0.0, z_m=1.0), Spot(name="behind plastic", x_m=0.4, y_m=0.0, z_m=1.0),
+             Spot(name="metal wall front", x_m=0.97, y_m=0.0, z_m=0.4, axis=(0.0, 0.0, 1.0)),
+             Spot(name="metal wall rear", x_m=-0.97, y_m=0.0, z_m=0.4, axis=(0.0, 0.0, 1.0)),
+             Spot(name="outside left", x_m=0.0, y_m=2.2, z_m=0.6), Spot(name="outside right", x_m=0.0, y_m=-2.2, z_m=0.6),
+             Spot(name="outside front", x_m=2.0, y_m=0.0, z_m=0.5), Spot(name="outside rear", x_m=-2.0, y_m=0.0, z_m=0.5))
+    radio = Radio(sensor=Sensor(eirp_dbm=-10.0), receiver=Receiver(gain_dbi=0.0), wheel_model=wheel_model)
+    v = Vehicle(name="calibration box", body_style="test", body=body, zones=zones, wheels=wheels, spots=spots,
+                radio=radio)
     check_vehicle(v)
     return v

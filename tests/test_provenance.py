@@ -62,7 +62,8 @@ def test_rank_json_round_trip_reproduces_the_numbers(sedan_copy, capsys):
     setup = json.loads(json.dumps(doc["setup"]))  # only what survives the JSON text
     assert setup["overrides"] == {"angles_per_turn": 36, "ground_reflection": False, "wheel_model": "knife_edge",
                                   "extra_spots": [{"name": "probe", "x_m": -1.0, "y_m": 0.1, "z_m": 0.7,
-                                                   "x_from": "origin", "z_from": "ground"}]}
+                                                   "x_from": "origin", "z_from": "ground"}],
+                                  "calibration": None}
     v = prov.vehicle_from_setup(setup)  # reads the named file, checks its hash, applies the overrides
     assert v.radio.angles_per_turn == 36 and not v.radio.ground_reflection and v.radio.wheel_model == "knife_edge"
     assert "probe" in [s.name for s in v.spots]

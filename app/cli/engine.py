@@ -26,6 +26,7 @@ def _load_with_spots(args):
     """(vehicle with the command's overrides, its ``vehicle_file`` record, the overrides) - core.provenance.
 
     A problem the overrides cause names the file and the option (``--spot NAME``, ``--angles``)."""
+    from core.calibration import CalibrationFileError
     from core.provenance import apply_overrides, load_with_source
 
     v, source = load_with_source(args.file)
@@ -36,9 +37,12 @@ def _load_with_spots(args):
         "ground_reflection": False if getattr(args, "no_ground", False) else None,
         "wheel_model": getattr(args, "wheel_model", None),
         "extra_spots": [s.model_dump(mode="json", exclude_none=True) for s in extra],
+        "calibration": calibration_override(args),
     }
     try:
         v = apply_overrides(v, overrides, args.file)
+    except CalibrationFileError:
+        raise  # names the calibration file
     except VehicleFileError as e:
         problem = e.problem
         if e.field.startswith("spots[") and extra:
@@ -49,6 +53,31 @@ def _load_with_spots(args):
             problem = f"with the command line's --spot/--angles: {problem}"
         raise VehicleFileError(problem, e.field, args.file) from None
     return v, source, overrides
+
+
+def calibration_override(args) -> dict | None:
+    """The ``overrides.calibration`` record of ``--calibration FILE`` (None without it); a bad file raises
+    core.calibration.CalibrationFileError naming it."""
+    path = getattr(args, "calibration", None)
+    if not path:
+        return None
+    from core.calibration import calibration_record
+
+    return calibration_record(path)[1]
+
+
+def print_calibration(overrides: dict, vehicles=()) -> None:
+    """One line naming the calibration applied, and a warning line for each of ``vehicles`` it may not
+    fit (core.calibration.calibration_warnings); nothing without a calibration."""
+    rec = overrides.get("calibration")
+    if rec:
+        from core.calibration import calibration_warnings
+
+        values = ", ".join(f"{k} {x:.2f}" for k, x in rec["values"].items()) or "no value (none was informed)"
+        print(f"calibration {rec['file']}: {rec['note']}; applied: {values}")
+        for v in vehicles:
+            for w in calibration_warnings(v, rec):
+                print(f"warning: {w}")
 
 
 def _setup(args, v, scene, source, overrides, extra=None) -> dict:
@@ -97,6 +126,7 @@ def _cmd_rank(args) -> int:
           f"{scores.sensitivity_dbm:.1f} dBm, required margin {scores.required_margin_db:.1f} dB, "
           f"{len(scores.angles_deg)} angles per turn, wheel model: {scene.wheel_model_label}")
     print(f"worst case: {scene.score_method}")
+    print_calibration(overrides, [v])
     if not check.over_ceiling:
         print(f"radio limit: {check.summary()}")
     at = f" {'at ceiling':>10}" if check.over_ceiling else ""
@@ -159,7 +189,7 @@ def _cmd_heatmap(args) -> int:
     from core.scoring import Scene, heatmap
     from core.vehicle import Region
 
-    check_outputs({"--csv": args.csv}, [args.file])  # before any computing: one located line, exit 1
+    check_outputs({"--csv": args.csv}, [args.file, getattr(args, "calibration", None)])  # before any computing
     v, source, overrides = _load_with_spots(args)
     regions = [r for r in v.regions if r.view == args.view]
     if args.region:
@@ -189,6 +219,7 @@ def _cmd_heatmap(args) -> int:
           f"{cells} cells computed, {ok} with margin >= 0 dB ({100.0 * ok / max(cells, 1):.0f} % of the computed cells)")
     if excluded:
         print(f"not computed (not a receiver position): {excluded}")
+    print_calibration(overrides, [v])
     at = f" {'at ceiling':>10}" if check.over_ceiling else ""
     print(f"{'x m':>7} {'y m':>7} {'z m':>7} {'margin dB':>10}{at}  worst wheel")
     for x, y, z, m, w in hm.best_cells(args.top):
@@ -219,6 +250,11 @@ def add_progress_options(p) -> None:
     g.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
+def add_calibration_option(p) -> None:
+    p.add_argument("--calibration", metavar="C.json",
+                   help="apply a calibration written by 'wheelreach calibrate' (fitted losses, EIRP offset, null floor)")
+
+
 def register(sub) -> None:
     angles_help = (f"wheel angles per turn, {MIN_ANGLES_PER_TURN}-{MAX_ANGLES_PER_TURN} "
                    "(default: the file's)")
@@ -233,6 +269,7 @@ def register(sub) -> None:
                                                        "budgets by term, tornado and P(pass) per spot")
     r.add_argument("--explain", metavar="SPOT", help="print one spot's link budget by term (worst and median angle), "
                                                      "what its margin depends on, P(pass) and what to measure first")
+    add_calibration_option(r)
     add_progress_options(r)
     r.set_defaults(func=_cmd_rank)
     h = sub.add_parser("heatmap", help="link margin over a mounting region grid")
@@ -249,6 +286,7 @@ def register(sub) -> None:
     h.add_argument("--top", type=options.count(1, MAX_HEATMAP_CELLS), default=10, metavar="N",
                    help="how many best cells to print (default 10)")
     h.add_argument("--csv", metavar="OUT.csv", help="write every cell to a CSV file")
+    add_calibration_option(h)
     add_progress_options(h)
     h.add_argument("--spot", action="append", type=options.spot, help=argparse.SUPPRESS)
     h.add_argument("--angles", type=options.angles, metavar="N", help=angles_help)

@@ -1,7 +1,7 @@
 """Command line: ``wheelreach`` (GUI), ``check``, ``schema``, and the batch commands.
 
-A bad option value prints one line and exits with status 2 (app.cli.options); a bad vehicle file,
-a bad output path, or work beyond a documented limit (core.bounds) prints one located line and
+A bad option value prints one line and exits with status 2 (app.cli.options); a bad vehicle,
+measurement or calibration file, a bad output path, or work beyond a documented limit (core.bounds) prints one located line and
 exits with status 1; never a traceback.
 """
 
@@ -15,6 +15,7 @@ from app.cli.options import Parser
 from core.body_import import BodyImportError
 from core.bounds import NonFiniteResultError, WorkLimitError
 from core.files import install_signal_cleanup
+from core.measurements import MeasurementFileError
 from core.vehicle import VehicleFileError, json_schema, load_vehicle
 
 
@@ -46,7 +47,13 @@ def _cmd_check(args) -> int:
 
 
 def _cmd_schema(args) -> int:
-    print(json.dumps(json_schema(), indent=2))
+    if args.format == "measurements":
+        from core.measurements import measurement_schema as schema
+    elif args.format == "calibration":
+        from core.calibration import calibration_schema as schema
+    else:
+        schema = json_schema
+    print(json.dumps(schema(), indent=2))
     return 0
 
 
@@ -73,7 +80,10 @@ def build_parser() -> argparse.ArgumentParser:
                                      "the body, in a wheelhouse or on a panel; exit 1 if any file is bad")
     c.add_argument("files", nargs="+")
     c.set_defaults(func=_cmd_check)
-    s = sub.add_parser("schema", help="print the JSON Schema of the vehicle file format")
+    s = sub.add_parser("schema", help="print the JSON Schema of the vehicle file format (or of a measurement-file row, "
+                                      "or of the calibration file)")
+    s.add_argument("format", nargs="?", choices=["vehicle", "measurements", "calibration"], default="vehicle",
+                   help="which format (default vehicle)")
     s.set_defaults(func=_cmd_schema)
     _register_more(sub)
     return p
@@ -83,7 +93,8 @@ def _register_more(sub) -> None:
     """Commands of the engine, benchmark and report modules (registered when present)."""
     import importlib
 
-    for mod in ("app.cli.engine", "app.cli.bench", "app.cli.report", "app.cli.confirm", "app.cli.body"):
+    for mod in ("app.cli.engine", "app.cli.bench", "app.cli.report", "app.cli.confirm", "app.cli.body",
+                "app.cli.calibrate"):
         try:
             m = importlib.import_module(mod)
         except ModuleNotFoundError as e:
@@ -106,7 +117,7 @@ def main(argv: list[str] | None = None) -> int:
         install_signal_cleanup()
     try:
         return args.func(args)
-    except (VehicleFileError, WorkLimitError, NonFiniteResultError, BodyImportError) as e:
+    except (VehicleFileError, MeasurementFileError, WorkLimitError, NonFiniteResultError, BodyImportError) as e:
         print(f"error: {e}", file=sys.stderr)
         return 1
     except KeyboardInterrupt:

@@ -6,7 +6,13 @@ import sys
 
 from app.caution import SAFETY_NOTE, print_safety_note
 from app.cli import options
-from app.cli.engine import _Progress, add_progress_options
+from app.cli.engine import (
+    _Progress,
+    add_calibration_option,
+    add_progress_options,
+    calibration_override,
+    print_calibration,
+)
 from core.compare import LANDMARKS
 from core.vehicle import MAX_BODY_HEIGHT_M
 
@@ -17,19 +23,23 @@ def _cmd_report(args) -> int:
     from core.files import check_outputs
 
     # every output path first, before Qt is even loaded (write_report checks them again for other callers)
-    check_outputs({"-o": args.output, "--csv": args.csv, "--json": args.json}, [args.file])
+    check_outputs({"-o": args.output, "--csv": args.csv, "--json": args.json}, [args.file, args.calibration])
+    calibration = calibration_override(args)  # a bad calibration file stops here, before Qt is loaded
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     from app.report.pdf import write_report
 
     show = args.progress or (sys.stderr.isatty() and not args.quiet)
     d, n = write_report(args.file, args.output, args.csv, args.json, step_m=args.step,
-                        progress=_Progress(show, "spots and cells"), command_line=getattr(args, "command_line", None))
+                        progress=_Progress(show, "spots and cells"), command_line=getattr(args, "command_line", None),
+                        calibration=calibration)
     s = d.scores
     b = d.best_index()  # the best-ranked spot that is a receiver position (core.placement)
     if d.eirp_check.over_ceiling:
         print(d.eirp_check.warning())
     print(f"wrote {args.output}: {n} pages; {d.vehicle.name}; best spot '{s.names[b]}' at {s.margin_db[b]:+.1f} dB "
           f"(worst wheel {s.wheel_ids[s.worst_wheel[b]]})")
+    if calibration:
+        print_calibration({"calibration": calibration}, [d.vehicle])
     for p in (args.csv, args.json):
         if p:
             print(f"wrote {p}")
@@ -44,8 +54,21 @@ def _cmd_compare(args) -> int:
     from core.scoring import Scene
     from core.vehicle import load_vehicle
 
-    check_outputs({"-o": args.output, "--csv": args.csv}, args.files)  # before any computing
+    check_outputs({"-o": args.output, "--csv": args.csv}, [*args.files, args.calibration])  # before any computing
     vehicles = [load_vehicle(f) for f in args.files]  # a bad file stops here with its located message
+    calibration = calibration_override(args)
+    if calibration:  # the same calibration on every body (core.provenance.apply_overrides)
+        from core.provenance import apply_overrides
+
+        vehicles = [apply_overrides(v, {"calibration": calibration}, f) for v, f in zip(vehicles, args.files)]
+    note = ""
+    if calibration:
+        from core.calibration import calibration_warnings
+
+        note = f"Calibration {calibration['file']} applied to every body: {calibration['note']}"
+        for v in vehicles:
+            for w in calibration_warnings(v, calibration):
+                note += f"\nWarning: {w}"
     scenes = [Scene.from_vehicle(v) for v in vehicles]
     c = compare_bodies(vehicles, scenes)
     search, err = None, ""
@@ -56,7 +79,7 @@ def _cmd_compare(args) -> int:
                                                                "bodies"))
         except NoSharedRegion as e:
             err = str(e)
-    text = comparison_text(c, search, err, vehicles)
+    text = comparison_text(c, search, err, vehicles, note)
     if text.endswith(SAFETY_NOTE):  # the note ends the text; here it is printed last, after the files
         text = text[: -len(SAFETY_NOTE)].rstrip("\n")
     print(text)
@@ -69,7 +92,7 @@ def _cmd_compare(args) -> int:
         os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
         from app.report.compare import write_comparison_pdf
 
-        n = write_comparison_pdf(args.output, vehicles, list(args.files), c, search, err)
+        n = write_comparison_pdf(args.output, vehicles, list(args.files), c, search, err, note)
         print(f"wrote {args.output}: {n} pages")
     print_safety_note()
     return 0
@@ -84,6 +107,7 @@ def register(sub) -> None:
     r.add_argument("--step", type=options.step, default=0.05,
                    help=f"heatmap cell spacing, m, above 0 and at most {options.MAX_STEP_M:g} (default 0.05); the "
                         "report's heatmaps must fit the work limits (README, Limits)")
+    add_calibration_option(r)
     add_progress_options(r)
     r.set_defaults(func=_cmd_report)
     c = sub.add_parser("compare", help="compare spots across several bodies; name the platform-common best spot")
@@ -99,5 +123,6 @@ def register(sub) -> None:
                    help=f"grid spacing of the search, m, above 0 and at most {options.MAX_STEP_M:g} (default 0.10); "
                         "the search must fit the work limits (README, Limits)")
     c.add_argument("--no-search", action="store_true", help="skip the shared-region search")
+    add_calibration_option(c)
     add_progress_options(c)
     c.set_defaults(func=_cmd_compare)

@@ -194,6 +194,16 @@ def export_report(doc: Document, ui) -> None:
     ui.report_export = export_report(ui, doc.path if doc.path and doc.undo_stack.isClean() else doc.vehicle)
 
 
+def import_measurements(doc: Document, ui) -> None:
+    """File > Import measurements: fit the model to measured levels of this vehicle (app.gui.measurements_window)."""
+    from app.gui.measurements_window import open_measurements_window
+
+    path, _ = QFileDialog.getOpenFileName(ui, "Import measurements", ui.last_folder(),
+                                          "Measurement files (*.csv);;All files (*)")
+    if path:
+        ui.measurements_window = open_measurements_window(ui, doc, path)
+
+
 def compare_bodies(doc: Document, ui) -> None:
     """Tools > Compare bodies: one spot for several body styles, starting with this file."""
     from app.gui.compare_window import open_compare_window
@@ -230,6 +240,8 @@ COMMANDS: tuple[Command, ...] = (
     Command("&File", "&Trace body over a picture...", trace_body_outline, "Ctrl+T",
             "Click the top or side outline over a drawing or photo, scaled by two points (undoable)"),
     Command("&File", "Export &report...", export_report, "Ctrl+Shift+E", "Write the placement report (PDF, with CSV/JSON data)"),
+    Command("&File", "&Import measurements...", import_measurements, "Ctrl+Shift+I",
+            "Fit the model to measured levels of this vehicle (CSV, docs/measurement-format.md)"),
     Command("&File", "&Quit", quit_program, "Ctrl+Q", "Close the program"),
     Command("&Edit", "&Undo", undo, "Ctrl+Z", "Undo the last edit", enabled_when="undo"),
     Command("&Edit", "&Redo", redo, "Ctrl+Shift+Z", "Redo the edit undone last", enabled_when="redo"),

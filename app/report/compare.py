@@ -88,7 +88,7 @@ def verdict_box_html(c: Comparison, search: CommonSearch | None, vehicles) -> st
 
 
 def comparison_text(c: Comparison, search: CommonSearch | None = None, search_error: str = "",
-                    vehicles=None) -> str:
+                    vehicles=None, calibration_note: str = "") -> str:
     labels = body_labels(c)
     w = max(24, max(len(n) for n in c.spot_names) + 1)
     head = f"{'spot':<{w}}" + "".join(f"{lab:^14}" for lab in labels) + f"{'min dB':>9}  limited by"
@@ -121,6 +121,8 @@ def comparison_text(c: Comparison, search: CommonSearch | None = None, search_er
                          f"({search.best_worst_wheel[b]})")
     elif search_error:
         lines.append(f"Shared-region search: {search_error}")
+    if calibration_note:
+        lines.append(calibration_note)
     lines.append("")
     lines += verdict_lines(c, search, vehicles)
     lines += ["  " + t for t in name_flag_lines(c, vehicles)]
@@ -156,7 +158,7 @@ def comparison_csv(c: Comparison, search: CommonSearch | None = None) -> str:
 
 
 def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: CommonSearch | None,
-                         search_error: str = "") -> int:
+                         search_error: str = "", calibration_note: str = "") -> int:
     """The comparison as a PDF: inputs with hashes, small top views, the table, the search, the caution."""
     from PySide6.QtCore import QRectF
 
@@ -176,6 +178,8 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
         f.table(["Body", "Vehicle", "Input", "SHA-256"],
                 [[esc(lab), esc(v.name), esc(Path(p).name if p else "unsaved document"), f"<span class='mono'>{h}</span>"]
                  for lab, v, p, h in zip(labels, vehicles, paths, hashes)], [11, 24, 18, 47], small=True)
+        if calibration_note:
+            f.html("".join(f"<p><b>{esc(line)}</b></p>" for line in calibration_note.splitlines()), 4)
         if best >= 0:
             lb = int(c.limiting_body[best])
             f.html(f"<h2>Platform-common best spot</h2><p><b>{esc(c.spot_names[best])}</b>: smallest margin over the "

@@ -80,6 +80,7 @@ class ReportData:
     defence: Defence | None = None  # per spot: budget by term, tornado, P(pass), what to measure (core.defence)
     verdict: Verdict | None = None  # the recommended spot and why (page 1)
     axes: np.ndarray | None = None  # (S, 3) the receiver axes the spots were scored with
+    calibration: dict | None = None  # the calibration applied (core.calibration.calibration_override), or None
 
     def best_index(self) -> int:
         """Index (into scores) of the best-ranked spot that is a receiver position (inside the body,
@@ -104,8 +105,13 @@ def load_for_report(path_or_vehicle) -> tuple[Vehicle, dict]:
     return load_with_source(path_or_vehicle)
 
 
-def _materials_in_use(v: Vehicle) -> tuple[dict, ...]:
-    """The materials the body model uses, with their crossing loss at the frequency and source."""
+def _materials_in_use(v: Vehicle, calibration: dict | None = None) -> tuple[dict, ...]:
+    """The materials the body model uses, with their crossing loss at the frequency and source (a
+    calibrated value names the calibration)."""
+    from core.calibration import parameter
+
+    calibrated = {parameter(k).material: k for k in (calibration or {}).get("values", {})
+                  if parameter(k).kind == "material"}
     used: list[tuple[str, str]] = [("metal", "body panels outside any zone")]
     used.append((v.body.wheelhouse_material, "wheelhouse"))
     for z in v.zones:
@@ -113,13 +119,22 @@ def _materials_in_use(v: Vehicle) -> tuple[dict, ...]:
     if v.radio.wheel_model == "knife_edge" or v.radio.sensor.pattern == "isotropic":
         used += [("tire_sidewall", "tire sidewall"), ("tire_tread", "tire tread")]
     rows: dict[str, dict] = {}
+    fitted: set[str] = set()
     f = v.radio.frequency_hz
     for name, where in used:
         if name in rows:
             if where not in rows[name]["used_by"]:
                 rows[name]["used_by"].append(where)
             continue
-        if name in v.materials:
+        if name in calibrated:
+            key = calibrated[name]
+            se = calibration.get("standard_errors", {}).get(key)
+            src = (f"calibration {calibration.get('file')}: fitted {calibration['values'][key]:.2f}"
+                   + (f" +- {se:.2f}" if se is not None else "") + f" dB ({calibration.get('note', '')})")
+            default = False
+            loss = v.materials[name].loss_db
+            fitted.add(name)
+        elif name in v.materials:
             m = v.materials[name]
             src = "value given in the vehicle file" + (f": {m.description}" if m.description else "")
             default = False
@@ -129,19 +144,25 @@ def _materials_in_use(v: Vehicle) -> tuple[dict, ...]:
             src, default = bm.source, bm.engineering_default
             loss = float(material_loss_db(name, f))
         rows[name] = {"material": name, "loss_db": float(loss), "source": src,
-                      "engineering_default": bool(default), "used_by": [where]}
+                      "engineering_default": bool(default), "calibrated": name in fitted, "used_by": [where]}
     return tuple(rows.values())
 
 
-def _radio_rows(v: Vehicle, scene: Scene, check: EirpCheck) -> tuple[tuple[tuple[str, str, str], ...], str]:
+def _radio_rows(v: Vehicle, scene: Scene, check: EirpCheck,
+                calibration: dict | None = None) -> tuple[tuple[tuple[str, str, str], ...], str]:
     r = v.radio
     s, rx = r.sensor, r.receiver
+    cal = (calibration or {}).get("values", {})
     if s.eirp_dbm is not None:
         eirp = (f"{s.eirp_dbm:.2f} dBm peak", "given in the file (power while a frame is on the air)")
     else:
         eirp = (f"{r.sensor_eirp_dbm:.2f} dBm peak",
                 (f"conducted {s.conducted_power_dbm:.1f} dBm + antenna {s.antenna_gain_dbi:.1f} dBi - mismatch "
                  f"loss of {s.return_loss_db:.1f} dB return loss (textbook transmission-line relation)"))
+    if "sensor_eirp_offset_db" in cal:
+        eirp = (eirp[0], eirp[1] + f"; includes the calibration's EIRP offset of {cal['sensor_eirp_offset_db']:+.2f} dB")
+    floor_note = ("fitted by the calibration" if "null_floor_db" in cal
+                  else "engineering default for the dipole-dipole null")
     timing = (f"{r.frame_duration_s * 1e3:g} ms frames" if r.frame_duration_s is not None else "frame duration not given")
     timing += f", burst every {r.burst_period_s:g} s" if r.burst_period_s is not None else ""
     if check.preset is None:
@@ -164,7 +185,7 @@ def _radio_rows(v: Vehicle, scene: Scene, check: EirpCheck) -> tuple[tuple[tuple
          "default axis; a spot may set its own"),
         ("Receiver sensitivity", f"{rx.sensitivity_dbm:.1f} dBm", "from the file"),
         ("Required margin", f"{r.required_margin_db:.1f} dB", "margin = worst level - sensitivity - required margin"),
-        ("Polarization null floor", f"{r.null_floor_db:.1f} dB", "engineering default for the dipole-dipole null"),
+        ("Polarization null floor", f"{r.null_floor_db:.1f} dB", floor_note),
         ("Wheel angles per turn", f"{r.angles_per_turn}", f"every {360 / r.angles_per_turn:g} deg"),
         ("Worst case", scene.score_method, "statistic and angle method of the worst case over a turn"),
         ("Burst", f"{r.frames_per_burst} frames every {r.frame_interval_s * 1e3:.0f} ms",
@@ -206,7 +227,7 @@ def _placement_findings(scores: SpotScores, placement: Placement) -> list[str]:
 
 
 def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, regions, eirp_note: str,
-              placement: Placement) -> str:
+              placement: Placement, calibration: dict | None = None) -> str:
     cand = placement.candidate
     order = [int(i) for i in scores.order() if cand[i]] or [int(i) for i in scores.order()]
     b = int(order[0])
@@ -231,6 +252,8 @@ def _findings(v: Vehicle, scene: Scene, scores: SpotScores, details, heatmaps, r
     if len(order) > 1:
         s2 = int(order[1])
         parts.append(f"The runner-up is '{scores.names[s2]}' at {scores.margin_db[s2]:+.1f} dB.")
+    if calibration:
+        parts.append(f"These margins use the calibrated model: {calibration.get('note', '')}.")
     check = check_sensor_eirp(v.radio)
     if check.over_ceiling:
         paras.insert(0, [check.warning()])
@@ -294,15 +317,22 @@ def build_report_data(
     cancel: Callable[[], bool] | None = None,
     now: datetime | None = None,
     command_line: list[str] | None = None,
+    calibration: dict | None = None,
 ) -> ReportData:
     """Run the engine for a report. ``progress(done, total)`` counts positions: the spots, then the
     heatmap cells over all regions; ``command_line`` (the command's words, None from the desktop
-    program) goes into the setup record.
+    program) goes into the setup record; ``calibration`` (core.calibration.calibration_override) is
+    applied to the vehicle (core.provenance.apply_overrides) and named on the first page.
 
     Before any computing, the report's heatmaps are held to the work limits of core.bounds
     (WorkLimitError names the limit and the step that fits); afterwards every level, margin and
     heatmap cell is checked to be finite (NonFiniteResultError) before it reaches a table or figure."""
     v, src = load_for_report(path_or_vehicle)
+    overrides = {"calibration": calibration} if calibration else None
+    if overrides:
+        from core.provenance import apply_overrides
+
+        v = apply_overrides(v, overrides, src["path"])
     if not v.spots:
         from core.vehicle import VehicleFileError
 
@@ -350,18 +380,19 @@ def build_report_data(
         for i in shown[:DETAIL_SPOTS]
     )
     check = check_sensor_eirp(v.radio)
-    radio_rows, eirp_note = _radio_rows(v, scene, check)
-    setup = setup_record(v, scene, src, command_line, extra={"heatmap_step_m": step_m})
+    radio_rows, eirp_note = _radio_rows(v, scene, check, calibration)
+    setup = setup_record(v, scene, src, command_line, overrides, extra={"heatmap_step_m": step_m})
     data = ReportData(
         vehicle=v, source=src["path"] or "unsaved document", sha256=src["sha256"], hash_of=src["hash_of"],
         created=now or datetime.now(UTC).astimezone(),
         program_version=program_version(), scene=scene, scores=scores, ranking=ranking,
         regions=regions, heatmaps=tuple(maps), step_m=step_m, details=details,
-        materials=_materials_in_use(v), radio_rows=radio_rows, eirp_note=eirp_note,
+        materials=_materials_in_use(v, calibration), radio_rows=radio_rows, eirp_note=eirp_note,
         near_field_limit_m=float(near_field_limit_m(scene.freq_hz)), placement=placement, setup=setup,
         eirp_check=check, defence=defence, verdict=verdict(scores, defence, axes, placement), axes=axes,
+        calibration=calibration,
     )
-    findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note, placement)
+    findings = _findings(v, scene, scores, details, data.heatmaps, regions, eirp_note, placement, calibration)
     return ReportData(**{**data.__dict__, "findings": findings})
 
 

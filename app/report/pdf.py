@@ -202,6 +202,8 @@ def _overrides_text(o: dict) -> str:
         parts.append(f"wheel model {o['wheel_model']}")
     for sp in o.get("extra_spots", []):
         parts.append(f"added spot '{sp['name']}'")
+    if o.get("calibration"):
+        parts.append("calibration applied (below)")
     return ", ".join(parts) or "none (the file as it is)"
 
 
@@ -233,6 +235,21 @@ def _verdict_box(f: Flow, d: ReportData) -> None:
         f.html(box, 8)
 
 
+def _calibration_text(cal: dict | None, v=None) -> str:
+    """The title page's calibration line: "calibrated from N measurements, hold-out RMS x dB", the file, the values
+    and why it may not carry over to this vehicle (core.calibration.calibration_warnings)."""
+    if not cal:
+        return "none: the model's own parameter values (File &gt; Import measurements or 'wheelreach calibrate' fit them)"
+    from core.calibration import calibration_warnings
+
+    values = "; ".join(f"{esc(k)} {x:.2f} dB" for k, x in cal.get("values", {}).items()) or "no value applied"
+    warn = "".join(f"<br/><b style='color:#a3141e'>Warning: {esc(w)}</b>"
+                   for w in (calibration_warnings(v, cal) if v is not None else []))
+    return (f"<b>{esc(cal.get('note', ''))}</b><br/><span class='small'>{esc(cal.get('file') or '')} "
+            f"(SHA-256 <span class='mono'>{esc((cal.get('sha256') or '')[:16])}...</span>); applied: {values}; "
+            f"measured on {esc(cal.get('measured_vehicle') or '?')}</span>{warn}")
+
+
 def _title_page(f: Flow, d: ReportData) -> None:
     v, st = d.vehicle, d.setup
     f.html(f"<h1>Receiver placement report</h1><p style='font-size:11pt'>{esc(v.name)} "
@@ -256,6 +273,7 @@ def _title_page(f: Flow, d: ReportData) -> None:
         ["Command line", f"<span class='mono'>{esc(shlex.join(cmd))}</span>" if cmd
          else "desktop program (File &gt; Export report)"],
         ["Overrides", esc(_overrides_text(st.get("overrides", {})))],
+        ["Calibration", _calibration_text(d.calibration, v)],
         ["Wheel model", esc(d.scene.wheel_model_label)
          + (f"<br/><span class='small'>tables: {esc(ts.get('solver', ''))}, model {esc(ts.get('model_version', ''))}, "
             f"{esc(ts.get('date_utc', ''))}</span>" if ts else "")],
@@ -280,7 +298,8 @@ def _setup_tables(f: Flow, d: ReportData) -> None:
            "measurements where available.</p>", 2, keep=120 * S)
     rows = []
     for m in d.materials:
-        kind = "engineering default" if m["engineering_default"] else "published / by definition"
+        kind = ("calibrated from measurements" if m.get("calibrated") else
+                "engineering default" if m["engineering_default"] else "published / by definition")
         rows.append([esc(m["material"]), f"{m['loss_db']:.2f}", esc(kind),
                      f"<span class='small'>{esc(', '.join(m['used_by']))}</span>",
                      f"<span class='small'>{esc(m['source'])}</span>"])
@@ -651,7 +670,8 @@ def write_report_pdf(d: ReportData, out_pdf: str | os.PathLike) -> int:
 
 
 def write_report(path_or_vehicle, out_pdf, csv_path=None, json_path=None, step_m: float = 0.05,
-                 progress=None, cancel=None, command_line: list[str] | None = None) -> tuple[ReportData, int]:
+                 progress=None, cancel=None, command_line: list[str] | None = None,
+                 calibration: dict | None = None) -> tuple[ReportData, int]:
     """Compute and write the report (and the CSV/JSON exports). Returns (data, page count).
 
     Every output path is checked first (core.files.check_outputs: OutputPathError for a missing or
@@ -661,7 +681,8 @@ def write_report(path_or_vehicle, out_pdf, csv_path=None, json_path=None, step_m
 
     check_outputs({"-o": out_pdf, "--csv": csv_path, "--json": json_path},
                   [] if isinstance(path_or_vehicle, Vehicle) else [path_or_vehicle])
-    d = build_report_data(path_or_vehicle, step_m, progress=progress, cancel=cancel, command_line=command_line)
+    d = build_report_data(path_or_vehicle, step_m, progress=progress, cancel=cancel, command_line=command_line,
+                          calibration=calibration)
     n = write_report_pdf(d, out_pdf)
     if csv_path:
         atomic_write_text(csv_path, report_csv(d))
