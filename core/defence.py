@@ -89,8 +89,7 @@ def measurement_advice(bar: TornadoBar, worst: LinkBudget, scene) -> str:
     if bar.key == "frequency":
         return "the level at both ends of the sensor's frequency tolerance"
     if bar.key == "cabin_absorption":
-        return ("the cabin's diffuse level: the mean level at the spot over many wheel positions with the cabin empty "
-                "and then with the seats occupied (the contents' absorption sets it)")
+        return "the spot's mean level over a turn, cabin empty and then occupied (the contents set the cabin level)"
     return f"the input '{bar.label}'"
 
 

@@ -269,10 +269,12 @@ def engine_levels(vehicle, spots, angles_per_turn: int) -> np.ndarray:
 
 def free_space_scene(vehicle, angles_per_turn: int):
     """The engine's scene of ``vehicle`` as the reference sees it: free space (no road), the reference's
-    angles per turn (core.scoring.Scene)."""
+    angles per turn, and the mean level (fade probability 0: the reference's levels are power averages over
+    frequency, the counterpart of the cabin field's mean, not of its 1 % fade level) (core.scoring.Scene)."""
     from core.scoring import Scene
 
-    radio = vehicle.radio.model_copy(update={"angles_per_turn": int(angles_per_turn), "ground_reflection": False})
+    radio = vehicle.radio.model_copy(update={"angles_per_turn": int(angles_per_turn), "ground_reflection": False,
+                                             "fade_probability": 0.0})
     return Scene.from_vehicle(vehicle.model_copy(update={"radio": radio}))
 
 
