@@ -196,29 +196,11 @@ def check_model(model: WireModel, max_segment_m: float | None = None) -> list[st
     # necpp refuses a wire whose first or last segment midpoint lies inside an earlier wire; the
     # candidates are found with a k-d tree of the wire centres (scipy), so large grids check quickly
     if model.wires:
-        from scipy.spatial import cKDTree
-
-        a = np.array([w.start for w in model.wires])
-        b = np.array([w.end for w in model.wires])
         rad = np.array([w.radius_m for w in model.wires])
-        nseg = np.array([w.segments for w in model.wires])
-        ab = b - a
-        ab2 = np.maximum(np.sum(ab * ab, axis=1), 1e-30)
-        step = ab / nseg[:, None]
-        mids = np.concatenate([a + 0.5 * step, b - 0.5 * step])  # (2N, 3)
-        owner = np.concatenate([np.arange(len(a)), np.arange(len(a))])
-        reach = 0.5 * float(np.sqrt(ab2.max())) + float(rad.max())
-        tree = cKDTree(0.5 * (a + b))
         flagged = set()
-        for q, cand in enumerate(tree.query_ball_point(mids, reach)):
-            i = owner[q]
+        for i, cand, dist in _end_midpoint_neighbours(model, earlier_only=True):
             if i in flagged:
                 continue
-            cand = np.asarray([c for c in cand if c < i], dtype=int)
-            if not cand.size:
-                continue
-            t = np.clip(np.sum((mids[q] - a[cand]) * ab[cand], axis=1) / ab2[cand], 0.0, 1.0)
-            dist = np.linalg.norm(a[cand] + t[:, None] * ab[cand] - mids[q], axis=1)
             hit = cand[dist < rad[cand]]
             if hit.size:
                 flagged.add(i)
@@ -235,17 +217,12 @@ def check_model(model: WireModel, max_segment_m: float | None = None) -> list[st
     return problems
 
 
-def fit_radii(model: WireModel, margin: float = 0.9) -> WireModel:
-    """A copy whose wire radii are capped so that no end-segment midpoint lies inside another wire.
-
-    necpp refuses such a model (see :func:`check_model`); where two wires meet at an acute angle (a
-    chamfered corner of a body grid) the equal-area radius of one of them is reduced to ``margin``
-    times the distance to the nearest foreign end-segment midpoint. Other radii are unchanged.
-    """
+def _end_midpoint_neighbours(model: WireModel, earlier_only: bool):
+    """For each end-segment midpoint of each wire (first ends, then last ends): (its wire i, the other
+    wires near it (earlier ones only when ``earlier_only``), its distance to each of their axes, m).
+    Candidates come from a k-d tree of the wire centres (scipy), so large grids check quickly."""
     from scipy.spatial import cKDTree
 
-    if not model.wires:
-        return model
     a = np.array([w.start for w in model.wires])
     b = np.array([w.end for w in model.wires])
     rad = np.array([w.radius_m for w in model.wires])
@@ -253,17 +230,30 @@ def fit_radii(model: WireModel, margin: float = 0.9) -> WireModel:
     ab = b - a
     ab2 = np.maximum(np.sum(ab * ab, axis=1), 1e-30)
     step = ab / nseg[:, None]
-    mids = np.concatenate([a + 0.5 * step, b - 0.5 * step])
+    mids = np.concatenate([a + 0.5 * step, b - 0.5 * step])  # (2N, 3)
     owner = np.concatenate([np.arange(len(a)), np.arange(len(a))])
     reach = 0.5 * float(np.sqrt(ab2.max())) + float(rad.max())
     tree = cKDTree(0.5 * (a + b))
-    new = rad.copy()
     for q, cand in enumerate(tree.query_ball_point(mids, reach)):
-        cand = np.asarray([c for c in cand if c != owner[q]], dtype=int)
+        i = int(owner[q])
+        cand = np.asarray([c for c in cand if (c < i if earlier_only else c != i)], dtype=int)
         if not cand.size:
             continue
         t = np.clip(np.sum((mids[q] - a[cand]) * ab[cand], axis=1) / ab2[cand], 0.0, 1.0)
-        dist = np.linalg.norm(a[cand] + t[:, None] * ab[cand] - mids[q], axis=1)
+        yield i, cand, np.linalg.norm(a[cand] + t[:, None] * ab[cand] - mids[q], axis=1)
+
+
+def fit_radii(model: WireModel, margin: float = 0.9) -> WireModel:
+    """A copy whose wire radii are capped so that no end-segment midpoint lies inside another wire.
+
+    necpp refuses such a model (see :func:`check_model`); where two wires meet at an acute angle (a
+    chamfered corner of a body grid) the equal-area radius of one of them is reduced to ``margin``
+    times the distance to the nearest foreign end-segment midpoint. Other radii are unchanged.
+    """
+    if not model.wires:
+        return model
+    new = np.array([w.radius_m for w in model.wires])
+    for _i, cand, dist in _end_midpoint_neighbours(model, earlier_only=False):
         hit = dist < new[cand]
         new[cand[hit]] = np.minimum(new[cand[hit]], margin * dist[hit])
     wires = [w if new[i] == w.radius_m else Wire(w.start, w.end, w.segments, float(new[i]), w.load_ohm_per_m)
