@@ -14,15 +14,15 @@ core.calibration_fit); the others keep the vehicle's own values. The values appl
 A parameter is one entry of :data:`PARAMETERS`; core.link_terms evaluates the present ones fast (the
 rays and the cabin's diffuse field, core.cavity, for any material losses), and core.calibration_fit
 evaluates any other exactly by building the vehicle with the value (slower, never wrong). The cabin
-contents' absorption (``Body.cabin_absorption_m2``, which sets the cabin's diffuse level) is not fitted
-yet: it would be one more entry, and core.link_terms.Cabin holds what its fast form needs (the
-cross-sections are re-assembled per evaluation).
+contents' absorption (``Body.cabin_absorption_m2``, which sets the cabin's diffuse level, core.cavity) is
+fitted in dB relative to 1 m^2 (dBsm): a cross-section spans orders of magnitude and its prior is a factor.
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
+import math
 import os
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -47,7 +47,8 @@ class Parameter:
     """A fitted model parameter, dB.
 
     ``kind``: "material" (the crossing loss of ``material``), "eirp_offset" (added to the sensor's
-    EIRP) or "null_floor" (the radio's null floor). ``prior_width`` is the standard deviation of the
+    EIRP), "null_floor" (the radio's null floor) or "contents" (the cabin contents' absorption
+    cross-section in dB relative to 1 m^2, dBsm, :func:`contents_db`). ``prior_width`` is the standard deviation of the
     prior around the vehicle's own value (the documented default unless its file overrides it);
     ``lower``, ``upper`` bound the fit (:meth:`bounds`). ``why`` says where the prior and its width come
     from. ``hull_panel``: a material of the body's panels, whose loss also decides whether the panel is an
@@ -74,6 +75,8 @@ class Parameter:
             return 0.0
         if self.kind == "null_floor":
             return float(v.radio.null_floor_db)
+        if self.kind == "contents":
+            return contents_db(v.body.cabin_absorption_m2)
         raise ValueError(f"unknown parameter kind {self.kind!r}")
 
     def bounds(self, v: Vehicle) -> tuple[float, float]:
@@ -93,6 +96,20 @@ class Parameter:
             else:
                 lo = max(lo, OPENING_LOSS_DB)
         return lo, hi
+
+
+#: the smallest contents' absorption a calibration works with, m^2 (an empty cabin's 0 m^2 has no dB value)
+MIN_CONTENTS_M2 = 0.01
+
+
+def contents_db(area_m2: float) -> float:
+    """A contents' absorption cross-section (m^2) in dB relative to 1 m^2, floored at MIN_CONTENTS_M2."""
+    return 10.0 * math.log10(max(float(area_m2), MIN_CONTENTS_M2))
+
+
+def contents_m2(value_db: float) -> float:
+    """The cross-section (m^2) of a value in dB relative to 1 m^2 (:func:`contents_db`)."""
+    return 10.0 ** (float(value_db) / 10.0)
 
 
 #: a hull panel's fitted loss stays this far under the opening threshold when its prior is under it, dB
@@ -121,6 +138,10 @@ PARAMETERS: tuple[Parameter, ...] = (
     Parameter("null_floor_db", "null floor", "null_floor", 10.0, -60.0, -6.0,
               "the radio's null floor, -30 dB engineering default (cross-polar discrimination, scattering); width "
               "10 dB (engineering default)"),
+    Parameter("cabin_absorption_db", "contents absorption (dBsm)", "contents", 6.0, -20.0, 13.0,
+              "the vehicle's cabin_absorption_m2 (0.5 m^2 = -3 dB re 1 m^2 engineering default: two seated occupants "
+              "with their seats, core.cavity.DEFAULT_CONTENTS_M2); width 6 dB, a factor 4 either way, the range the "
+              "sensitivity analysis spans (engineering default); bounds 0.01-20 m^2, the vehicle file's upper limit"),
 )
 PARAMETER_KEYS: tuple[str, ...] = tuple(p.key for p in PARAMETERS)
 _BY_KEY = {p.key: p for p in PARAMETERS}
@@ -142,7 +163,8 @@ def apply_values(v: Vehicle, values: Mapping[str, float], note: str = "calibrate
     Material losses become entries of ``Vehicle.materials`` whose description starts with ``note``
     (and the standard error); the EIRP offset is added to ``radio.sensor.eirp_dbm``, or to
     ``conducted_power_dbm`` when the EIRP is built from it; the null floor replaces
-    ``radio.null_floor_db``. Values are applied to 0.01 dB."""
+    ``radio.null_floor_db``; the contents' absorption (dB re 1 m^2) sets ``body.cabin_absorption_m2``.
+    Values are applied to 0.01 dB."""
     if not values:
         return v
     d = vehicle_to_dict(v)
@@ -162,6 +184,8 @@ def apply_values(v: Vehicle, values: Mapping[str, float], note: str = "calibrate
             radio["sensor"] = sensor
         elif p.kind == "null_floor":
             radio["null_floor_db"] = round(value, 2)
+        elif p.kind == "contents":
+            d["body"] = dict(d["body"], cabin_absorption_m2=contents_m2(round(value, 2)))
     d["materials"] = materials
     return vehicle_from_dict(d, path)
 
@@ -420,6 +444,8 @@ __all__ = [
     "calibration_record",
     "calibration_schema",
     "calibration_warnings",
+    "contents_db",
+    "contents_m2",
     "load_calibration",
     "parameter",
     "parse_calibration",

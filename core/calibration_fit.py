@@ -79,6 +79,7 @@ from core.calibration import (
     HoldOutRecord,
     Parameter,
     apply_values,
+    contents_m2,
 )
 from core.link_terms import LinkTerms, cabin_of
 from core.measurements import MeasurementSet
@@ -219,6 +220,8 @@ class MeasurementModel:
                 kw["eirp_offset_db"] = float(value)
             elif p.kind == "null_floor":
                 kw["null_floor_db"] = float(value)
+            elif p.kind == "contents":
+                kw["contents_m2"] = contents_m2(value)
             else:
                 return None
         return kw

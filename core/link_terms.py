@@ -114,12 +114,14 @@ class Cabin:
             hit = self._legs[m] = (idx, tuple((lp, lp.loss_db.astype(int)) for lp in legs))
         return hit
 
-    def cavity(self, mat: np.ndarray, tread_loss_db: float | None) -> cv.Cavity:
-        """The core.cavity.Cavity with material losses ``mat`` (dB by material number) and the tire tread loss
-        (None: the scene's), assembled by core.cavity.cavity_from as the engine assembles it; the last kept."""
+    def cavity(self, mat: np.ndarray, tread_loss_db: float | None, contents_m2: float | None = None) -> cv.Cavity:
+        """The core.cavity.Cavity with material losses ``mat`` (dB by material number), the tire tread loss and
+        the contents' absorption (m^2; None: the scene's), assembled by core.cavity.cavity_from as the engine
+        assembles it; the last kept."""
         sc = self.scene
         tread = sc.tread_loss_db if tread_loss_db is None else float(tread_loss_db)
-        key = (mat.tobytes(), tread)
+        contents = self.contents_m2 if contents_m2 is None else float(contents_m2)
+        key = (mat.tobytes(), tread, contents)
         if self._last is not None and self._last[0] == key:
             return self._last[1]
         patch_loss = mat[self.patch_material]
@@ -138,7 +140,7 @@ class Cabin:
             if loss_r is not None:
                 loss_r = loss_r + _tire(sc, tread, self.wheel_parts[1])
         cav = cv.cavity_from(self.patches, patch_loss, self.paths, np.arange(len(patch_loss)), loss_d, loss_r,
-                             self.contents_m2, sc.freq_hz, sc.wavelength_m, sc.cavity.input_angles)
+                             contents, sc.freq_hz, sc.wavelength_m, sc.cavity.input_angles)
         self._last = (key, cav)
         return cav
 
@@ -250,25 +252,28 @@ class LinkTerms:
                 loss_r = loss_r + _tire(sc, tread, self.wheel_parts[1])
         return loss_d, loss_r
 
-    def cavity(self, material_loss_db: Mapping[str, float] | None = None, tread_loss_db: float | None = None):
-        """(core.cavity.Cavity, diffuse factor (N,) of the receivers) with these losses, as core.scoring builds
-        them for a vehicle with these values ((None, None) without a cavity)."""
+    def cavity(self, material_loss_db: Mapping[str, float] | None = None, tread_loss_db: float | None = None,
+               contents_m2: float | None = None):
+        """(core.cavity.Cavity, diffuse factor (N,) of the receivers) with these losses and contents' absorption
+        (m^2), as core.scoring builds them for a vehicle with these values ((None, None) without a cavity)."""
         if self.cabin is None:
             return None, None
         mat = self.material_losses(material_loss_db)
-        cav = self.cabin.cavity(mat, tread_loss_db)
+        cav = self.cabin.cavity(mat, tread_loss_db, contents_m2)
         wall = cv.combine_wall_factors(self.wall, mat[self.wall_material])
         return cav, cv.diffuse_factor(self.inside, wall, cav.sigma_total_m2, self.scene.receiver_pattern == "dipole")
 
     def levels_dbm(self, material_loss_db: Mapping[str, float] | None = None, tread_loss_db: float | None = None,
-                   null_floor_db: float | None = None, eirp_offset_db: float = 0.0) -> np.ndarray:
-        """Received level of every link, dBm (the scene's values where an argument is None)."""
+                   null_floor_db: float | None = None, eirp_offset_db: float = 0.0,
+                   contents_m2: float | None = None) -> np.ndarray:
+        """Received level of every link, dBm (the scene's values where an argument is None; ``contents_m2`` the
+        cabin contents' absorption, m^2)."""
         loss_d, loss_r = self.ray_losses(material_loss_db, tread_loss_db)
         floor = self.scene.null_floor_db if null_floor_db is None else float(null_floor_db)
         r = self.rays
         rays = replace(r, direct=Ray(r.direct.d, r.direct.c, loss_d), floor_ratio=10.0 ** (floor / 10.0),
                        road=None if r.road is None else Ray(r.road.d, r.road.c, loss_r))
-        cav, factor = self.cavity(material_loss_db, tread_loss_db)
+        cav, factor = self.cavity(material_loss_db, tread_loss_db, contents_m2)
         scene = self.scene if cav is None else replace(self.scene, cavity=cav)
         f = with_cavity(scene, rays.field(), self.wheel, self.theta, self.spots, self.axes, factor)
         return level_dbm(self.scene, f.power()) + eirp_offset_db

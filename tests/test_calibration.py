@@ -23,6 +23,7 @@ from core.calibration import (
     apply_calibration,
     apply_values,
     calibration_schema,
+    contents_m2,
     load_calibration,
     parse_calibration,
     save_calibration,
@@ -43,7 +44,7 @@ REPO = Path(__file__).resolve().parents[1]
 NOISE_DB = 2.0
 #: the known offsets from the vehicle's own values (dB) the synthetic measurements are made with
 OFFSETS = {"metal_loss_db": 5.0, "glass_loss_db": 3.0, "plastic_loss_db": 2.0, "tread_loss_db": 4.0,
-           "sensor_eirp_offset_db": -3.0, "null_floor_db": 6.0}
+           "sensor_eirp_offset_db": -3.0, "null_floor_db": 6.0, "cabin_absorption_db": 3.0}
 WITHOUT_TREAD = tuple(p for p in PARAMETERS if p.key != "tread_loss_db")
 
 
@@ -101,9 +102,9 @@ def assert_recovered(fit, x_true) -> None:
 #: conducting wall (fewer openings, other tau, sigma_leak, wall area and wall factors)
 OTHER_VALUES = (
     {"metal_loss_db": 27.0, "glass_loss_db": 5.0, "plastic_loss_db": 1.5, "tread_loss_db": 14.0,
-     "sensor_eirp_offset_db": 2.5, "null_floor_db": -22.0},
+     "sensor_eirp_offset_db": 2.5, "null_floor_db": -22.0, "cabin_absorption_db": 1.0},
     {"metal_loss_db": 8.0, "glass_loss_db": 12.0, "plastic_loss_db": 0.5, "tread_loss_db": 6.0,
-     "sensor_eirp_offset_db": -1.0, "null_floor_db": -35.0},
+     "sensor_eirp_offset_db": -1.0, "null_floor_db": -35.0, "cabin_absorption_db": -12.0},
 )
 
 
@@ -135,11 +136,12 @@ def test_fast_links_equal_the_engine_at_other_parameter_values(which, wheel_mode
     for values in OTHER_VALUES:
         changed = Scene.from_vehicle(apply_values(v, values))  # the vehicle built with the values, as a file would be
         fast = terms.levels_dbm({m: values[f"{m}_loss_db"] for m in ("metal", "glass", "plastic")},
-                                values["tread_loss_db"], values["null_floor_db"], values["sensor_eirp_offset_db"])
+                                values["tread_loss_db"], values["null_floor_db"], values["sensor_eirp_offset_db"],
+                                contents_m2(values["cabin_absorption_db"]))
         np.testing.assert_allclose(fast, engine(changed), rtol=0, atol=1e-9)
         # the cavity itself: the same openings, cross-sections and input as core.scoring's
         cav, _ = terms.cavity({m: values[f"{m}_loss_db"] for m in ("metal", "glass", "plastic")},
-                              values["tread_loss_db"])
+                              values["tread_loss_db"], contents_m2(values["cabin_absorption_db"]))
         assert len(cav.tau) == len(changed.cavity.tau)
         assert cav.sigma_total_m2 == pytest.approx(changed.cavity.sigma_total_m2, rel=1e-12)
         np.testing.assert_allclose(cav.input, changed.cavity.input, rtol=1e-12, atol=0)
@@ -304,8 +306,10 @@ def test_calibration_file_round_trip_and_apply(demo_run, tmp_path):
     assert load_calibration(path) == cal
     jsonschema.validate(json.loads(path.read_text()), calibration_schema())
     applied = cal.applied_values()
-    assert set(applied) == {"metal_loss_db", "glass_loss_db", "plastic_loss_db", "sensor_eirp_offset_db"}
+    assert set(applied) == {"metal_loss_db", "glass_loss_db", "plastic_loss_db", "sensor_eirp_offset_db",
+                            "cabin_absorption_db"}
     v2 = apply_calibration(v, cal)
+    assert v2.body.cabin_absorption_m2 == pytest.approx(10 ** (applied["cabin_absorption_db"] / 10), rel=0.0024)
     assert v2.materials["metal"].loss_db == pytest.approx(applied["metal_loss_db"], abs=0.005)
     assert v2.materials["metal"].description.startswith("calibrated from 1,088 measurements")
     assert v2.radio.sensor.eirp_dbm == pytest.approx(v.radio.sensor.eirp_dbm + applied["sensor_eirp_offset_db"],

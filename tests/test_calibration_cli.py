@@ -118,7 +118,8 @@ def test_rank_with_the_calibration_records_it_and_reproduces(cal_file, capsys):
     doc = json.loads(capsys.readouterr().out)
     rec = doc["setup"]["overrides"]["calibration"]
     assert rec["file"] == str(cal_file) and len(rec["sha256"]) == 64
-    assert set(rec["values"]) == {"metal_loss_db", "glass_loss_db", "plastic_loss_db", "sensor_eirp_offset_db"}
+    assert set(rec["values"]) == {"metal_loss_db", "glass_loss_db", "plastic_loss_db", "sensor_eirp_offset_db",
+                                  "cabin_absorption_db"}
     assert rec["note"].startswith("calibrated from 1,088 measurements, hold-out RMS")
     # the record re-applies the same values: the numbers come back from the setup alone
     v = prov.vehicle_from_setup(json.loads(json.dumps(doc["setup"])))

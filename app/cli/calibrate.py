@@ -52,10 +52,11 @@ def _cmd_calibrate(args) -> int:
           f"wheel angles, {s['without_angle']:,} without; {len(s['spots'])} spots, {len(s['wheels'])} wheels, "
           f"{freqs} MHz)")
     print(f"wheel model: {cal.model['wheel_model']}; road reflection {'on' if cal.model['ground_reflection'] else 'off'}")
-    print(f"{'parameter':<22} {'prior dB':>9} {'width':>6} {'fitted dB':>10} {'s.e.':>6} {'change':>7}  status")
+    lw = max([len("parameter")] + [len(p.label) for p in cal.parameters])
+    print(f"{'parameter':<{lw}} {'prior dB':>9} {'width':>6} {'fitted dB':>10} {'s.e.':>6} {'change':>7}  status")
     for p in cal.parameters:
         status = p.status(cal.labels())
-        print(f"{p.label:<22} {p.prior_db:9.2f} {p.prior_width_db:6.1f} {p.value_db:10.2f} {p.standard_error_db:6.2f} "
+        print(f"{p.label:<{lw}} {p.prior_db:9.2f} {p.prior_width_db:6.1f} {p.value_db:10.2f} {p.standard_error_db:6.2f} "
               f"{p.value_db - p.prior_db:+7.2f}  {status}")
     f = cal.fit
     print(f"residual RMS: {f.rms_before_db:.2f} dB uncalibrated, {f.rms_after_db:.2f} dB calibrated; noise scale "
