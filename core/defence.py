@@ -15,6 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from core.budget import LinkBudget, spot_budgets
+from core.scoring import tie_note
 from core.sensitivity import DEFAULT_DRAWS, DEFAULT_SEED, SpotSensitivity, TornadoBar, UncertainInput, analyse_scores
 
 
@@ -131,6 +132,7 @@ class Verdict:
     candidates: int
     passing: int
     more_robust: tuple[str, float, float] | None  # (spot, margin, P(pass)) of a passing spot with a clearly higher P
+    not_ranked_apart: str = ""  # core.scoring.tie_note of the spots within the rank resolution of this one
 
     @property
     def meets(self) -> bool:
@@ -154,6 +156,8 @@ class Verdict:
                f"deg of its turn. {self.passing} of {self.candidates} candidate spots meet the requirement."),
                (f"P(pass): the share of {self.draws} Monte-Carlo draws of the uncertain inputs (ranges and sources in "
                f"the report) in which the margin stays at or above 0 dB.")]
+        if self.not_ranked_apart:
+            out.append("Not ranked apart: " + self.not_ranked_apart)
         if self.top:
             parts = [f"{b.label} ({_range_words(b)}: margin {min(b.margin_low_db, b.margin_high_db):+.1f} to "
                      f"{max(b.margin_low_db, b.margin_high_db):+.1f} dB)" for b in self.top]
@@ -198,4 +202,5 @@ def verdict(scores, defence: Defence, axes, placement=None) -> Verdict:
         worst_wheel=scores.wheel_ids[w], worst_angle_deg=float(scores.worst_angle_deg[b, w]),
         worst_dbm=float(scores.worst_dbm[b, w]), p_pass=case.p_pass, draws=case.sensitivity.draws,
         top=tuple(case.sensitivity.most_sensitive(2)), measure_first=case.measure_first, candidates=len(cand),
-        passing=len(passing), more_robust=robust)
+        passing=len(passing), more_robust=robust,
+        not_ranked_apart=tie_note(scores, scores.tied_with_best(None if placement is None else placement.candidate)))

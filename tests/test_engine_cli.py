@@ -36,7 +36,8 @@ BAR_KEYS = {"input", "label", "nominal", "low", "high", "margin_at_low_db", "mar
 INPUT_KEYS = {"input", "label", "nominal", "range", "distribution", "source", "effect"}
 PLACEMENT_KEYS = {"status", "distance_to_surface_m", "wheelhouse_of", "message"}
 TOP_KEYS = {"radio_limit", "vehicle", "body_style", "frequency_hz", "sensitivity_dbm", "required_margin_db",
-            "angles_deg", "sensitivity_method", "uncertain_inputs", "spots", "setup", "caution"}
+            "angles_deg", "sensitivity_method", "uncertain_inputs", "rank_resolution_db", "not_ranked_apart", "spots",
+            "setup", "caution"}
 
 
 def _rank_json(capsys, *extra) -> dict:
@@ -56,6 +57,10 @@ def test_rank_json_matches_the_engine(capsys):
     assert [d["name"] for d in doc["spots"]] == [s.names[i] for i in s.order()]
     margins = [d["margin_db"] for d in doc["spots"]]
     assert margins == sorted(margins, reverse=True)
+    # the spots not ranked apart: the best receiver position and every candidate within the resolution
+    cand = [d for d in doc["spots"] if d["placement"]["status"] in ("inside", "near_surface")] or doc["spots"]
+    best = cand[0]["margin_db"]
+    assert doc["not_ranked_apart"] == [d["name"] for d in cand if d["margin_db"] >= best - doc["rank_resolution_db"]]
     for d in doc["spots"]:
         assert set(d) == SPOT_KEYS
         i = s.names.index(d["name"])

@@ -12,7 +12,16 @@ from shapely.geometry import Point, Polygon
 
 from core.burst import START_ANGLES, burst_for_spot, burst_success
 from core.distinctness import wheel_distinctness
-from core.scoring import Cancelled, Scene, grid_for_region, heatmap, score_levels, score_spots, score_vehicle
+from core.scoring import (
+    Cancelled,
+    Scene,
+    grid_for_region,
+    heatmap,
+    score_levels,
+    score_spots,
+    score_vehicle,
+    tie_note,
+)
 from core.vehicle import Region
 from engine_vehicles import sedan
 
@@ -170,6 +179,20 @@ def test_order_sorts_by_margin_then_worst_wheel_median():
     assert list(s.worst_wheel[[0, 2, 3]]) == [2, 1, 3]
     assert s.worst_angle_deg[0, 2] == pytest.approx(50.0) and s.worst_angle_deg[2, 1] == pytest.approx(200.0)
     assert list(s.order()) == [1, 2, 0, 3]
+
+
+def test_spots_within_the_rank_resolution_are_not_ranked_apart():
+    # Same hand-made levels: worst cases -95 (b), -100 (c: median -88), -100 (a), -110 (d) dBm. With the
+    # default 4.5 dB resolution the best stands alone; with 5 dB, b, c and a (within 5 dB of -95) go together,
+    # in rank order; d (15 dB down) never does. Excluding the best as a candidate moves the group down.
+    scene = Scene.from_vehicle(sedan(), wheel_model="knife_edge")
+    s = score_levels(scene, _hand_levels(scene), names=["a", "b", "c", "d"])
+    assert s.tied_with_best() == [1] and tie_note(s, [1]) == ""
+    assert s.tied_with_best(resolution_db=5.0) == [1, 2, 0]
+    assert s.tied_with_best(np.array([True, False, True, True]), resolution_db=5.0) == [2, 0]
+    assert s.tied_with_best(np.zeros(4, bool)) == [1]  # no candidate at all: every spot counts
+    note = tie_note(s, [1, 2, 0])
+    assert note.startswith("3 spots lie within 4.5 dB of the best margin ('b', 'c', 'a': ") and "docs/VALIDATION.md" in note
 
 
 def test_percentile_worst_case_is_not_below_the_minimum():

@@ -64,3 +64,14 @@ def test_cabin_level_agrees_with_the_full_wave_reference(body, config):
 @pytest.mark.parametrize("body, config", BODIES)
 def test_cabin_spot_ranking_agrees_with_the_full_wave_reference(body, config):
     assert _agreement(body, config)["rho"] >= 0.8
+
+
+@pytest.mark.parametrize("body, config", BODIES)
+def test_rank_resolution_covers_the_measured_disagreement(body, config):
+    """Outputs call spots within core.scoring.RANK_RESOLUTION_DB of the best "not ranked apart"; the rule must
+    cover the uncertainty of a difference of two spots' levels, each off by the engine's measured RMS
+    disagreement with the reference after the offset (sqrt(2) x RMS for independent errors), or it would claim
+    a resolution the model does not have."""
+    from core.scoring import RANK_RESOLUTION_DB
+
+    assert np.sqrt(2.0) * _agreement(body, config)["rms_db"] <= RANK_RESOLUTION_DB

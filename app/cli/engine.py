@@ -93,7 +93,7 @@ def _show_progress(args) -> bool:
 def _cmd_rank(args) -> int:
     from core.defence import defend
     from core.regulatory import check_sensor_eirp
-    from core.scoring import Scene, score_vehicle, vehicle_spot_arrays
+    from core.scoring import Scene, score_vehicle, tie_note, vehicle_spot_arrays
 
     v, source, overrides = _load_with_spots(args)
     if not v.spots:
@@ -145,6 +145,9 @@ def _cmd_rank(args) -> int:
               f"{100 * p:6.0f}%  {scores.wheel_ids[w]:<11} {scores.worst_angle_deg[i, w]:6.0f}  {flag}")
     for i, msg in placement.messages():
         print(f"warning: spots[{i}] {scores.names[i]!r}: {msg}")
+    note = tie_note(scores, scores.tied_with_best(placement.candidate))
+    if note:
+        print(f"not ranked apart: {note}")
     print(f"P(pass): share of {defence.cases[0].sensitivity.draws} Monte-Carlo draws of the uncertain inputs with "
           f"margin >= 0 dB; the inputs, ranges and a spot's link budget: rank FILE --explain SPOT")
     print_safety_note()

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from core.regulatory import check_sensor_eirp
-from core.scoring import vehicle_spot_arrays
+from core.scoring import RANK_RESOLUTION_DB, vehicle_spot_arrays
 
 
 def rank_document(v, scores, setup: dict | None = None, placement=None, defence=None) -> dict:
@@ -72,6 +72,8 @@ def rank_document(v, scores, setup: dict | None = None, placement=None, defence=
         "angles_deg": [round(float(a), 4) for a in scores.angles_deg],
         "sensitivity_method": defence.method,
         "uncertain_inputs": defence.inputs_dict(),
+        "rank_resolution_db": RANK_RESOLUTION_DB,
+        "not_ranked_apart": [scores.names[i] for i in scores.tied_with_best(placement.candidate)],
         "spots": spots,
     }
     if setup is not None:
