@@ -34,6 +34,11 @@ from core.wheel import WheelGeometry, sensor_axes, sensor_positions
 #: is uncertain by about sqrt(2) x 3.0 = 4.3 dB: rounded up to 4.5 dB. An engineering rule from our own
 #: validation (tests/test_fullwave_agreement.py keeps it covering the measured disagreement).
 RANK_RESOLUTION_DB = 4.5
+#: the engine against the whole-vehicle full-wave reference (sedan, hatchback, SUV at their bands, no road,
+#: mean level; docs/VALIDATION.md): lowest and highest RMS after one mean offset per body, and lowest and
+#: highest offset (reference - engine), dB; tests/test_fullwave_agreement.py recomputes them
+FULLWAVE_RMS_RANGE_DB = (1.75, 3.01)
+FULLWAVE_OFFSET_RANGE_DB = (-4.9, -1.2)
 
 #: links per work chunk: bounds memory (about 2 kB per link in flight) and sets cancel latency
 CHUNK_LINKS = 12_000
@@ -363,7 +368,8 @@ def tie_note(scores: SpotScores, tied: list[int], max_names: int = 6) -> str:
     high = float(scores.margin_db[tied[0]])
     return (f"{len(tied)} spots lie within {RANK_RESOLUTION_DB:g} dB of the best margin ({', '.join(names)}{more}: "
             f"{low:+.1f} to {high:+.1f} dB): closer than the model resolves (its cabin levels agree with a "
-            f"whole-vehicle full-wave reference to 1.8-3.0 dB RMS, docs/VALIDATION.md). Treat them as equal, choose "
+            f"whole-vehicle full-wave reference to {FULLWAVE_RMS_RANGE_DB[0]:.1f}-{FULLWAVE_RMS_RANGE_DB[1]:.1f} dB "
+            f"RMS, docs/VALIDATION.md). Treat them as equal, choose "
             f"among them by packaging, and confirm the choice by full-wave simulation and measurement.")
 
 

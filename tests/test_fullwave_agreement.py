@@ -75,3 +75,17 @@ def test_rank_resolution_covers_the_measured_disagreement(body, config):
     from core.scoring import RANK_RESOLUTION_DB
 
     assert np.sqrt(2.0) * _agreement(body, config)["rms_db"] <= RANK_RESOLUTION_DB
+
+
+def test_the_stated_agreement_figures_are_the_measured_ones():
+    """core.scoring states the RMS and offset ranges in every report's limits (core.model_limits) and in the
+    "not ranked apart" note: they must be what this comparison measures (to their 0.05 dB rounding)."""
+    from core.scoring import FULLWAVE_OFFSET_RANGE_DB, FULLWAVE_RMS_RANGE_DB
+
+    found = [_agreement(body, config) for body, config in BODIES]
+    rms = [a["rms_db"] for a in found]
+    off = [a["offset_db"] for a in found]
+    assert min(rms) == pytest.approx(FULLWAVE_RMS_RANGE_DB[0], abs=0.05)
+    assert max(rms) == pytest.approx(FULLWAVE_RMS_RANGE_DB[1], abs=0.05)
+    assert min(off) == pytest.approx(FULLWAVE_OFFSET_RANGE_DB[0], abs=0.05)
+    assert max(off) == pytest.approx(FULLWAVE_OFFSET_RANGE_DB[1], abs=0.05)

@@ -71,6 +71,31 @@ def test_report_is_a_pdf_with_title_hash_spots_margin_and_caution(reports, path)
 
 
 @pytest.mark.parametrize("path", SAMPLES, ids=lambda p: p.stem)
+def test_report_states_the_method_and_limits_of_the_model(reports, path):
+    # core.model_limits: the setup's own method (its worst-case statistic, wheel model) and every limit, with the
+    # validation figures of core.scoring (checked against the stored full-wave reference in
+    # tests/test_fullwave_agreement.py), and which spots are not ranked apart on page 1
+    from core.model_limits import limits, method_text
+    from core.scoring import RANK_RESOLUTION_DB, Scene, score_vehicle, tie_note
+    from core.placement import classify
+
+    def norm(t: str) -> str:  # a line may break after a hyphen ("knife- edge" in the extracted text)
+        return _words(t).replace("- ", "-")
+
+    text = norm(reports[path.stem]["text"])
+    v = load_vehicle(path)
+    scene = Scene.from_vehicle(v)
+    assert norm(method_text(scene)) in text
+    for title, sentence in limits(scene):
+        assert norm(f"{title}. {sentence}") in text, title
+    assert f"Spots within {RANK_RESOLUTION_DB:g} dB of each other are not ranked apart" in text
+    scores = score_vehicle(v, scene)
+    note = tie_note(scores, scores.tied_with_best(classify(scene, scores.positions).candidate))
+    if note:
+        assert norm("Not ranked apart: " + note) in text
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=lambda p: p.stem)
 def test_json_and_csv_equal_the_engine(reports, path):
     r = reports[path.stem]
     v = load_vehicle(path)

@@ -583,12 +583,10 @@ def _defence_of_spot(f: Flow, d: ReportData, det) -> None:
 
 
 def _closing(f: Flow, d: ReportData) -> None:
-    f.html("<h2>Method and limits</h2><p>Received level per wheel and wheel angle: sensor EIRP + antenna pattern "
-           "and polarization terms + receiver gain &minus; free-space loss (Friis, ITU-R P.525) &minus; wheel "
-           "shadowing &minus; body crossings (2.5-D hull; per-panel crossing loss weighed against the dominant "
-           "edge's ITU-R P.526 knife-edge loss) with an optional two-ray road reflection (Fresnel coefficient, "
-           "ITU-R P.2040 material parameters). The worst case over one turn sets the margin; the spot margin is its "
-           "worst wheel's.</p>"
+    from core.model_limits import limits, method_text
+
+    items = "".join(f"<li><b>{esc(title)}.</b> {esc(text)}</li>" for title, text in limits(d.scene))
+    f.html(f"<h2>Method and limits</h2><p>{esc(method_text(d.scene))}</p><p><b>Limits of the model</b></p><ul>{items}</ul>"
            f"<p>Data export: the same numbers are available as CSV and JSON from <span class='mono'>wheelreach report "
            f"FILE -o OUT.pdf --csv OUT.csv --json OUT.json</span> (heatmap cells of {d.step_m * 1000:.0f} mm).</p>",
            6, keep=80 * S)
