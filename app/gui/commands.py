@@ -205,10 +205,11 @@ def import_measurements(doc: Document, ui) -> None:
 
 
 def compare_bodies(doc: Document, ui) -> None:
-    """Tools > Compare bodies: one spot for several body styles, starting with this file."""
+    """Tools > Compare bodies: one spot for several body styles, starting with the open document as edited."""
     from app.gui.compare_window import open_compare_window
 
-    ui.compare_window = open_compare_window(ui, [str(doc.path)] if doc.path else None)
+    saved = str(doc.path) if doc.path and not doc.modified else None
+    ui.compare_window = open_compare_window(ui, document=(doc.vehicle, saved))
 
 
 def confirm_fullwave(doc: Document, ui) -> None:

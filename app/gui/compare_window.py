@@ -194,6 +194,19 @@ class CompareWindow(QMainWindow):
         self._drop_search()
         self.recompute()
 
+    def add_document(self, v: Vehicle, path: str | None = None) -> None:
+        """Add a vehicle as it is in memory (the open document, with its unsaved edits): ``path`` only when it
+        equals its saved file (the PDF then names and hashes the file; else "unsaved document" and the hash
+        of its canonical JSON)."""
+        if path and str(path) in self.paths:
+            return
+        self.paths.append(str(path) if path else "")
+        self.vehicles.append(v)
+        self.scenes.append(Scene.from_vehicle(v))
+        self.search = None
+        self._drop_search()
+        self.recompute()
+
     def clear(self):
         self.paths, self.vehicles, self.scenes = [], [], []
         self.comparison, self.search, self._selected = None, None, -1
@@ -313,7 +326,8 @@ class CompareWindow(QMainWindow):
             labs = [str(order.index(i) + 1) for i in present]
             hl = present.tolist().index(ring) if ring in present else -1
             sq = self.search.best_positions_m[b][:2] if self.search is not None else None
-            t.set_content(v, c.positions_m[present, b], labs, hl, f"{labels[b]}: {v.name}", span, sq)
+            unsaved = "" if self.paths[b] else " (open document, as edited)"
+            t.set_content(v, c.positions_m[present, b], labs, hl, f"{labels[b]}: {v.name}{unsaved}", span, sq)
 
     def _update_summary(self):
         c = self.comparison
@@ -356,9 +370,12 @@ class CompareWindow(QMainWindow):
         super().closeEvent(event)
 
 
-def open_compare_window(parent=None, paths=None) -> CompareWindow:
-    """Open the comparison window (optionally with files loaded) and return it."""
+def open_compare_window(parent=None, paths=None, document: tuple[Vehicle, str | None] | None = None) -> CompareWindow:
+    """Open the comparison window (optionally with files loaded, and with an open document as it is in memory:
+    (vehicle, its file when saved unchanged or None); see :meth:`CompareWindow.add_document`) and return it."""
     w = CompareWindow(parent)  # a QMainWindow is a top-level window even with a parent
+    if document is not None:
+        w.add_document(*document)
     if paths:
         w.add_paths(paths)
     w.show()

@@ -12,7 +12,8 @@ import numpy as np
 from app.caution import SAFETY_NOTE
 from app.report.data import CAUTION, file_sha256, program_version
 from core.compare import CommonSearch, Comparison, names_at_several_places, recommend
-from core.vehicle import read_vehicle_bytes
+from core.provenance import vehicle_source
+from core.vehicle import read_vehicle_bytes, vehicle_to_json
 
 
 def _short(style: str, k: int) -> str:
@@ -166,7 +167,8 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
     from app.report.pdf import S, esc, render_pdf_atomic
 
     now = datetime.now(UTC).astimezone()
-    hashes = [file_sha256(read_vehicle_bytes(p)) if p else "" for p in paths]
+    hashes = [file_sha256(read_vehicle_bytes(p)) if p else vehicle_source(None, vehicle_to_json(v).encode("utf-8"))["sha256"]
+              for v, p in zip(vehicles, paths)]
     labels = body_labels(c)
     best = c.common_best
 

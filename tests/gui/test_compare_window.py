@@ -8,6 +8,7 @@ from pathlib import Path
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
+import pytest
 from PySide6.QtCore import Qt
 
 from app.gui.compare_window import COMMON_ROW, CompareWindow, open_compare_window
@@ -60,3 +61,41 @@ def test_search_runs_in_a_worker_and_marks_every_body(qtbot):
     assert all(t.square is not None for t in w.thumbs)
     assert "Searched best position" in w.summary.text()
     assert w.table.item(0, 0).flags() & Qt.ItemFlag.ItemIsEditable == Qt.ItemFlag.NoItemFlags
+
+
+def test_compare_from_the_window_uses_the_open_document_as_edited(window, qtbot, tmp_path):
+    """Tools > Compare bodies compares the document in memory (issue 14: it read the saved file): a spot moved
+    and not saved is compared where it now is, and the PDF names it an unsaved document with the hash of its
+    canonical JSON (core.provenance.vehicle_source)."""
+    import pypdf
+
+    from app.gui import commands, edits
+    from core.provenance import vehicle_source
+    from core.vehicle import vehicle_to_json
+
+    doc = window.doc
+    name = doc.vehicle.spots[0].name
+    commands.compare_bodies(doc, window)
+    w = window.compare_window
+    qtbot.addWidget(w)
+    assert w.paths == [str(doc.path)]  # unchanged: the file itself, named and hashed as a file
+    saved_margin = float(w.comparison.margin_db[w.comparison.spot_names.index(name), 0])
+    w.close()
+
+    doc.apply(lambda v: edits.move_spot(v, name, (-2.6, 0.0, 0.45)), "move")
+    commands.compare_bodies(doc, window)
+    w = window.compare_window
+    qtbot.addWidget(w)
+    assert w.paths == [""] and w.vehicles[0] is doc.vehicle
+    c = w.comparison
+    moved = float(c.margin_db[c.spot_names.index(name), 0])
+    spot = next(sp for sp in w.vehicles[0].spots if sp.name == name)
+    assert (spot.x_m, spot.y_m, spot.z_m) == (-2.6, 0.0, 0.45) and moved != saved_margin
+    qtbot.waitUntil(lambda: not doc.scoring, timeout=60_000)  # the window's own scores of the edited document
+    assert moved == pytest.approx(float(doc.scores.margin_db[doc.scores.names.index(name)]), abs=1e-6)
+    out = tmp_path / "cmp.pdf"
+    assert w.export_pdf(str(out)) >= 1
+    text = " ".join(" ".join(p.extract_text() for p in pypdf.PdfReader(str(out)).pages).split())
+    assert "unsaved document" in text
+    # the hash may break over two lines of its table cell
+    assert vehicle_source(None, vehicle_to_json(doc.vehicle).encode("utf-8"))["sha256"] in text.replace(" ", "")
