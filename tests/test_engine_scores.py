@@ -263,3 +263,33 @@ def test_heatmap_cancel_raises_before_the_next_chunk(small_scene):
     with pytest.raises(Cancelled):
         heatmap(small_scene, region, 0.2, progress=lambda d, t: calls.append(d), cancel=lambda: True)
     assert calls == []
+
+
+@pytest.mark.parametrize("n_angles", [72, 90, 360])
+def test_burst_on_the_start_grid_equals_general_interpolation(n_angles, monkeypatch):
+    # The burst's shortcut when the level's angles are start angles (core.burst._best_frames: linear
+    # interpolation between start angles, which is exact there) against np.interp on the level's own
+    # angles for every frame (the general path): same linear interpolation, so equal to round-off.
+    from core import burst
+
+    rng = np.random.default_rng(11)
+    a = _angles(n_angles)
+    levels = -95 + 12 * np.sin(a[None, :] + np.array([[0.0], [1.3]])) + rng.normal(0, 3, (2, n_angles))
+    speeds = np.linspace(0.0, 20.0, 97)
+    radius = np.array([R_M, 1.1 * R_M])
+    assert burst._on_start_grid(a, START_ANGLES)
+    fast = burst_success(levels, a, -88.0, 3, DT_S, speeds, radius)
+    monkeypatch.setattr(burst, "_on_start_grid", lambda _a, _t: False)
+    general = burst_success(levels, a, -88.0, 3, DT_S, speeds, radius)
+    np.testing.assert_allclose(fast.margin_db, general.margin_db, atol=1e-9)
+    np.testing.assert_allclose(fast.success, general.success, atol=1.0 / START_ANGLES + 1e-12)
+    assert np.mean(fast.success == general.success) > 0.99
+    assert 0.05 < float(general.success.mean()) < 0.95  # the threshold cuts the turn: the test can fail
+
+
+def test_burst_off_the_start_grid_takes_the_general_path():
+    # 7 angles per turn are not start angles (720 / 7 is not whole): the shortcut must not apply
+    from core import burst
+
+    assert not burst._on_start_grid(_angles(7), START_ANGLES)
+    assert not burst._on_start_grid(_angles(72) + 0.01, START_ANGLES)

@@ -12,7 +12,11 @@ In one process and one run, after a warm-up, it measures (medians of several rep
   (numpy reports its buffers to tracemalloc), measured in separate untimed runs;
 - cost growth: one run each for grids of 600, 2,400 and 9,600 spots;
 - defence analysis (issue 13): scoring 10 spots and core.defence.defend of them (link budgets by term,
-  tornado, Monte-Carlo P(pass)), median time and its ratio to the heatmap of the same run.
+  tornado, Monte-Carlo P(pass)), median time and its ratio to the heatmap of the same run;
+- desktop program (issue 14, when PySide6 is importable; ``--no-desktop`` skips it): the real window
+  built offscreen; one drag step of a spot until its live margin is shown and the drop until the
+  window is idle again (app.gui.drag_timing), medians, each as a ratio to the engine's single-spot
+  time of the same spot measured in the same run, against the limits 3x and 5x.
 
 One line per figure, then the summary line
 ``heatmap_s=<x> spot_ms=<y> speedup=<z> links_per_s=<w> peak_mib=<m>``.
@@ -261,6 +265,70 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
     }
 
 
+#: limits of issue 14 item 4: a drag step and a drop as multiples of the engine's single-spot time
+DRAG_LIMIT = 3.0
+DROP_LIMIT = 5.0
+
+
+def desktop_figures(path, repeats: int, out=print) -> dict | None:
+    """Drag step and drop of the selected spot in the real window (offscreen), against the engine's
+    single-spot time of that spot in the same run; None when PySide6 is not importable."""
+    try:
+        import PySide6  # noqa: F401
+    except ImportError:
+        out("desktop program: not benched (PySide6 is not installed)")
+        return None
+    import tempfile
+
+    from PySide6.QtCore import QSettings
+    from PySide6.QtWidgets import QApplication
+
+    app = QApplication.instance()
+    if app is None:
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"  # never opens a window on the user's screen
+        app = QApplication([sys.argv[0]])
+    from app.gui import tasks
+    from app.gui.document import Document
+    from app.gui.drag_timing import median_ms, settle, time_drag_and_drop
+    from app.gui.window import MainWindow
+    from core.scoring import score_spots
+
+    with tempfile.TemporaryDirectory(prefix="wheelreach-bench-") as tmp:
+        settings = QSettings(os.path.join(tmp, "settings.ini"), QSettings.Format.IniFormat)
+        settings.setValue("recovery_folder", os.path.join(tmp, "recovery"))
+        doc = Document(load_vehicle(path), path)
+        win = MainWindow(doc, settings=settings, autosave=False)
+        win.ranking.heatmap.auto.setChecked(False)
+        win.resize(1600, 1000)
+        win.show()
+        try:
+            settle(win)
+            time_drag_and_drop(win, 1)  # warm-up: first paints, caches
+            name = doc.selected
+            spot = doc.scores.positions[doc.spot_row(name)][None, :]
+            axis = doc._spot_axis(name)
+            n_spot = 5 if repeats <= 1 else 30
+            for _ in range(3):
+                score_spots(doc.scene, spot, axis)
+            spot_s, _, _ = _median_time(lambda: score_spots(doc.scene, spot, axis), n_spot)
+            steps, drops, name = time_drag_and_drop(win, max(3, repeats))
+        finally:
+            win.ranking.heatmap.abandon()
+            doc.undo_stack.setClean()
+            win.close()
+            tasks.shutdown(30.0)
+            app.processEvents()
+    step_ms, drop_ms, spot_ms = median_ms(steps), median_ms(drops), spot_s * 1e3
+    out(f"desktop program: {doc.vehicle.name}, spot {name!r}, wheel model {doc.scene.wheel_model_label}, "
+        f"window 1600 x 1000 ({app.platformName()} platform)")
+    out(f"desktop engine single spot: {spot_ms:.2f} ms (median of {n_spot}; the dragged spot, its own axis)")
+    out(f"desktop drag step: {step_ms:.2f} ms (median of {len(steps)}) = {step_ms / spot_ms:.2f} x the single spot "
+        f"(limit {DRAG_LIMIT:.0f} x)")
+    out(f"desktop drop: {drop_ms:.2f} ms (median of {len(drops)}) = {drop_ms / spot_ms:.2f} x the single spot "
+        f"(limit {DROP_LIMIT:.0f} x)")
+    return {"spot_ms": spot_ms, "drag_ms": step_ms, "drop_ms": drop_ms}
+
+
 def summary_line(fig: dict) -> str:
     sp = "n/a" if fig["speedup"] is None else f"{fig['speedup']:.0f}"
     return (f"heatmap_s={fig['heatmap_s']:.3f} spot_ms={fig['spot_ms']:.2f} speedup={sp} "
@@ -306,6 +374,8 @@ def _cmd_bench(args) -> int:
     if not figures:
         print("error: nothing to bench", file=sys.stderr)
         return 1
+    if not args.no_desktop:
+        desktop_figures(path, repeats)
     for name, fig in figures[1:]:
         print(f"{name}: {summary_line(fig)}")
     print(f"{figures[0][0]}: see the summary line below")
@@ -322,5 +392,7 @@ def register(sub) -> None:
     b.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern", "both"],
                    help="wheel model to bench (default: both; the summary line is the knife-edge model's, "
                         "which the scalar reference covers)")
+    b.add_argument("--no-desktop", action="store_true",
+                   help="skip the desktop program's drag and drop timings (they build the window offscreen)")
     add_progress_options(b)
     b.set_defaults(func=_cmd_bench)

@@ -533,6 +533,7 @@ class SpotFigures(QWidget):
         self.burst_result = None
         self.distinctness = None
         self._burst_task: Task | None = None
+        self._levels_drawn = None  # (spot name, levels (W, A)) the level figure shows
         self._refresh_pending = False  # scores and selection often change together: draw once
         doc.scoresReady.connect(self.schedule_refresh)
         doc.selectionChanged.connect(lambda _n: self.schedule_refresh())
@@ -561,8 +562,11 @@ class SpotFigures(QWidget):
     def refresh(self) -> None:
         self._refresh_pending = False
         i = self._row()
-        for p in (self.levels, self.burst, self.separation):
+        for p in (self.burst, self.separation):
             p.clear()
+        if i is None or self.doc.pending[i]:
+            self.levels.clear()
+            self._levels_drawn = None
         self._drop_burst()
         self.burst_result = None
         if i is None:
@@ -575,7 +579,14 @@ class SpotFigures(QWidget):
             self.separation.setTitle("Wheel separation by signal strength", size="8pt")
             return
         sc = self.doc.scores
-        self._draw_levels(sc, i, self.doc.selected)
+        key = self._levels_key(sc, i, self.doc.selected)
+        drawn = self._levels_drawn
+        if drawn is not None and drawn[:-1] == key[:-1] and np.array_equal(drawn[-1], key[-1]):
+            self._levels_title(sc, i, self.doc.selected)  # a dropped spot: its live curves are these levels
+        else:
+            self.levels.clear()
+            self._draw_levels(sc, i, self.doc.selected)
+            self._levels_drawn = key
         self._start_burst(sc, i)
         self._draw_separation(sc, i)
 
@@ -619,6 +630,12 @@ class SpotFigures(QWidget):
         if name == self.doc.selected:
             self.levels.clear()
             self._draw_levels(sc, 0, name + " (moving)")
+            self._levels_drawn = self._levels_key(sc, 0, name)
+
+    def _levels_key(self, sc, i: int, name: str) -> tuple:
+        """What the level figure of spot row ``i`` is drawn from (the levels last)."""
+        return (name, sc.sensitivity_dbm, sc.required_margin_db, sc.wheel_ids, self.doc.physics,
+                np.array(sc.levels_dbm[i]))
 
     def _draw_levels(self, sc, i: int, title: str) -> None:
         p = self.levels
@@ -644,9 +661,13 @@ class SpotFigures(QWidget):
         hi = max(float(sc.levels_dbm[i].max()), need) + 12
         p.setYRange(lo, hi, padding=0)
         p.setXRange(0, 360, padding=0)
+        self._levels_title(sc, i, title)
+
+    def _levels_title(self, sc, i: int, title: str) -> None:
+        ww = int(sc.worst_wheel[i])
         m = float(sc.margin_db[i])
-        p.setTitle(f"{title}: margin {m:+.1f} dB, worst wheel {sc.wheel_ids[ww]} at {sc.worst_angle_deg[i, ww]:.0f} deg",
-                   size="9pt")
+        self.levels.setTitle(f"{title}: margin {m:+.1f} dB, worst wheel {sc.wheel_ids[ww]} at "
+                             f"{sc.worst_angle_deg[i, ww]:.0f} deg", size="9pt")
 
     def _draw_burst(self, r) -> None:
         """Burst success vs speed; when every burst gets through, the burst margin instead (the extra loss the
