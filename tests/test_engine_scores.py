@@ -12,7 +12,16 @@ from shapely.geometry import Point, Polygon
 
 from core.burst import START_ANGLES, burst_for_spot, burst_success
 from core.distinctness import wheel_distinctness
-from core.scoring import Cancelled, Scene, grid_for_region, heatmap, score_levels, score_spots, score_vehicle
+from core.scoring import (
+    Cancelled,
+    Scene,
+    grid_for_region,
+    heatmap,
+    heatmap_stages,
+    score_levels,
+    score_spots,
+    score_vehicle,
+)
 from core.vehicle import Region
 from engine_vehicles import sedan
 
@@ -293,3 +302,49 @@ def test_burst_off_the_start_grid_takes_the_general_path():
 
     assert not burst._on_start_grid(_angles(7), START_ANGLES)
     assert not burst._on_start_grid(_angles(72) + 0.01, START_ANGLES)
+
+
+# --- progressive heatmap (issue 17 item 3) ---------------------------------------------------
+
+
+def test_heatmap_stages_coarse_cells_are_the_full_heatmaps_cells_and_the_last_stage_is_the_heatmap(small_scene):
+    # Each stage computes only new cells; the last stage must equal the one-stage heatmap exactly
+    # (same engine call per cell), and a coarse stage's cell must be the full grid's cell at that point.
+    region = _triangle_region()
+    full = heatmap(small_scene, region, 0.1)
+    stages = list(heatmap_stages(small_scene, region, 0.1))
+    assert [h.stride for h in stages] == [4, 2, 1]
+    assert [h.complete for h in stages] == [False, False, True]
+    last = stages[-1]
+    np.testing.assert_array_equal(last.margin_db, full.margin_db)  # nan in the same places too
+    np.testing.assert_array_equal(last.worst_wheel, full.worst_wheel)
+    np.testing.assert_array_equal(last.cell_state, full.cell_state)
+    np.testing.assert_array_equal(last.u_m, full.u_m)
+    for h in stages[:-1]:
+        k, o = h.stride, 1  # offset (4 - 1) // 2 = 1 in both directions, the same for every stage
+        np.testing.assert_array_equal(h.u_m, full.u_m[o::k])
+        np.testing.assert_array_equal(h.v_m, full.v_m[o::k])
+        np.testing.assert_array_equal(h.margin_db, full.margin_db[o::k, o::k])
+        np.testing.assert_array_equal(h.cell_state, full.cell_state[o::k, o::k])
+        assert h.step_m == pytest.approx(0.1 * k)
+        assert 0 < int(h.computed.sum()) < int(full.computed.sum())
+    # the coarse cells are where the engine puts a single spot (a cell of the coarse stage, scored alone)
+    iv, iu = np.argwhere(stages[0].computed)[0]
+    p = stages[0].points()[iv, iu]
+    assert stages[0].margin_db[iv, iu] == pytest.approx(score_spots(small_scene, [p]).margin_db[0], abs=1e-9)
+
+
+def test_heatmap_stages_progress_counts_every_cell_once_and_cancel_stops(small_scene):
+    region = _triangle_region()
+    calls = []
+    stages = list(heatmap_stages(small_scene, region, 0.1, progress=lambda d, t: calls.append((d, t))))
+    total = int(stages[-1].computed.sum())
+    assert all(t == total for _, t in calls) and calls[-1][0] == total
+    assert [d for d, _ in calls] == sorted(d for d, _ in calls)
+    seen = []
+    gen = heatmap_stages(small_scene, region, 0.1, cancel=lambda: len(seen) >= 1)
+    seen.append(next(gen))  # the coarse stage arrives, then the cancel flag stops the next one
+    with pytest.raises(Cancelled):
+        next(gen)
+    with pytest.raises(ValueError):
+        list(heatmap_stages(small_scene, region, 0.1, strides=(2, 4, 1)))
