@@ -120,6 +120,7 @@ class Document(QObject):
     scoresReady = Signal()  # scores of the file's spots changed (check ``pending`` for rows not scored yet)
     scoringProgress = Signal(int, int)  # spots scored, spots to score (a worker is scoring); (0, 0): idle
     liveScore = Signal(str, object)  # spot name, SpotScores of one spot at its dragged position
+    previewChanged = Signal(object)  # an outline, zone or region is being dragged: the (valid) Vehicle under the mouse
     selectionChanged = Signal(str)  # selected spot name ("" for none)
     zoneSelectionChanged = Signal(int)  # index into vehicle.zones, -1 for none
     regionSelectionChanged = Signal(int)  # index into vehicle.regions (the heatmap's region)
@@ -338,6 +339,19 @@ class Document(QObject):
             return self._refuse(text, f"{type(e).__name__}: {e}")
         self.undo_stack.push(VehicleEdit(self, Prepared(before, self.scene, self.physics), prepared, text))
         self.statusMessage.emit(text)
+        return True
+
+    def preview(self, make: Callable[[Vehicle], Vehicle]) -> bool:
+        """An outline, zone or region is being dragged: ``make(vehicle)`` is the state under the mouse. When
+        it is a valid vehicle, ``previewChanged`` tells the views (the heatmap recomputes for it); nothing is
+        edited or pushed, the drop makes the edit. Returns False for a state ``core`` refuses (shown at the drop)."""
+        try:
+            v = make(self.vehicle)
+            check_vehicle(v)
+        except Exception:  # noqa: BLE001 - a state in the middle of a drag may be invalid; the drop says why
+            return False
+        if v != self.vehicle:
+            self.previewChanged.emit(v)
         return True
 
     def _refuse(self, text: str, why: str) -> bool:
