@@ -143,6 +143,80 @@ def reference_seconds_per_link(v, scene, points: np.ndarray, n_links: int, seed:
     return (time.perf_counter() - t0) / n_links, degenerate
 
 
+def bare_crossings(a: np.ndarray, b: np.ndarray, top, side) -> int:
+    """The bare numpy crossing test: how many outline edges (top view in x-y, side view in x-z) the
+    segments a -> b (N, 3) m cross; no order, no zones, no wheelhouses, no passages (the floor a
+    per-link kernel is measured against, issue 17)."""
+    n = 0
+    for (i, j), ed in (((0, 1), top), ((0, 2), side)):
+        au, av = a[:, i, None], a[:, j, None]
+        du, dv = b[:, i, None] - au, b[:, j, None] - av
+        ex, ey = ed.e[None, :, 0], ed.e[None, :, 1]
+        wx, wy = ed.p0[None, :, 0] - au, ed.p0[None, :, 1] - av
+        den = du * ey - dv * ex
+        with np.errstate(divide="ignore", invalid="ignore"):
+            inv = 1.0 / den
+            t = (wx * ey - wy * ex) * inv
+            s = (wx * dv - wy * du) * inv
+        n += int(np.count_nonzero((t > 0.0) & (t < 1.0) & (s >= 0.0) & (s < 1.0)))
+    return n
+
+
+def heatmap_segments(scene, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The direct-ray segments of a heatmap: every (spot, wheel, angle) sensor -> spot, (N, 3) each, m."""
+    src = scene.sensor_pos.reshape(-1, 3)
+    a = np.broadcast_to(src[None], (len(points), *src.shape)).reshape(-1, 3)
+    b = np.repeat(points, len(src), axis=0)
+    return a, b
+
+
+def bare_crossing_seconds(scene, points: np.ndarray, chunk_links: int) -> tuple[float, int]:
+    """Time of :func:`bare_crossings` over all direct links of the heatmap, in chunks of the engine's size, s;
+    and the number of edge crossings found."""
+    per = max(1, chunk_links // max(1, scene.sensor_pos.shape[0] * scene.sensor_pos.shape[1]))
+    t0 = time.perf_counter()
+    n = 0
+    for i in range(0, len(points), per):
+        a, b = heatmap_segments(scene, points[i:i + per])
+        n += bare_crossings(a, b, scene.hull.top_edges, scene.hull.side_edges)
+    return time.perf_counter() - t0, n
+
+
+def threaded_heatmap_seconds(scene, points: np.ndarray, threads: int) -> float:
+    """Wall-clock time, s, of the heatmap's cells scored in ``threads`` equal parts on a thread pool
+    (concurrent.futures; numpy releases the interpreter lock inside its array operations only)."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    from core.scoring import score_spots
+
+    parts = np.array_split(points, threads)
+    t0 = time.perf_counter()
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        list(pool.map(lambda p: score_spots(scene, p), parts))
+    return time.perf_counter() - t0
+
+
+def parallel_figures(scene, points: np.ndarray, heat_s: float, repeats: int, out=print) -> dict:
+    """Issue 17 item 4 without a compiled kernel: the heatmap's cells on 1 thread and on all cores (a
+    thread pool), and the bare numpy crossing test of the same direct links, from the same run."""
+    from core.scoring import CHUNK_LINKS
+
+    n_all = os.cpu_count() or 1
+    threaded_heatmap_seconds(scene, points[: max(1, len(points) // 8)], n_all)  # warm-up of the pool
+    one = statistics.median(threaded_heatmap_seconds(scene, points, 1) for _ in range(repeats))
+    every = statistics.median(threaded_heatmap_seconds(scene, points, n_all) for _ in range(repeats))
+    out(f"heatmap cells on a thread pool: {one:.3f} s on 1 thread, {every:.3f} s on {n_all} "
+        f"(speed-up x{one / every:.2f}; numpy releases the interpreter lock only inside array operations)")
+    bare_s, n_cross = min((bare_crossing_seconds(scene, points, CHUNK_LINKS) for _ in range(repeats)),
+                          key=lambda r: r[0])
+    n_links = len(points) * scene.sensor_pos.shape[0] * scene.sensor_pos.shape[1]
+    best = min(heat_s, every)
+    out(f"bare numpy crossing test of the heatmap's {n_links} direct links against the same outlines "
+        f"({n_cross} edge crossings, no zones, wheelhouses, passages or road ray): {bare_s:.3f} s (best of "
+        f"{repeats}); heatmap = {heat_s / bare_s:.1f} x the bare test, on all cores {best / bare_s:.1f} x")
+    return {"threads_1_s": one, "threads_all_s": every, "bare_s": bare_s}
+
+
 DEFENCE_SPOTS = 10
 
 
@@ -206,6 +280,13 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
         f"{links} links: {heat_s:.3f} s (median of {repeats}; CPU time {heat_cpu_s:.3f} s)")
     out(f"heatmap links per second: {links / heat_s:,.0f}")
 
+    from core.scoring import heatmap_stages
+
+    coarse_s, coarse, _ = _median_time(lambda: next(heatmap_stages(scene, region, step)), repeats)
+    out(f"progressive heatmap: first coarse stage (every {coarse.stride}th cell, {coarse.step_m * 1000:.0f} mm, "
+        f"{int(coarse.computed.sum())} spots): {coarse_s:.3f} s (median of {repeats}) = "
+        f"{100 * coarse_s / heat_s:.1f} % of the full heatmap (target 10 %)")
+
     u, vv, mask, fixed = grid_for_region(region, step)
     uu, vg = np.meshgrid(u, vv)
     pts = np.stack([uu, vg, np.full_like(uu, fixed)], axis=-1)[mask]
@@ -217,6 +298,7 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
     spot_s, _, _ = _median_time(lambda: score_spots(scene, one), spot_repeats)
     out(f"single spot ({one[0, 0]:.2f}, {one[0, 1]:.2f}, {one[0, 2]:.2f}) m, {W} wheels x {A} angles: "
         f"{spot_s * 1e3:.2f} ms (median of {spot_repeats})")
+    parallel_figures(scene, pts, heat_s, max(1, min(3, repeats)), out)
 
     defence_s, n_def, d_links = defence_seconds(v, scene, hm, repeats)
     out(f"defence analysis of {n_def} spots (scores, budgets by term, tornado, {DEFAULT_DRAWS}-draw P(pass); "
@@ -289,7 +371,7 @@ def desktop_figures(path, repeats: int, out=print) -> dict | None:
         app = QApplication([sys.argv[0]])
     from app.gui import tasks
     from app.gui.document import Document
-    from app.gui.drag_timing import median_ms, settle, time_drag_and_drop
+    from app.gui.drag_timing import median_ms, settle, time_drag_and_drop, time_progressive_heatmap
     from app.gui.window import MainWindow
     from core.scoring import score_spots
 
@@ -312,6 +394,8 @@ def desktop_figures(path, repeats: int, out=print) -> dict | None:
                 score_spots(doc.scene, spot, axis)
             spot_s, _, _ = _median_time(lambda: score_spots(doc.scene, spot, axis), n_spot)
             steps, drops, name = time_drag_and_drop(win, max(3, repeats))
+            step_m = 0.2 if repeats <= 1 else 0.05  # --quick: the panel's coarsest grid
+            runs = [time_progressive_heatmap(win, step_m) for _ in range(1 if repeats <= 1 else 3)]
         finally:
             win.ranking.heatmap.abandon()
             doc.undo_stack.setClean()
@@ -326,7 +410,13 @@ def desktop_figures(path, repeats: int, out=print) -> dict | None:
         f"(limit {DRAG_LIMIT:.0f} x)")
     out(f"desktop drop: {drop_ms:.2f} ms (median of {len(drops)}) = {drop_ms / spot_ms:.2f} x the single spot "
         f"(limit {DROP_LIMIT:.0f} x)")
-    return {"spot_ms": spot_ms, "drag_ms": step_ms, "drop_ms": drop_ms}
+    first = statistics.median(r[0] for r in runs)
+    full = statistics.median(r[1] for r in runs)
+    hm = runs[-1][2]
+    out(f"desktop progressive heatmap ({int(hm.computed.sum())} cells, {hm.step_m * 1000:.0f} mm, median of "
+        f"{len(runs)}): first coarse map shown after {first:.3f} s, full map after {full:.3f} s: first = "
+        f"{100 * first / full:.1f} % of the full (target 10 %)")
+    return {"spot_ms": spot_ms, "drag_ms": step_ms, "drop_ms": drop_ms, "first_s": first, "full_s": full}
 
 
 def summary_line(fig: dict) -> str:

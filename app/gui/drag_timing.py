@@ -97,5 +97,38 @@ def time_drag_and_drop(win, repeats: int, name: str | None = None) -> tuple[list
     return steps, drops, name
 
 
+def time_progressive_heatmap(win, step_m: float) -> tuple[float, float, object]:
+    """The heatmap panel's Compute: seconds until the first coarse stage is shown and until the full
+    heatmap is shown, and the full Heatmap."""
+    app = QApplication.instance()
+    panel = win.ranking.heatmap
+    panel.step.setCurrentIndex(panel.step.findData(step_m))
+    got: dict = {}
+    t0 = time.perf_counter()
+
+    def stage(_hm):
+        got.setdefault("stage", time.perf_counter() - t0)
+
+    def ready(hm):
+        got["full"], got["hm"] = time.perf_counter() - t0, hm
+
+    panel.stageShown.connect(stage)
+    panel.heatmapReady.connect(ready)
+    try:
+        t0 = time.perf_counter()
+        panel.start()
+        end = t0 + 600.0
+        while "full" not in got:
+            if time.perf_counter() > end:
+                raise RuntimeError("the heatmap did not finish within 600 s")
+            _turn(app)
+            time.sleep(0.001)
+    finally:
+        panel.stageShown.disconnect(stage)
+        panel.heatmapReady.disconnect(ready)
+    settle(win)
+    return got.get("stage", got["full"]), got["full"], got["hm"]
+
+
 def median_ms(xs: list[float]) -> float:
     return 1e3 * statistics.median(xs)
