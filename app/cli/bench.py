@@ -196,6 +196,47 @@ def threaded_heatmap_seconds(scene, points: np.ndarray, threads: int) -> float:
     return time.perf_counter() - t0
 
 
+_POOL_SCENE = None  # the scene of a worker process of the process-pool figure
+
+
+def _pool_init(blob: bytes) -> None:
+    import pickle
+
+    global _POOL_SCENE
+    _POOL_SCENE = pickle.loads(blob)
+
+
+def _pool_margins(points: np.ndarray) -> np.ndarray:
+    from core.scoring import score_spots
+
+    return score_spots(_POOL_SCENE, points).margin_db
+
+
+def process_pool_seconds(scene, points: np.ndarray, workers: int, repeats: int) -> tuple[float, float, bool]:
+    """The heatmap's cells scored in ``workers`` equal parts on a process pool (spawned processes, the scene
+    sent once, pickled): pool start-up s, median wall-clock s of the scoring on the started pool, and whether
+    the margins equal those of one call in this process."""
+    import multiprocessing
+    import pickle
+    from concurrent.futures import ProcessPoolExecutor
+
+    from core.scoring import score_spots
+
+    parts = np.array_split(points, workers)
+    t0 = time.perf_counter()
+    with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("spawn"), initializer=_pool_init,
+                             initargs=(pickle.dumps(scene),)) as pool:
+        list(pool.map(_pool_margins, [p[:1] for p in parts]))  # every worker started and warm
+        start_s = time.perf_counter() - t0
+        times, margins = [], None
+        for _ in range(repeats):
+            t1 = time.perf_counter()
+            margins = np.concatenate(list(pool.map(_pool_margins, parts)))
+            times.append(time.perf_counter() - t1)
+    same = bool(np.array_equal(margins, score_spots(scene, points).margin_db, equal_nan=True))
+    return start_s, statistics.median(times), same
+
+
 def parallel_figures(scene, points: np.ndarray, heat_s: float, repeats: int, out=print) -> dict:
     """Issue 17 item 4 without a compiled kernel: the heatmap's cells on 1 thread and on all cores (a
     thread pool), and the bare numpy crossing test of the same direct links, from the same run."""
@@ -207,6 +248,11 @@ def parallel_figures(scene, points: np.ndarray, heat_s: float, repeats: int, out
     every = statistics.median(threaded_heatmap_seconds(scene, points, n_all) for _ in range(repeats))
     out(f"heatmap cells on a thread pool: {one:.3f} s on 1 thread, {every:.3f} s on {n_all} "
         f"(speed-up x{one / every:.2f}; numpy releases the interpreter lock only inside array operations)")
+    start_s, procs, same = process_pool_seconds(scene, points, n_all, repeats)
+    out(f"heatmap cells on a process pool of {n_all}: {procs:.3f} s (median of {repeats}; pool start-up "
+        f"{start_s:.3f} s not included) against {one:.3f} s in one process: speed-up x{one / procs:.2f}; "
+        f"margins {'identical' if same else 'DIFFERENT'} to one call")
+    every = min(every, procs)
     bare_s, n_cross = min((bare_crossing_seconds(scene, points, CHUNK_LINKS) for _ in range(repeats)),
                           key=lambda r: r[0])
     n_links = len(points) * scene.sensor_pos.shape[0] * scene.sensor_pos.shape[1]
@@ -214,7 +260,7 @@ def parallel_figures(scene, points: np.ndarray, heat_s: float, repeats: int, out
     out(f"bare numpy crossing test of the heatmap's {n_links} direct links against the same outlines "
         f"({n_cross} edge crossings, no zones, wheelhouses, passages or road ray): {bare_s:.3f} s (best of "
         f"{repeats}); heatmap = {heat_s / bare_s:.1f} x the bare test, on all cores {best / bare_s:.1f} x")
-    return {"threads_1_s": one, "threads_all_s": every, "bare_s": bare_s}
+    return {"threads_1_s": one, "threads_all_s": every, "processes_s": procs, "bare_s": bare_s}
 
 
 DEFENCE_SPOTS = 10
@@ -389,11 +435,18 @@ def desktop_figures(path, repeats: int, out=print) -> dict | None:
             name = doc.selected
             spot = doc.scores.positions[doc.spot_row(name)][None, :]
             axis = doc._spot_axis(name)
-            n_spot = 5 if repeats <= 1 else 30
             for _ in range(3):
                 score_spots(doc.scene, spot, axis)
-            spot_s, _, _ = _median_time(lambda: score_spots(doc.scene, spot, axis), n_spot)
-            steps, drops, name = time_drag_and_drop(win, max(3, repeats))
+            spot_times: list[float] = []
+
+            def time_spot():  # interleaved with the drags: the same load of the machine for both
+                for _ in range(6):
+                    t0 = time.perf_counter()
+                    score_spots(doc.scene, spot, axis)
+                    spot_times.append(time.perf_counter() - t0)
+
+            steps, drops, name = time_drag_and_drop(win, max(3, repeats), between=time_spot)
+            spot_s, n_spot = statistics.median(spot_times), len(spot_times)
             step_m = 0.2 if repeats <= 1 else 0.05  # --quick: the panel's coarsest grid
             runs = [time_progressive_heatmap(win, step_m) for _ in range(1 if repeats <= 1 else 3)]
         finally:
@@ -405,7 +458,8 @@ def desktop_figures(path, repeats: int, out=print) -> dict | None:
     step_ms, drop_ms, spot_ms = median_ms(steps), median_ms(drops), spot_s * 1e3
     out(f"desktop program: {doc.vehicle.name}, spot {name!r}, wheel model {doc.scene.wheel_model_label}, "
         f"window 1600 x 1000 ({app.platformName()} platform)")
-    out(f"desktop engine single spot: {spot_ms:.2f} ms (median of {n_spot}; the dragged spot, its own axis)")
+    out(f"desktop engine single spot: {spot_ms:.2f} ms (median of {n_spot}, taken between the drags; the dragged "
+        f"spot, its own axis)")
     out(f"desktop drag step: {step_ms:.2f} ms (median of {len(steps)}) = {step_ms / spot_ms:.2f} x the single spot "
         f"(limit {DRAG_LIMIT:.0f} x)")
     out(f"desktop drop: {drop_ms:.2f} ms (median of {len(drops)}) = {drop_ms / spot_ms:.2f} x the single spot "

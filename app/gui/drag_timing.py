@@ -75,10 +75,12 @@ def drop(win, view, name: str) -> float:
     return time.perf_counter() - t0
 
 
-def time_drag_and_drop(win, repeats: int, name: str | None = None) -> tuple[list[float], list[float], str]:
+def time_drag_and_drop(win, repeats: int, name: str | None = None, between=None) -> tuple[list[float], list[float], str]:
     """Median material for the bench: per repeat, a few drag steps of the selected spot in the top view
     and one drop; returns (drag step seconds, drop seconds, spot name). Every drop is one undo step,
-    undone after its timing so each repeat starts from the file's own position."""
+    undone after its timing so each repeat starts from the file's own position. ``between()`` is called
+    before every repeat (the bench times the engine's single spot there, so that both figures of a ratio
+    see the same load of the machine)."""
     doc = win.doc
     name = name or doc.selected or doc.vehicle.spots[0].name
     doc.select(name)
@@ -88,6 +90,8 @@ def time_drag_and_drop(win, repeats: int, name: str | None = None) -> tuple[list
     view = win.top
     steps, drops = [], []
     for _ in range(repeats):
+        if between is not None:
+            between()
         u, w = view.to_view(doc.spot_position(name))
         for k in range(4):
             steps.append(drag_step(win, view, name, (u + DRAG_STEP_M * ((k % 2) + 1), w)))
