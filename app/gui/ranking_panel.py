@@ -261,7 +261,7 @@ class HeatmapPanel(QWidget):
             return
         self.result = hm
         self._shown_for = job.key
-        self.show_heatmap(hm)
+        self.show_heatmap(hm, job.key[0])
         self.readout.setText(f"Coarse map on a {hm.step_m * 1000:.0f} mm grid shown; refining to "
                              f"{job.step_m * 1000:.0f} mm...")
         self.stageShown.emit(hm)
@@ -274,7 +274,7 @@ class HeatmapPanel(QWidget):
         self.progress.setValue(100)
         self.result = hm
         self._shown_for = job.key
-        self.show_heatmap(hm)
+        self.show_heatmap(hm, job.key[0])
         self.heatmapReady.emit(hm)
 
     def _summary(self, hm) -> str:
@@ -317,7 +317,7 @@ class HeatmapPanel(QWidget):
             self._set_spots(pos)
 
     # ----- drawing ---------------------------------------------------------------------
-    def show_heatmap(self, hm) -> None:
+    def show_heatmap(self, hm, vehicle=None) -> None:
         m = hm.margin_db  # (nv, nu)
         nu, nv = len(hm.u_m), len(hm.v_m)
         du = (hm.u_m[-1] - hm.u_m[0]) / (nu - 1) if nu > 1 else hm.step_m
@@ -330,10 +330,11 @@ class HeatmapPanel(QWidget):
         self.image.setRect(QRectF(hm.u_m[0] - du / 2, hm.v_m[0] - dv / 2, nu * du, nv * dv))
         self.colorbar.setLevels((-span, span))
         self.iso.setData(*polylines_for_plot(zero_contour(hm)))
-        self._draw_context(hm)
+        self._draw_context(hm, vehicle)
 
-    def _draw_context(self, hm=None) -> None:
-        """Body outline and spots of the heatmap's view, for orientation."""
+    def _draw_context(self, hm=None, vehicle=None) -> None:
+        """Body outline (of ``vehicle``, the one the heatmap shown was computed for, by default the
+        document's) and spots of the heatmap's view, for orientation."""
         pi = self.plot.getPlotItem()
         for it in self._outline_items:
             pi.removeItem(it)
@@ -343,7 +344,7 @@ class HeatmapPanel(QWidget):
         if self.result is not None and region is not None and (self.result.view != region.view):
             self.image.clear()
             self.iso.setData([], [])
-        v = self.doc.vehicle
+        v = vehicle if vehicle is not None else self.doc.vehicle
         self._drawn_vehicle = v
         pts = v.body.top_outline if view == "top" else v.body.side_outline
         poly = QGraphicsPolygonItem(QPolygonF([QPointF(*p) for p in pts]))
