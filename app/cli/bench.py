@@ -406,6 +406,10 @@ def desktop_figures(path, repeats: int, out=print) -> dict | None:
     except ImportError:
         out("desktop program: not benched (PySide6 is not installed)")
         return None
+    v = load_vehicle(path)
+    if not v.spots or not v.regions:
+        out("desktop program: not benched (the file needs a receiver spot to drag and a mounting region)")
+        return None
     import tempfile
 
     from PySide6.QtCore import QSettings
@@ -424,7 +428,7 @@ def desktop_figures(path, repeats: int, out=print) -> dict | None:
     with tempfile.TemporaryDirectory(prefix="wheelreach-bench-") as tmp:
         settings = QSettings(os.path.join(tmp, "settings.ini"), QSettings.Format.IniFormat)
         settings.setValue("recovery_folder", os.path.join(tmp, "recovery"))
-        doc = Document(load_vehicle(path), path)
+        doc = Document(v, path)
         win = MainWindow(doc, settings=settings, autosave=False)
         win.ranking.heatmap.auto.setChecked(False)
         win.resize(1600, 1000)
