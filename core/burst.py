@@ -48,6 +48,36 @@ def _periodic_interp(levels: np.ndarray, angles_rad: np.ndarray, query: np.ndarr
     return np.interp(np.mod(query, 2 * np.pi), angles_rad, levels, period=2 * np.pi)
 
 
+def _on_start_grid(angles_rad: np.ndarray, start_angles: int) -> bool:
+    """True when the level's angles are uniform from 0 and every one of them is a start angle: the
+    level is then linear between neighbouring start angles too."""
+    a = len(angles_rad)
+    return (a > 0 and start_angles % a == 0
+            and np.allclose(angles_rad, np.arange(a) * (2 * np.pi / a), rtol=0.0, atol=1e-12))
+
+
+def _best_frames(l0: np.ndarray, step_rad: np.ndarray, frames: int) -> np.ndarray:
+    """max over k of level(theta0_j + k step) for every speed and start angle: (V, T), dBm.
+
+    ``l0`` (T,) is the level at the T uniform start angles; the level is linear between them
+    (``_on_start_grid``), so a frame k s = (m + r) start spacings ahead reads
+    (1 - r) l0[j + m] + r l0[j + m + 1] (indices modulo T): the same linear interpolation as
+    np.interp on the level's own angles, without searching the angle for every frame."""
+    T = len(l0)
+    j = np.arange(T)
+    best = np.broadcast_to(l0, (len(step_rad), T)).copy()  # frame 0 sits on the start angle
+    pos = np.outer(step_rad, np.arange(1, frames)) * (T / (2 * np.pi))  # (V, K-1) in start spacings
+    m = np.floor(pos)
+    r = pos - m
+    m = m.astype(np.int64) % T
+    for k in range(frames - 1):
+        i0 = (j[None, :] + m[:, k, None]) % T
+        i1 = (i0 + 1) % T
+        lk = l0[i0] + r[:, k, None] * (l0[i1] - l0[i0])
+        np.maximum(best, lk, out=best)
+    return best
+
+
 def burst_success(
     levels_dbm: np.ndarray,
     angles_rad: np.ndarray,
@@ -91,6 +121,7 @@ def burst_success(
     parked_margin = np.empty(W)
     resonant = []
     counts = []
+    on_grid = _on_start_grid(np.asarray(angles_rad, float), start_angles)
     for w in range(W):
         l0 = _periodic_interp(lv[w], angles_rad, th0)
         parked[w] = (l0 >= threshold_dbm).mean()
@@ -101,8 +132,11 @@ def burst_success(
             if cancel is not None and cancel():
                 raise Cancelled()
             sl = slice(a, a + per)
-            ang = th0[None, :, None] + step[sl, None, None] * k[None, None, :]  # (v, T, K)
-            best = _periodic_interp(lv[w], angles_rad, ang.reshape(-1)).reshape(ang.shape).max(axis=2)  # (v, T)
+            if on_grid:
+                best = _best_frames(l0, step[sl], frames)
+            else:
+                ang = th0[None, :, None] + step[sl, None, None] * k[None, None, :]  # (v, T, K)
+                best = _periodic_interp(lv[w], angles_rad, ang.reshape(-1)).reshape(ang.shape).max(axis=2)  # (v, T)
             success[w, sl] = (best >= threshold_dbm).mean(axis=1)
             margin[w, sl] = best.min(axis=1) - threshold_dbm
         period = 2 * np.pi * radius[w] / interval_s

@@ -14,7 +14,8 @@ computes the received level for any set of spots, shape (S, W, A) in dBm.
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Callable
+import itertools
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -515,8 +516,9 @@ class Heatmap:
     step_m: float
     margin_db: np.ndarray  # (nv, nu), nan where not computed (outside the region, outside the body, in a wheelhouse)
     worst_wheel: np.ndarray  # (nv, nu) int, -1 where not computed
-    complete: bool = True
+    complete: bool = True  # False for a coarse stage of a progressive heatmap (heatmap_stages)
     cell_state: np.ndarray | None = None  # (nv, nu) int8 CELL_* codes; None: every finite cell was computed
+    stride: int = 1  # a coarse stage: every ``stride``-th cell of the full grid in each direction
 
     def points(self) -> np.ndarray:
         """(nv, nu, 3) positions of the cells, m."""
@@ -589,6 +591,80 @@ def grid_for_region(
     return u, v, mask, fixed
 
 
+#: the stages of a progressive heatmap: every 4th cell of the grid in each direction (1/16 of the work),
+#: then every 2nd, then all; each stage computes only the cells the earlier ones have not
+PROGRESSIVE_STRIDES = (4, 2, 1)
+
+
+def _stage_offset(strides) -> int:
+    """Index of the first cell of the coarsest stage in each direction; every stage takes the cells whose
+    index is this offset modulo its stride, so each stage's cells hold all of the coarser stages' cells."""
+    return (max(strides) - 1) // 2
+
+
+def heatmap_stages(
+    scene: Scene,
+    region: Region,
+    step_m: float = 0.05,
+    strides=PROGRESSIVE_STRIDES,
+    axis=None,
+    progress: Callable[[int, int], None] | None = None,
+    cancel: Callable[[], bool] | None = None,
+    chunk_links: int = CHUNK_LINKS,
+) -> Iterator[Heatmap]:
+    """The heatmap of ``heatmap(scene, region, step_m)`` in stages, coarse first (a generator).
+
+    ``strides`` descending, ending at 1: the stage of stride k holds the cells of the full grid whose
+    row and column indices are ``offset mod k`` (``_stage_offset``); its Heatmap has those cells only
+    (``u_m``/``v_m`` every k-th centre, ``step_m`` k times the step, ``stride`` k, ``complete`` False).
+    Every cell is computed once, by the first stage that holds it, with the same engine call as
+    ``heatmap``: a coarse cell's margin is the full grid's margin at that cell, and the last stage is
+    the full heatmap. ``progress(done, total)`` counts computed cells over all stages; ``cancel`` as
+    in ``heatmap`` (raises Cancelled before the next chunk).
+    """
+    if not step_m > 0:
+        raise ValueError("step_m must be positive")
+    strides = tuple(int(k) for k in strides)
+    if not strides or strides[-1] != 1 or any(a <= b for a, b in itertools.pairwise(strides)):
+        raise ValueError("strides must be descending whole numbers ending at 1")
+    from core.placement import EXCLUDED_IN_WHEELHOUSE, EXCLUDED_OUTSIDE_BODY, exclusion
+
+    u, v, in_region, fixed = grid_for_region(region, step_m)
+    grid = _cell_points(region.view, u, v, fixed)
+    why = exclusion(scene.hull, grid[..., 0], grid[..., 1], grid[..., 2])
+    state = np.full(in_region.shape, CELL_OUTSIDE_REGION, np.int8)
+    state[in_region & (why == EXCLUDED_OUTSIDE_BODY)] = CELL_OUTSIDE_BODY
+    state[in_region & (why == EXCLUDED_IN_WHEELHOUSE)] = CELL_IN_WHEELHOUSE
+    mask = in_region & (why == 0)
+    state[mask] = CELL_COMPUTED
+    margin = np.full(in_region.shape, np.nan)
+    worst = np.full(in_region.shape, -1, int)
+    done = np.zeros(in_region.shape, bool)
+    total, counted = int(mask.sum()), 0
+    offset = _stage_offset(strides)
+    iv, iu = np.indices(in_region.shape)
+    for k in strides:
+        o = offset % k
+        todo = mask & ~done & (iv % k == o) & (iu % k == o)
+        pts = grid[todo]
+        if len(pts):
+            tick = None
+            if progress is not None:
+                def tick(d, _t, base=counted):
+                    progress(base + d, total)
+            sc = score_levels(scene, _turns_in_blocks(scene, pts, axis, tick, cancel, chunk_links), positions=pts)
+            margin[todo] = sc.margin_db
+            worst[todo] = sc.worst_wheel
+            done |= todo
+            counted += len(pts)
+        if k == 1:
+            yield Heatmap(region.view, fixed, u, v, step_m, margin, worst, cell_state=state)
+        else:
+            sl = (slice(o, None, k), slice(o, None, k))
+            yield Heatmap(region.view, fixed, u[o::k], v[o::k], step_m * k, margin[sl].copy(), worst[sl].copy(),
+                          complete=False, cell_state=state[sl].copy(), stride=k)
+
+
 def heatmap(
     scene: Scene,
     region: Region,
@@ -604,45 +680,32 @@ def heatmap(
     the wheelhouses: core.placement); the others of the region are nan with their reason in
     ``Heatmap.cell_state``. Work is split into chunks of about ``chunk_links`` links;
     ``progress(done, total)`` is called after each chunk (computed cells), and when ``cancel()``
-    returns True the computation raises Cancelled before the next chunk.
+    returns True the computation raises Cancelled before the next chunk. (The one-stage case of
+    ``heatmap_stages``.)
     """
-    if not step_m > 0:
-        raise ValueError("step_m must be positive")
-    from core.placement import EXCLUDED_IN_WHEELHOUSE, EXCLUDED_OUTSIDE_BODY, exclusion
-
-    u, v, in_region, fixed = grid_for_region(region, step_m)
-    grid = _cell_points(region.view, u, v, fixed)
-    why = exclusion(scene.hull, grid[..., 0], grid[..., 1], grid[..., 2])
-    state = np.full(in_region.shape, CELL_OUTSIDE_REGION, np.int8)
-    state[in_region & (why == EXCLUDED_OUTSIDE_BODY)] = CELL_OUTSIDE_BODY
-    state[in_region & (why == EXCLUDED_IN_WHEELHOUSE)] = CELL_IN_WHEELHOUSE
-    mask = in_region & (why == 0)
-    state[mask] = CELL_COMPUTED
-    pts = grid[mask]
-    margin = np.full(in_region.shape, np.nan)
-    worst = np.full(in_region.shape, -1, int)
-    if len(pts):
-        sc = score_levels(scene, _turns_in_blocks(scene, pts, axis, progress, cancel, chunk_links), positions=pts)
-        margin[mask] = sc.margin_db
-        worst[mask] = sc.worst_wheel
-    return Heatmap(region.view, fixed, u, v, step_m, margin, worst, cell_state=state)
+    *_, hm = heatmap_stages(scene, region, step_m, (1,), axis, progress, cancel, chunk_links)
+    return hm
 
 
 __all__ = [
     "SHORT_DIPOLE_GAIN_DBI",
     "Cancelled",
     "Heatmap",
+    "PROGRESSIVE_STRIDES",
+    "RANK_RESOLUTION_DB",
     "Scene",
     "SpotScores",
     "TurnLevels",
     "grid_for_region",
     "heatmap",
+    "heatmap_stages",
     "near_field_flags",
     "score_levels",
     "score_spots",
     "score_vehicle",
     "spot_levels",
     "spot_turns",
+    "tie_note",
     "vehicle_hull",
     "vehicle_spot_arrays",
     "worst_case",

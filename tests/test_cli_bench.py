@@ -5,6 +5,8 @@ from __future__ import annotations
 
 import re
 
+import pytest
+
 from app.cli.main import main
 
 SUMMARY = re.compile(
@@ -21,8 +23,33 @@ def test_bench_quick_prints_the_summary_line_with_positive_figures(capsys):
     assert all(x > 0 for x in values), values
     # one line per figure before the summary
     for key in ("heatmap:", "heatmap links per second:", "single spot", "scalar reference:",
-                "peak memory of the heatmap call:", "peak memory of a", "cost growth:", "defence analysis of 10 spots"):
+                "peak memory of the heatmap call:", "peak memory of a", "cost growth:", "defence analysis of 10 spots",
+                "progressive heatmap: first coarse stage", "heatmap cells on a thread pool:",
+                "bare numpy crossing test of the heatmap's"):
         assert any(line.startswith(key) for line in lines), key
+    # the desktop section (issue 14 item 4, issue 17 item 3): the real window offscreen, figures and limits
+    text = "\n".join(lines)
+    spot = float(re.search(r"^desktop engine single spot: (\S+) ms", text, re.MULTILINE).group(1))
+    for what, limit in (("drag step", 3), ("drop", 5)):
+        m = re.search(rf"^desktop {what}: (\S+) ms \(median of \d+\) = (\S+) x the single spot \(limit {limit} x\)$",
+                      text, re.MULTILINE)
+        assert m, what
+        ms, ratio = float(m.group(1)), float(m.group(2))
+        assert ms > 0 and ratio == pytest.approx(ms / spot, abs=0.006)  # the ratio is of the figures printed
+    m = re.search(r"^desktop progressive heatmap .*first coarse map shown after (\S+) s, full map after (\S+) s: "
+                  r"first = (\S+) % of the full", text, re.MULTILINE)
+    assert m and 0 < float(m.group(1)) <= float(m.group(2))
+
+
+def test_bench_can_skip_the_desktop_section(capsys, monkeypatch):
+    from app.cli import bench
+
+    def fail(*_a, **_k):
+        raise AssertionError("the desktop section ran")
+
+    monkeypatch.setattr(bench, "desktop_figures", fail)
+    assert main(["bench", "--quick", "--quiet", "--no-desktop", "--wheel-model", "knife_edge"]) == 0
+    assert "desktop" not in capsys.readouterr().out
 
 
 def test_step_for_spots_gives_at_least_the_asked_number_of_spots():

@@ -17,6 +17,7 @@ from core.scoring import (
     Scene,
     grid_for_region,
     heatmap,
+    heatmap_stages,
     score_levels,
     score_spots,
     score_vehicle,
@@ -286,3 +287,79 @@ def test_heatmap_cancel_raises_before_the_next_chunk(small_scene):
     with pytest.raises(Cancelled):
         heatmap(small_scene, region, 0.2, progress=lambda d, t: calls.append(d), cancel=lambda: True)
     assert calls == []
+
+
+@pytest.mark.parametrize("n_angles", [72, 90, 360])
+def test_burst_on_the_start_grid_equals_general_interpolation(n_angles, monkeypatch):
+    # The burst's shortcut when the level's angles are start angles (core.burst._best_frames: linear
+    # interpolation between start angles, which is exact there) against np.interp on the level's own
+    # angles for every frame (the general path): same linear interpolation, so equal to round-off.
+    from core import burst
+
+    rng = np.random.default_rng(11)
+    a = _angles(n_angles)
+    levels = -95 + 12 * np.sin(a[None, :] + np.array([[0.0], [1.3]])) + rng.normal(0, 3, (2, n_angles))
+    speeds = np.linspace(0.0, 20.0, 97)
+    radius = np.array([R_M, 1.1 * R_M])
+    assert burst._on_start_grid(a, START_ANGLES)
+    fast = burst_success(levels, a, -88.0, 3, DT_S, speeds, radius)
+    monkeypatch.setattr(burst, "_on_start_grid", lambda _a, _t: False)
+    general = burst_success(levels, a, -88.0, 3, DT_S, speeds, radius)
+    np.testing.assert_allclose(fast.margin_db, general.margin_db, atol=1e-9)
+    np.testing.assert_allclose(fast.success, general.success, atol=1.0 / START_ANGLES + 1e-12)
+    assert np.mean(fast.success == general.success) > 0.99
+    assert 0.05 < float(general.success.mean()) < 0.95  # the threshold cuts the turn: the test can fail
+
+
+def test_burst_off_the_start_grid_takes_the_general_path():
+    # 7 angles per turn are not start angles (720 / 7 is not whole): the shortcut must not apply
+    from core import burst
+
+    assert not burst._on_start_grid(_angles(7), START_ANGLES)
+    assert not burst._on_start_grid(_angles(72) + 0.01, START_ANGLES)
+
+
+# --- progressive heatmap (issue 17 item 3) ---------------------------------------------------
+
+
+def test_heatmap_stages_coarse_cells_are_the_full_heatmaps_cells_and_the_last_stage_is_the_heatmap(small_scene):
+    # Each stage computes only new cells; the last stage must equal the one-stage heatmap exactly
+    # (same engine call per cell), and a coarse stage's cell must be the full grid's cell at that point.
+    region = _triangle_region()
+    full = heatmap(small_scene, region, 0.1)
+    stages = list(heatmap_stages(small_scene, region, 0.1))
+    assert [h.stride for h in stages] == [4, 2, 1]
+    assert [h.complete for h in stages] == [False, False, True]
+    last = stages[-1]
+    np.testing.assert_array_equal(last.margin_db, full.margin_db)  # nan in the same places too
+    np.testing.assert_array_equal(last.worst_wheel, full.worst_wheel)
+    np.testing.assert_array_equal(last.cell_state, full.cell_state)
+    np.testing.assert_array_equal(last.u_m, full.u_m)
+    for h in stages[:-1]:
+        k, o = h.stride, 1  # offset (4 - 1) // 2 = 1 in both directions, the same for every stage
+        np.testing.assert_array_equal(h.u_m, full.u_m[o::k])
+        np.testing.assert_array_equal(h.v_m, full.v_m[o::k])
+        np.testing.assert_array_equal(h.margin_db, full.margin_db[o::k, o::k])
+        np.testing.assert_array_equal(h.cell_state, full.cell_state[o::k, o::k])
+        assert h.step_m == pytest.approx(0.1 * k)
+        assert 0 < int(h.computed.sum()) < int(full.computed.sum())
+    # the coarse cells are where the engine puts a single spot (a cell of the coarse stage, scored alone)
+    iv, iu = np.argwhere(stages[0].computed)[0]
+    p = stages[0].points()[iv, iu]
+    assert stages[0].margin_db[iv, iu] == pytest.approx(score_spots(small_scene, [p]).margin_db[0], abs=1e-9)
+
+
+def test_heatmap_stages_progress_counts_every_cell_once_and_cancel_stops(small_scene):
+    region = _triangle_region()
+    calls = []
+    stages = list(heatmap_stages(small_scene, region, 0.1, progress=lambda d, t: calls.append((d, t))))
+    total = int(stages[-1].computed.sum())
+    assert all(t == total for _, t in calls) and calls[-1][0] == total
+    assert [d for d, _ in calls] == sorted(d for d, _ in calls)
+    seen = []
+    gen = heatmap_stages(small_scene, region, 0.1, cancel=lambda: len(seen) >= 1)
+    seen.append(next(gen))  # the coarse stage arrives, then the cancel flag stops the next one
+    with pytest.raises(Cancelled):
+        next(gen)
+    with pytest.raises(ValueError):
+        list(heatmap_stages(small_scene, region, 0.1, strides=(2, 4, 1)))

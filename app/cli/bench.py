@@ -12,7 +12,11 @@ In one process and one run, after a warm-up, it measures (medians of several rep
   (numpy reports its buffers to tracemalloc), measured in separate untimed runs;
 - cost growth: one run each for grids of 600, 2,400 and 9,600 spots;
 - defence analysis (issue 13): scoring 10 spots and core.defence.defend of them (link budgets by term,
-  tornado, Monte-Carlo P(pass)), median time and its ratio to the heatmap of the same run.
+  tornado, Monte-Carlo P(pass)), median time and its ratio to the heatmap of the same run;
+- desktop program (issue 14, when PySide6 is importable; ``--no-desktop`` skips it): the real window
+  built offscreen; one drag step of a spot until its live margin is shown and the drop until the
+  window is idle again (app.gui.drag_timing), medians, each as a ratio to the engine's single-spot
+  time of the same spot measured in the same run, against the limits 3x and 5x.
 
 One line per figure, then the summary line
 ``heatmap_s=<x> spot_ms=<y> speedup=<z> links_per_s=<w> peak_mib=<m>``.
@@ -139,6 +143,126 @@ def reference_seconds_per_link(v, scene, points: np.ndarray, n_links: int, seed:
     return (time.perf_counter() - t0) / n_links, degenerate
 
 
+def bare_crossings(a: np.ndarray, b: np.ndarray, top, side) -> int:
+    """The bare numpy crossing test: how many outline edges (top view in x-y, side view in x-z) the
+    segments a -> b (N, 3) m cross; no order, no zones, no wheelhouses, no passages (the floor a
+    per-link kernel is measured against, issue 17)."""
+    n = 0
+    for (i, j), ed in (((0, 1), top), ((0, 2), side)):
+        au, av = a[:, i, None], a[:, j, None]
+        du, dv = b[:, i, None] - au, b[:, j, None] - av
+        ex, ey = ed.e[None, :, 0], ed.e[None, :, 1]
+        wx, wy = ed.p0[None, :, 0] - au, ed.p0[None, :, 1] - av
+        den = du * ey - dv * ex
+        with np.errstate(divide="ignore", invalid="ignore"):
+            inv = 1.0 / den
+            t = (wx * ey - wy * ex) * inv
+            s = (wx * dv - wy * du) * inv
+        n += int(np.count_nonzero((t > 0.0) & (t < 1.0) & (s >= 0.0) & (s < 1.0)))
+    return n
+
+
+def heatmap_segments(scene, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The direct-ray segments of a heatmap: every (spot, wheel, angle) sensor -> spot, (N, 3) each, m."""
+    src = scene.sensor_pos.reshape(-1, 3)
+    a = np.broadcast_to(src[None], (len(points), *src.shape)).reshape(-1, 3)
+    b = np.repeat(points, len(src), axis=0)
+    return a, b
+
+
+def bare_crossing_seconds(scene, points: np.ndarray, chunk_links: int) -> tuple[float, int]:
+    """Time of :func:`bare_crossings` over all direct links of the heatmap, in chunks of the engine's size, s;
+    and the number of edge crossings found."""
+    per = max(1, chunk_links // max(1, scene.sensor_pos.shape[0] * scene.sensor_pos.shape[1]))
+    t0 = time.perf_counter()
+    n = 0
+    for i in range(0, len(points), per):
+        a, b = heatmap_segments(scene, points[i:i + per])
+        n += bare_crossings(a, b, scene.hull.top_edges, scene.hull.side_edges)
+    return time.perf_counter() - t0, n
+
+
+def threaded_heatmap_seconds(scene, points: np.ndarray, threads: int) -> float:
+    """Wall-clock time, s, of the heatmap's cells scored in ``threads`` equal parts on a thread pool
+    (concurrent.futures; numpy releases the interpreter lock inside its array operations only)."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    from core.scoring import score_spots
+
+    parts = np.array_split(points, threads)
+    t0 = time.perf_counter()
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        list(pool.map(lambda p: score_spots(scene, p), parts))
+    return time.perf_counter() - t0
+
+
+_POOL_SCENE = None  # the scene of a worker process of the process-pool figure
+
+
+def _pool_init(blob: bytes) -> None:
+    import pickle
+
+    global _POOL_SCENE
+    _POOL_SCENE = pickle.loads(blob)
+
+
+def _pool_margins(points: np.ndarray) -> np.ndarray:
+    from core.scoring import score_spots
+
+    return score_spots(_POOL_SCENE, points).margin_db
+
+
+def process_pool_seconds(scene, points: np.ndarray, workers: int, repeats: int) -> tuple[float, float, bool]:
+    """The heatmap's cells scored in ``workers`` equal parts on a process pool (spawned processes, the scene
+    sent once, pickled): pool start-up s, median wall-clock s of the scoring on the started pool, and whether
+    the margins equal those of one call in this process."""
+    import multiprocessing
+    import pickle
+    from concurrent.futures import ProcessPoolExecutor
+
+    from core.scoring import score_spots
+
+    parts = np.array_split(points, workers)
+    t0 = time.perf_counter()
+    with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("spawn"), initializer=_pool_init,
+                             initargs=(pickle.dumps(scene),)) as pool:
+        list(pool.map(_pool_margins, [p[:1] for p in parts]))  # every worker started and warm
+        start_s = time.perf_counter() - t0
+        times, margins = [], None
+        for _ in range(repeats):
+            t1 = time.perf_counter()
+            margins = np.concatenate(list(pool.map(_pool_margins, parts)))
+            times.append(time.perf_counter() - t1)
+    same = bool(np.array_equal(margins, score_spots(scene, points).margin_db, equal_nan=True))
+    return start_s, statistics.median(times), same
+
+
+def parallel_figures(scene, points: np.ndarray, heat_s: float, repeats: int, out=print) -> dict:
+    """Issue 17 item 4 without a compiled kernel: the heatmap's cells on 1 thread and on all cores (a
+    thread pool), and the bare numpy crossing test of the same direct links, from the same run."""
+    from core.scoring import CHUNK_LINKS
+
+    n_all = os.cpu_count() or 1
+    threaded_heatmap_seconds(scene, points[: max(1, len(points) // 8)], n_all)  # warm-up of the pool
+    one = statistics.median(threaded_heatmap_seconds(scene, points, 1) for _ in range(repeats))
+    every = statistics.median(threaded_heatmap_seconds(scene, points, n_all) for _ in range(repeats))
+    out(f"heatmap cells on a thread pool: {one:.3f} s on 1 thread, {every:.3f} s on {n_all} "
+        f"(speed-up x{one / every:.2f}; numpy releases the interpreter lock only inside array operations)")
+    start_s, procs, same = process_pool_seconds(scene, points, n_all, repeats)
+    out(f"heatmap cells on a process pool of {n_all}: {procs:.3f} s (median of {repeats}; pool start-up "
+        f"{start_s:.3f} s not included) against {one:.3f} s in one process: speed-up x{one / procs:.2f}; "
+        f"margins {'identical' if same else 'DIFFERENT'} to one call")
+    every = min(every, procs)
+    bare_s, n_cross = min((bare_crossing_seconds(scene, points, CHUNK_LINKS) for _ in range(repeats)),
+                          key=lambda r: r[0])
+    n_links = len(points) * scene.sensor_pos.shape[0] * scene.sensor_pos.shape[1]
+    best = min(heat_s, every)
+    out(f"bare numpy crossing test of the heatmap's {n_links} direct links against the same outlines "
+        f"({n_cross} edge crossings, no zones, wheelhouses, passages or road ray): {bare_s:.3f} s (best of "
+        f"{repeats}); heatmap = {heat_s / bare_s:.1f} x the bare test, on all cores {best / bare_s:.1f} x")
+    return {"threads_1_s": one, "threads_all_s": every, "processes_s": procs, "bare_s": bare_s}
+
+
 DEFENCE_SPOTS = 10
 
 
@@ -202,6 +326,13 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
         f"{links} links: {heat_s:.3f} s (median of {repeats}; CPU time {heat_cpu_s:.3f} s)")
     out(f"heatmap links per second: {links / heat_s:,.0f}")
 
+    from core.scoring import heatmap_stages
+
+    coarse_s, coarse, _ = _median_time(lambda: next(heatmap_stages(scene, region, step)), repeats)
+    out(f"progressive heatmap: first coarse stage (every {coarse.stride}th cell, {coarse.step_m * 1000:.0f} mm, "
+        f"{int(coarse.computed.sum())} spots): {coarse_s:.3f} s (median of {repeats}) = "
+        f"{100 * coarse_s / heat_s:.1f} % of the full heatmap (target 10 %)")
+
     u, vv, mask, fixed = grid_for_region(region, step)
     uu, vg = np.meshgrid(u, vv)
     pts = np.stack([uu, vg, np.full_like(uu, fixed)], axis=-1)[mask]
@@ -213,6 +344,7 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
     spot_s, _, _ = _median_time(lambda: score_spots(scene, one), spot_repeats)
     out(f"single spot ({one[0, 0]:.2f}, {one[0, 1]:.2f}, {one[0, 2]:.2f}) m, {W} wheels x {A} angles: "
         f"{spot_s * 1e3:.2f} ms (median of {spot_repeats})")
+    parallel_figures(scene, pts, heat_s, max(1, min(3, repeats)), out)
 
     defence_s, n_def, d_links = defence_seconds(v, scene, hm, repeats)
     out(f"defence analysis of {n_def} spots (scores, budgets by term, tornado, {DEFAULT_DRAWS}-draw P(pass); "
@@ -261,6 +393,90 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
     }
 
 
+#: limits of issue 14 item 4: a drag step and a drop as multiples of the engine's single-spot time
+DRAG_LIMIT = 3.0
+DROP_LIMIT = 5.0
+
+
+def desktop_figures(path, repeats: int, out=print) -> dict | None:
+    """Drag step and drop of the selected spot in the real window (offscreen), against the engine's
+    single-spot time of that spot in the same run; None when PySide6 is not importable."""
+    try:
+        import PySide6  # noqa: F401
+    except ImportError:
+        out("desktop program: not benched (PySide6 is not installed)")
+        return None
+    v = load_vehicle(path)
+    if not v.spots or not v.regions:
+        out("desktop program: not benched (the file needs a receiver spot to drag and a mounting region)")
+        return None
+    import tempfile
+
+    from PySide6.QtCore import QSettings
+    from PySide6.QtWidgets import QApplication
+
+    app = QApplication.instance()
+    if app is None:
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"  # never opens a window on the user's screen
+        app = QApplication([sys.argv[0]])
+    from app.gui import tasks
+    from app.gui.document import Document
+    from app.gui.drag_timing import median_ms, settle, time_drag_and_drop, time_progressive_heatmap
+    from app.gui.window import MainWindow
+    from core.scoring import score_spots
+
+    with tempfile.TemporaryDirectory(prefix="wheelreach-bench-") as tmp:
+        settings = QSettings(os.path.join(tmp, "settings.ini"), QSettings.Format.IniFormat)
+        settings.setValue("recovery_folder", os.path.join(tmp, "recovery"))
+        doc = Document(v, path)
+        win = MainWindow(doc, settings=settings, autosave=False)
+        win.ranking.heatmap.auto.setChecked(False)
+        win.resize(1600, 1000)
+        win.show()
+        try:
+            settle(win)
+            time_drag_and_drop(win, 1)  # warm-up: first paints, caches
+            name = doc.selected
+            spot = doc.scores.positions[doc.spot_row(name)][None, :]
+            axis = doc._spot_axis(name)
+            for _ in range(3):
+                score_spots(doc.scene, spot, axis)
+            spot_times: list[float] = []
+
+            def time_spot():  # interleaved with the drags: the same load of the machine for both
+                for _ in range(6):
+                    t0 = time.perf_counter()
+                    score_spots(doc.scene, spot, axis)
+                    spot_times.append(time.perf_counter() - t0)
+
+            steps, drops, name = time_drag_and_drop(win, max(3, repeats), between=time_spot)
+            spot_s, n_spot = statistics.median(spot_times), len(spot_times)
+            step_m = 0.2 if repeats <= 1 else 0.05  # --quick: the panel's coarsest grid
+            runs = [time_progressive_heatmap(win, step_m) for _ in range(1 if repeats <= 1 else 3)]
+        finally:
+            win.ranking.heatmap.abandon()
+            doc.undo_stack.setClean()
+            win.close()
+            tasks.shutdown(30.0)
+            app.processEvents()
+    step_ms, drop_ms, spot_ms = median_ms(steps), median_ms(drops), spot_s * 1e3
+    out(f"desktop program: {doc.vehicle.name}, spot {name!r}, wheel model {doc.scene.wheel_model_label}, "
+        f"window 1600 x 1000 ({app.platformName()} platform)")
+    out(f"desktop engine single spot: {spot_ms:.2f} ms (median of {n_spot}, taken between the drags; the dragged "
+        f"spot, its own axis)")
+    out(f"desktop drag step: {step_ms:.2f} ms (median of {len(steps)}) = {step_ms / spot_ms:.2f} x the single spot "
+        f"(limit {DRAG_LIMIT:.0f} x)")
+    out(f"desktop drop: {drop_ms:.2f} ms (median of {len(drops)}) = {drop_ms / spot_ms:.2f} x the single spot "
+        f"(limit {DROP_LIMIT:.0f} x)")
+    first = statistics.median(r[0] for r in runs)
+    full = statistics.median(r[1] for r in runs)
+    hm = runs[-1][2]
+    out(f"desktop progressive heatmap ({int(hm.computed.sum())} cells, {hm.step_m * 1000:.0f} mm, median of "
+        f"{len(runs)}): first coarse map shown after {first:.3f} s, full map after {full:.3f} s: first = "
+        f"{100 * first / full:.1f} % of the full (target 10 %)")
+    return {"spot_ms": spot_ms, "drag_ms": step_ms, "drop_ms": drop_ms, "first_s": first, "full_s": full}
+
+
 def summary_line(fig: dict) -> str:
     sp = "n/a" if fig["speedup"] is None else f"{fig['speedup']:.0f}"
     return (f"heatmap_s={fig['heatmap_s']:.3f} spot_ms={fig['spot_ms']:.2f} speedup={sp} "
@@ -306,6 +522,8 @@ def _cmd_bench(args) -> int:
     if not figures:
         print("error: nothing to bench", file=sys.stderr)
         return 1
+    if not args.no_desktop:
+        desktop_figures(path, repeats)
     for name, fig in figures[1:]:
         print(f"{name}: {summary_line(fig)}")
     print(f"{figures[0][0]}: see the summary line below")
@@ -322,5 +540,7 @@ def register(sub) -> None:
     b.add_argument("--wheel-model", choices=["knife_edge", "installed_pattern", "both"],
                    help="wheel model to bench (default: both; the summary line is the knife-edge model's, "
                         "which the scalar reference covers)")
+    b.add_argument("--no-desktop", action="store_true",
+                   help="skip the desktop program's drag and drop timings (they build the window offscreen)")
     add_progress_options(b)
     b.set_defaults(func=_cmd_bench)

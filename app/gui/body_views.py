@@ -208,6 +208,7 @@ class BodyView(QWidget):
         roi = pg.PolyLineROI([list(p) for p in pts], closed=True, movable=False, pen=pg.mkPen(BODY_COLOUR, width=2))
         roi.setZValue(10)
         roi.sigRegionChangeFinished.connect(self._body_edited)
+        roi.sigRegionChanged.connect(lambda r: self._outline_moving("body", -1, r))
         self.body_roi = self._add(roi)
 
     def _draw_zones(self, v) -> None:
@@ -227,6 +228,7 @@ class BodyView(QWidget):
                                      pen=pg.mkPen(material_colour(z.material, 255), width=2))
                 roi.setZValue(12)
                 roi.sigRegionChangeFinished.connect(lambda r, i=i: self._zone_edited(i, r))
+                roi.sigRegionChanged.connect(lambda r, i=i: self._outline_moving("zone", i, r))
                 self.zone_roi = self._add(roi)
         parts = [f"<span style='background-color:{c.name()}'>&nbsp;&nbsp;&nbsp;&nbsp;</span> {m}" for m, c in seen.items()]
         self.legend.setText("zones: " + " &nbsp; ".join(parts) if parts else "no panel zones in this view")
@@ -244,6 +246,7 @@ class BodyView(QWidget):
         roi.setZValue(5)
         roi.setToolTip(f"Mounting region '{r.name}' (heatmap area)")
         roi.sigRegionChangeFinished.connect(lambda rr, i=i: self._region_edited(i, rr))
+        roi.sigRegionChanged.connect(lambda rr, i=i: self._outline_moving("region", i, rr))
         self.region_roi = self._add(roi)
 
     def _draw_wheels(self) -> None:
@@ -431,6 +434,21 @@ class BodyView(QWidget):
             q = roi.mapToParent(p)
             pts.append((edits.snap(q.x(), self.doc.snap_m), edits.snap(q.y(), self.doc.snap_m)))
         return pts
+
+    def _outline_moving(self, kind: str, index: int, roi) -> None:
+        """An outline ("body"), zone or region is being dragged: the document previews the state under the
+        mouse (the heatmap follows it); one preview per turn of the event loop, the latest winning."""
+        if self._sync:
+            return
+        pts = self._roi_points(roi)
+        if kind == "body":
+            key = "top_outline" if self.view == "top" else "side_outline"
+            make = lambda v: edits.set_outline(v, key, pts)
+        elif kind == "zone":
+            make = lambda v: edits.set_zone_outline(v, index, pts)
+        else:
+            make = lambda v: edits.set_region_outline(v, index, pts)
+        run_soon((self, "preview"), lambda: self.doc.preview(make))
 
     def _body_edited(self, roi) -> None:
         if self._sync:

@@ -120,6 +120,7 @@ class Document(QObject):
     scoresReady = Signal()  # scores of the file's spots changed (check ``pending`` for rows not scored yet)
     scoringProgress = Signal(int, int)  # spots scored, spots to score (a worker is scoring); (0, 0): idle
     liveScore = Signal(str, object)  # spot name, SpotScores of one spot at its dragged position
+    previewChanged = Signal(object)  # an outline, zone or region is being dragged: the (valid) Vehicle under the mouse
     selectionChanged = Signal(str)  # selected spot name ("" for none)
     zoneSelectionChanged = Signal(int)  # index into vehicle.zones, -1 for none
     regionSelectionChanged = Signal(int)  # index into vehicle.regions (the heatmap's region)
@@ -139,6 +140,7 @@ class Document(QObject):
         self.selected_zone: int = -1
         self.region_index: int = 0
         self.live: tuple[str, SpotScores] | None = None
+        self._live_axis = np.zeros(3)  # the receiver axis the live score was computed with
         self.vehicle: Vehicle = vehicle
         self.scene: Scene = Scene.from_vehicle(vehicle)
         self.physics: int = next(_physics_ids)
@@ -196,8 +198,12 @@ class Document(QObject):
         self._old_axes = ax
         todo = np.nonzero(reuse < 0)[0]
         scene = p.scene
+        # a dropped spot was scored at this very position while it was dragged: not scored again
+        live = self._live_parts(names, pos, ax, todo) if same_physics else []
+        if live:
+            todo = np.setdiff1d(todo, np.concatenate([r for r, _ in live]))
         if len(todo) * len(scene.wheels) * len(scene.angles_rad) <= SYNC_LINKS:
-            scores = assemble_scores(scene, names, pos, old, reuse, score_rows(scene, pos, ax, todo))
+            scores = assemble_scores(scene, names, pos, old, reuse, live + score_rows(scene, pos, ax, todo))
             pending = np.zeros(len(names), bool)
         else:
             # until the worker is done: the reused rows are shown when they keep their places (a spot
@@ -210,7 +216,7 @@ class Document(QObject):
                 for f in _SCORE_FIELDS[1:]:
                     getattr(scores, f)[keep] = getattr(old, f)[keep]
                 pending = ~keep
-            self._start_scoring(scene, names, pos, ax, old, reuse, todo)
+            self._start_scoring(scene, names, pos, ax, old, reuse, todo, live)
         self.scores, self.pending = scores, pending
         self.live = None
         self._live_request = None
@@ -223,6 +229,18 @@ class Document(QObject):
         if emit and not first:
             self.vehicleChanged.emit()
             self.scoresReady.emit()
+
+    def _live_parts(self, names, pos, ax, todo) -> list[tuple[np.ndarray, SpotScores]]:
+        """The live score of the dragged spot as an assembled part, when one of the rows ``todo`` is that
+        spot at the position and axis it was scored at while dragged (the same engine call, the same
+        physics: the drop needs no new scoring)."""
+        if self.live is None:
+            return []
+        name, sc = self.live
+        for i in todo:
+            if names[i] == name and np.array_equal(pos[i], sc.positions[0]) and np.array_equal(ax[i], self._live_axis):
+                return [(np.array([i]), sc)]
+        return []
 
     def replace(self, v: Vehicle, path: str | Path | None) -> None:
         """Start over with a new vehicle (File > New / Open): clears the undo history."""
@@ -247,9 +265,12 @@ class Document(QObject):
         return int(self.scores.order()[0]) if not self.pending.any() else 0
 
     # ----- scoring in a worker ----------------------------------------------------------
-    def _start_scoring(self, scene: Scene, names, pos, ax, old: SpotScores, reuse, rows) -> None:
+    def _start_scoring(self, scene: Scene, names, pos, ax, old: SpotScores, reuse, rows, known=()) -> None:
+        known = list(known)
+
         def run(progress, cancel):
-            return assemble_scores(scene, names, pos, old, reuse, score_rows(scene, pos, ax, rows, progress, cancel))
+            return assemble_scores(scene, names, pos, old, reuse,
+                                   known + score_rows(scene, pos, ax, rows, progress, cancel))
 
         task = Task(run, f"scoring {len(rows)} spots")
         task.gen = self._generation
@@ -320,6 +341,19 @@ class Document(QObject):
         self.statusMessage.emit(text)
         return True
 
+    def preview(self, make: Callable[[Vehicle], Vehicle]) -> bool:
+        """An outline, zone or region is being dragged: ``make(vehicle)`` is the state under the mouse. When
+        it is a valid vehicle, ``previewChanged`` tells the views (the heatmap recomputes for it); nothing is
+        edited or pushed, the drop makes the edit. Returns False for a state ``core`` refuses (shown at the drop)."""
+        try:
+            v = make(self.vehicle)
+            check_vehicle(v)
+        except Exception:  # noqa: BLE001 - a state in the middle of a drag may be invalid; the drop says why
+            return False
+        if v != self.vehicle:
+            self.previewChanged.emit(v)
+        return True
+
     def _refuse(self, text: str, why: str) -> bool:
         self.statusMessage.emit(f"Edit refused ({text}): {why}")
         self.vehicleChanged.emit()
@@ -372,7 +406,7 @@ class Document(QObject):
         None is returned."""
         if len(self.scene.wheels) * len(self.scene.angles_rad) <= SYNC_LINKS:
             sc = self.score_at(name, pos)
-            self.live = (name, sc)
+            self.live, self._live_axis = (name, sc), self._spot_axis(name)[0]
             self.liveScore.emit(name, sc)
             return sc
         self._live_request = (name, tuple(float(c) for c in pos))
@@ -385,7 +419,7 @@ class Document(QObject):
         self._live_request = None
         scene, axis = self.scene, self._spot_axis(name)
         task = Task(lambda _p, _c: score_spots(scene, np.asarray(pos)[None, :], axis, [name]), "live score")
-        task.gen, task.spot = self._generation, name
+        task.gen, task.spot, task.axis = self._generation, name, axis[0]
         task.done.connect(self._live_done)
         self._live_task = task
         task.start()
@@ -397,7 +431,7 @@ class Document(QObject):
         if self._live_request is not None:
             self._start_live()  # the mouse moved on: only the latest position is shown
             return
-        self.live = (task.spot, sc)
+        self.live, self._live_axis = (task.spot, sc), task.axis
         self.liveScore.emit(task.spot, sc)
 
     # ----- files --------------------------------------------------------------------

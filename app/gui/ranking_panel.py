@@ -30,6 +30,7 @@ from PySide6.QtWidgets import (
 )
 
 from app.gui import edits
+from app.gui.body_views import _only_spots_moved
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
 from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, wheel_colour
@@ -60,15 +61,22 @@ def _plot(title: str, bottom: str, left: str, bottom_units: str | None = None, l
 
 
 class HeatmapPanel(QWidget):
-    """Heatmap of the worst-case margin over the mounting region, computed in a worker thread."""
+    """Heatmap of the worst-case margin over the mounting region, computed in a worker thread.
 
-    heatmapReady = Signal(object)
+    The heatmap is progressive: a coarse grid (every 4th cell) is shown first, then refined while the
+    user looks (app.gui.heatmap_worker). With "auto" on it is recomputed after every edit, and while an
+    outline, zone or region is dragged (``preview``), each move cancelling the run of the one before."""
+
+    heatmapReady = Signal(object)  # the full heatmap (core.scoring.Heatmap) is shown
+    stageShown = Signal(object)  # a coarse stage (Heatmap with stride > 1) is shown
 
     def __init__(self, doc: Document, parent: QWidget | None = None):
         super().__init__(parent)
         self.doc = doc
         self.job: HeatmapJob | None = None
-        self.result = None  # the last complete core.scoring.Heatmap
+        self.result = None  # the heatmap shown: the last complete core.scoring.Heatmap, or a coarse stage
+        self._shown_for = None  # (vehicle, region, step) of the heatmap shown (or being refined)
+        self._preview = None  # the latest dragged vehicle waiting for the run it superseded to stop
         self._outline_items: list = []
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
@@ -127,6 +135,9 @@ class HeatmapPanel(QWidget):
         doc.vehicleChanged.connect(self._vehicle_changed)
         doc.regionSelectionChanged.connect(lambda _i: self._vehicle_changed())
         doc.documentReplaced.connect(self._document_replaced)
+        doc.previewChanged.connect(self.preview)
+        doc.liveScore.connect(self._live_spot)
+        self._drawn_vehicle = None  # the vehicle the body outline was drawn from
         self.plot.scene().sigMouseMoved.connect(self._hover)
         self.plot.scene().sigMouseClicked.connect(self._clicked)
         self._draw_context()
@@ -136,17 +147,24 @@ class HeatmapPanel(QWidget):
         v = self.doc.vehicle
         return v.regions[self.doc.region_index] if v.regions else None
 
-    def start(self) -> None:
-        """Start (or restart) the heatmap of the current region in a worker thread.
+    def start(self, vehicle=None) -> None:
+        """Start (or restart) the heatmap of the current region in a worker thread (of ``vehicle``, a
+        dragged state not yet in the document, when given; its scene is built in the worker).
 
         A run still going is asked to stop and dropped: its result, if it still comes, is ignored.
         Nothing waits for its thread."""
-        region = self.region()
+        self._preview = None
+        self._debounce.stop()
+        v = vehicle if vehicle is not None else self.doc.vehicle
+        region = v.regions[self.doc.region_index] if v.regions and self.doc.region_index < len(v.regions) else None
         self._drop_job()
         if region is None:
             self._ended("This vehicle has no mounting region: add one to the file to get a heatmap.")
             return
-        job = HeatmapJob(self.doc.scene, region, float(self.step.currentData()))
+        step = float(self.step.currentData())
+        job = HeatmapJob(vehicle if vehicle is not None else self.doc.scene, region, step)
+        job.key = (v, region, step)
+        job.stage.connect(self._stage)
         job.progress.connect(self._progress)
         job.done.connect(self._done)
         job.cancelled.connect(self._cancelled)
@@ -161,16 +179,35 @@ class HeatmapPanel(QWidget):
 
     def cancel(self) -> None:
         """Ask the running heatmap to stop (returns at once; the panel says so when it has stopped)."""
-        if self.job is not None and not self.job.cancel_requested():
-            self.job.cancel()
-            self.cancel_button.setEnabled(False)
-            self.readout.setText("Cancelling the heatmap...")
+        job = self.job
+        if job is None or (job.cancel_requested() and not getattr(job, "superseded", False)):
+            return
+        self._preview = None  # no run for a dragged outline after this one either
+        job.superseded = False  # the user's cancel: said so when the run has stopped
+        job.cancel()
+        self.cancel_button.setEnabled(False)
+        self.readout.setText("Cancelling the heatmap...")
 
     def _drop_job(self) -> None:
         """Stop listening to the current run and ask it to stop."""
         job, self.job = self.job, None
         if job is not None:
             job.cancel()
+
+    def preview(self, vehicle) -> None:
+        """An outline, zone or region is being dragged (``vehicle``: the state under the mouse): with
+        "auto" on, recompute for it, coarse first. The next move cancels the run; the run after it starts
+        when the cancelled one has stopped (within a chunk), so drags never pile up worker threads."""
+        if not self.auto.isChecked() or vehicle is None:
+            return
+        job = self.job
+        if job is not None and job.isRunning() and getattr(job, "key", (None,))[0] is not vehicle:
+            self._preview = vehicle  # started by _job_ended once this run has stopped
+            job.superseded = True
+            job.cancel()
+            self.readout.setText("Recomputing the margin for the dragged outline...")
+            return
+        self.start(vehicle)
 
     def abandon(self) -> None:
         """Drop the running heatmap without waiting (the window closes or shows another document)."""
@@ -201,7 +238,7 @@ class HeatmapPanel(QWidget):
         self.readout.setText(text)
 
     def _cancelled(self, job) -> None:
-        if job is self.job:
+        if job is self.job and not getattr(job, "superseded", False):
             self.job = None
             self._ended("Heatmap cancelled.")
 
@@ -211,18 +248,33 @@ class HeatmapPanel(QWidget):
             self._ended(f"Heatmap failed: {msg}")
 
     def _job_ended(self, job) -> None:
+        if job is self.job and self._preview is not None:  # superseded by a drag: the latest state's turn
+            self.start(self._preview)
+            return
         if job is self.job:  # the thread stopped without a result (should not happen): leave a usable state
             self.job = None
             self._ended("Heatmap stopped.")
 
+    def _stage(self, job, hm) -> None:
+        """A coarse stage arrived: shown at once, the refinement goes on."""
+        if job is not self.job or getattr(job, "superseded", False):
+            return
+        self.result = hm
+        self._shown_for = job.key
+        self.show_heatmap(hm, job.key[0])
+        self.readout.setText(f"Coarse map on a {hm.step_m * 1000:.0f} mm grid shown; refining to "
+                             f"{job.step_m * 1000:.0f} mm...")
+        self.stageShown.emit(hm)
+
     def _done(self, job, hm) -> None:
-        if job is not self.job:
+        if job is not self.job or getattr(job, "superseded", False):
             return  # a run that was superseded or belongs to a vehicle no longer shown
         self.job = None
         self._ended(self._summary(hm))
         self.progress.setValue(100)
         self.result = hm
-        self.show_heatmap(hm)
+        self._shown_for = job.key
+        self.show_heatmap(hm, job.key[0])
         self.heatmapReady.emit(hm)
 
     def _summary(self, hm) -> str:
@@ -240,12 +292,32 @@ class HeatmapPanel(QWidget):
         return text
 
     def _vehicle_changed(self) -> None:
-        self._draw_context()
-        if self.auto.isChecked():
+        v, drawn = self.doc.vehicle, self._drawn_vehicle
+        if drawn is not None and v is not drawn and _only_spots_moved(drawn, v):
+            self._drawn_vehicle = v
+            self._draw_spots()  # a spot moved: the body outline stays
+        else:
+            self._draw_context()
+        if self.auto.isChecked() and not self._computed_for_current():
             self._debounce.start()
 
+    def _computed_for_current(self) -> bool:
+        """True when the heatmap shown, or the one being computed, is of the document's vehicle as it stands
+        (e.g. a dragged outline was dropped where its last preview was computed): nothing to recompute."""
+        region, step = self.region(), float(self.step.currentData())
+        job = self.job
+        key = job.key if job is not None and not job.cancel_requested() else self._shown_for if job is None else None
+        return key is not None and key[0] == self.doc.vehicle and key[1] == region and key[2] == step
+
+    def _live_spot(self, name: str, sc) -> None:
+        """A spot is being dragged: its dot follows (the margin map itself does not depend on the spots)."""
+        pos = self.doc.scores.positions.copy()
+        if name in self.doc.scores.names and len(pos):
+            pos[self.doc.scores.names.index(name)] = sc.positions[0]
+            self._set_spots(pos)
+
     # ----- drawing ---------------------------------------------------------------------
-    def show_heatmap(self, hm) -> None:
+    def show_heatmap(self, hm, vehicle=None) -> None:
         m = hm.margin_db  # (nv, nu)
         nu, nv = len(hm.u_m), len(hm.v_m)
         du = (hm.u_m[-1] - hm.u_m[0]) / (nu - 1) if nu > 1 else hm.step_m
@@ -258,10 +330,11 @@ class HeatmapPanel(QWidget):
         self.image.setRect(QRectF(hm.u_m[0] - du / 2, hm.v_m[0] - dv / 2, nu * du, nv * dv))
         self.colorbar.setLevels((-span, span))
         self.iso.setData(*polylines_for_plot(zero_contour(hm)))
-        self._draw_context(hm)
+        self._draw_context(hm, vehicle)
 
-    def _draw_context(self, hm=None) -> None:
-        """Body outline and spots of the heatmap's view, for orientation."""
+    def _draw_context(self, hm=None, vehicle=None) -> None:
+        """Body outline (of ``vehicle``, the one the heatmap shown was computed for, by default the
+        document's) and spots of the heatmap's view, for orientation."""
         pi = self.plot.getPlotItem()
         for it in self._outline_items:
             pi.removeItem(it)
@@ -271,7 +344,8 @@ class HeatmapPanel(QWidget):
         if self.result is not None and region is not None and (self.result.view != region.view):
             self.image.clear()
             self.iso.setData([], [])
-        v = self.doc.vehicle
+        v = vehicle if vehicle is not None else self.doc.vehicle
+        self._drawn_vehicle = v
         pts = v.body.top_outline if view == "top" else v.body.side_outline
         poly = QGraphicsPolygonItem(QPolygonF([QPointF(*p) for p in pts]))
         pen = pg.mkPen(BODY_COLOUR, width=1.2)
@@ -279,7 +353,14 @@ class HeatmapPanel(QWidget):
         pi.addItem(poly)
         self._outline_items.append(poly)
         self.plot.setLabel("left", "y, left" if view == "top" else "z, up", units="m")
-        pos = self.doc.scores.positions
+        self._context_view = view
+        self._draw_spots()
+
+    def _draw_spots(self) -> None:
+        self._set_spots(self.doc.scores.positions)
+
+    def _set_spots(self, pos) -> None:
+        view = getattr(self, "_context_view", "top")
         if len(pos):
             self.spots.setData(pos[:, 0], pos[:, 1] if view == "top" else pos[:, 2])
         else:
@@ -533,6 +614,8 @@ class SpotFigures(QWidget):
         self.burst_result = None
         self.distinctness = None
         self._burst_task: Task | None = None
+        self._levels_drawn = None  # what the level figure shows (_levels_key)
+        self._level_items = None  # (wheel ids, sensitivity, required margin, curves, worst-case mark) drawn
         self._refresh_pending = False  # scores and selection often change together: draw once
         doc.scoresReady.connect(self.schedule_refresh)
         doc.selectionChanged.connect(lambda _n: self.schedule_refresh())
@@ -561,8 +644,11 @@ class SpotFigures(QWidget):
     def refresh(self) -> None:
         self._refresh_pending = False
         i = self._row()
-        for p in (self.levels, self.burst, self.separation):
+        for p in (self.burst, self.separation):
             p.clear()
+        if i is None or self.doc.pending[i]:
+            self.levels.clear()
+            self._levels_drawn = self._level_items = None
         self._drop_burst()
         self.burst_result = None
         if i is None:
@@ -575,7 +661,14 @@ class SpotFigures(QWidget):
             self.separation.setTitle("Wheel separation by signal strength", size="8pt")
             return
         sc = self.doc.scores
-        self._draw_levels(sc, i, self.doc.selected)
+        key = self._levels_key(sc, i, self.doc.selected)
+        drawn = self._levels_drawn
+        if drawn is not None and drawn[:-1] == key[:-1] and np.array_equal(drawn[-1], key[-1]):
+            self._levels_title(sc, i, self.doc.selected)  # a dropped spot: its live curves are these levels
+        else:
+            self.levels.clear()
+            self._draw_levels(sc, i, self.doc.selected)
+            self._levels_drawn = key
         self._start_burst(sc, i)
         self._draw_separation(sc, i)
 
@@ -617,22 +710,31 @@ class SpotFigures(QWidget):
 
     def _live(self, name: str, sc) -> None:
         if name == self.doc.selected:
-            self.levels.clear()
-            self._draw_levels(sc, 0, name + " (moving)")
+            if not self._move_levels(sc, name + " (moving)"):
+                self.levels.clear()
+                self._draw_levels(sc, 0, name + " (moving)")
+            self._levels_drawn = self._levels_key(sc, 0, name)
+
+    def _levels_key(self, sc, i: int, name: str) -> tuple:
+        """What the level figure of spot row ``i`` is drawn from (the levels last)."""
+        return (name, sc.sensitivity_dbm, sc.required_margin_db, sc.wheel_ids, self.doc.physics,
+                np.array(sc.levels_dbm[i]))
 
     def _draw_levels(self, sc, i: int, title: str) -> None:
         p = self.levels
         ang = np.append(sc.angles_deg, 360.0)
         right = {g.id for g in self.doc.scene.wheels if g.outboard_sign < 0}
         self.levels_legend.setColumnCount(max(1, len(sc.wheel_ids)))
+        curves = []
         for w, wid in enumerate(sc.wheel_ids):
             lv = np.append(sc.levels_dbm[i, w], sc.levels_dbm[i, w, 0])
             # right-side wheels dashed: a spot on the centre line hears mirrored wheels alike
             style = Qt.PenStyle.DashLine if wid in right else Qt.PenStyle.SolidLine
-            p.plot(ang, lv, pen=pg.mkPen(wheel_colour(w), width=1.8, style=style), name=wid)
+            curves.append(p.plot(ang, lv, pen=pg.mkPen(wheel_colour(w), width=1.8, style=style), name=wid))
         ww = int(sc.worst_wheel[i])
-        p.plot([sc.worst_angle_deg[i, ww]], [sc.worst_dbm[i, ww]], pen=None, symbol="x", symbolSize=11,
-               symbolPen=pg.mkPen(wheel_colour(ww), width=2.5))
+        worst = p.plot([sc.worst_angle_deg[i, ww]], [sc.worst_dbm[i, ww]], pen=None, symbol="x", symbolSize=11,
+                       symbolPen=pg.mkPen(wheel_colour(ww), width=2.5))
+        self._level_items = (sc.wheel_ids, sc.sensitivity_dbm, sc.required_margin_db, curves, worst)
         sens = sc.sensitivity_dbm
         need = sens + sc.required_margin_db
         p.addItem(pg.InfiniteLine(sens, angle=0, pen=pg.mkPen(180, 30, 30, width=1.5, style=Qt.PenStyle.DashLine),
@@ -644,9 +746,32 @@ class SpotFigures(QWidget):
         hi = max(float(sc.levels_dbm[i].max()), need) + 12
         p.setYRange(lo, hi, padding=0)
         p.setXRange(0, 360, padding=0)
+        self._levels_title(sc, i, title)
+
+    def _move_levels(self, sc, title: str) -> bool:
+        """The dragged spot's new levels (row 0 of ``sc``) into the curves already drawn (no new plot items:
+        a mouse move costs a data update, not a redraw of the figure); False when there is nothing to update."""
+        items = self._level_items
+        if items is None or items[:3] != (sc.wheel_ids, sc.sensitivity_dbm, sc.required_margin_db):
+            return False
+        curves, worst = items[3], items[4]
+        ang = np.append(sc.angles_deg, 360.0)
+        for w, curve in enumerate(curves):
+            curve.setData(ang, np.append(sc.levels_dbm[0, w], sc.levels_dbm[0, w, 0]))
+        ww = int(sc.worst_wheel[0])
+        worst.setData([sc.worst_angle_deg[0, ww]], [sc.worst_dbm[0, ww]])
+        worst.setSymbolPen(pg.mkPen(wheel_colour(ww), width=2.5))
+        need = sc.sensitivity_dbm + sc.required_margin_db
+        self.levels.setYRange(min(float(sc.levels_dbm[0].min()), sc.sensitivity_dbm) - 5,
+                              max(float(sc.levels_dbm[0].max()), need) + 12, padding=0)
+        self._levels_title(sc, 0, title)
+        return True
+
+    def _levels_title(self, sc, i: int, title: str) -> None:
+        ww = int(sc.worst_wheel[i])
         m = float(sc.margin_db[i])
-        p.setTitle(f"{title}: margin {m:+.1f} dB, worst wheel {sc.wheel_ids[ww]} at {sc.worst_angle_deg[i, ww]:.0f} deg",
-                   size="9pt")
+        self.levels.setTitle(f"{title}: margin {m:+.1f} dB, worst wheel {sc.wheel_ids[ww]} at "
+                             f"{sc.worst_angle_deg[i, ww]:.0f} deg", size="9pt")
 
     def _draw_burst(self, r) -> None:
         """Burst success vs speed; when every burst gets through, the burst margin instead (the extra loss the
