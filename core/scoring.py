@@ -688,11 +688,11 @@ def heatmap(
 
 
 __all__ = [
+    "PROGRESSIVE_STRIDES",
+    "RANK_RESOLUTION_DB",
     "SHORT_DIPOLE_GAIN_DBI",
     "Cancelled",
     "Heatmap",
-    "PROGRESSIVE_STRIDES",
-    "RANK_RESOLUTION_DB",
     "Scene",
     "SpotScores",
     "TurnLevels",
