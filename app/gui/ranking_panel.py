@@ -33,6 +33,7 @@ from app.gui import edits
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
 from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, wheel_colour
+from app.gui.properties_panel import spot_axis_note
 from app.gui.tasks import Task, run_soon
 from app.heatmap_contour import polylines_for_plot, zero_contour
 from app.margin_scale import MARGIN_RANGE_DB
@@ -369,9 +370,10 @@ class SpotTable(QTableWidget):
     """The spots best first (``SpotScores.order()``); selecting a row selects the spot everywhere."""
 
     COLUMNS = ("rank", "no.", "spot", "margin dB", "worst wheel", "at angle deg", "placement",
-               "full-wave dB")
+               "full-wave dB", "receiver axis")
     PLACEMENT_COLUMN = 6
     FULLWAVE_COLUMN = 7  # shown only while a full-wave confirmation of this very vehicle exists
+    AXIS_COLUMN = 8  # "own (x, y, z)" where the spot's axis overrides the Receiver antenna setting
 
     def __init__(self, doc: Document, parent: QWidget | None = None):
         super().__init__(0, len(self.COLUMNS), parent)
@@ -386,7 +388,7 @@ class SpotTable(QTableWidget):
         hh = self.horizontalHeader()
         hh.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         hh.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
-        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92), (6, 110), (7, 96)):
+        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92), (6, 110), (7, 96), (8, 110)):
             self.setColumnWidth(c, wpx)
         self.setColumnHidden(self.FULLWAVE_COLUMN, True)
         self.horizontalHeaderItem(self.FULLWAVE_COLUMN).setToolTip(
@@ -437,9 +439,17 @@ class SpotTable(QTableWidget):
                     self.setItem(rank, c, item)
                 self._set_placement(rank, pl.status[i], pl.flag(i), pl.message(i))
                 self._set_fullwave(rank, sc.names[i])
+                self._set_axis(rank, sc.names[i])
         finally:
             self._loading = False
         self._select_row(self.doc.selected)
+
+    def _set_axis(self, row: int, name: str) -> None:
+        own = spot_axis_note(self.doc.vehicle, name)
+        item = QTableWidgetItem(own or "setting")
+        item.setToolTip(f"This spot's own receiver antenna axis {own[4:]} overrides the Receiver antenna setting"
+                        if own else "This spot uses the Receiver antenna setting's axis")
+        self.setItem(row, self.AXIS_COLUMN, item)
 
     def fullwave_current(self) -> dict | None:
         """The document's full-wave confirmation when it was run on the vehicle as it stands, else None."""

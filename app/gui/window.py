@@ -32,6 +32,7 @@ from app.gui.body_views import BodyView
 from app.gui.defence_panel import install_defence_panel
 from app.gui.document import Document
 from app.gui.look import ElidedLabel
+from app.gui.properties_panel import PropertiesPanel, spot_axis_note
 from app.gui.ranking_panel import RankingPanel
 from app.gui.recovery import DEBOUNCE_MS, RecoveryCopy, find_orphans, recovery_dir
 from app.gui.settings_panel import RadioPanel, ZonesPanel
@@ -92,6 +93,9 @@ class SpotReadout(QLabel):
         pl = classify(self.doc.scene, sc.positions[i : i + 1])  # one point, well under a millisecond
         if pl.status[0] != INSIDE:
             near += f" &nbsp; <b style='color:#a3141e'>{pl.flag(0)}</b>"  # the warning: marker and table tooltips
+        own = spot_axis_note(self.doc.vehicle, name)  # the spot's own axis overrides the Receiver antenna setting
+        if own:
+            near += f" &nbsp; axis: {own}"
         self.setText(
             f"<b>{name}</b>{state} &nbsp; x {x:.0f} mm, y {y:.0f} mm, z {z:.0f} mm &nbsp;&nbsp; "
             f"worst-case margin <b style='color:{colour}'>{self.margin_db:+.2f} dB</b> &nbsp; "
@@ -132,13 +136,16 @@ class MainWindow(QMainWindow):
 
         self.radio_panel = RadioPanel(doc)
         self.zones_panel = ZonesPanel(doc)
+        self.properties_panel = PropertiesPanel(doc)
         tabs = QTabWidget()
-        for w, title in ((self.radio_panel, "Radio and materials"), (self.zones_panel, "Zones and regions")):
+        for w, title in ((self.radio_panel, "Radio and materials"), (self.zones_panel, "Zones and regions"),
+                         (self.properties_panel, "Properties")):
             sa = QScrollArea()
             sa.setWidget(w)
             sa.setWidgetResizable(True)
             sa.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
             tabs.addTab(sa, title)
+        self.settings_tabs = tabs
         dock = QDockWidget("Settings")
         dock.setObjectName("settings")
         dock.setWidget(tabs)
