@@ -25,6 +25,7 @@ from PySide6.QtWidgets import (
     QSplitter,
     QTableWidget,
     QTableWidgetItem,
+    QTabWidget,
     QVBoxLayout,
     QWidget,
 )
@@ -57,6 +58,7 @@ def _plot(title: str, bottom: str, left: str, bottom_units: str | None = None, l
         p.setLabel(side, text, units=units)
     p.showGrid(x=True, y=True, alpha=0.25)
     p.setMenuEnabled(False)
+    p.getPlotItem().setContentsMargins(2, 2, 14, 2)  # room for the last tick label at the right end
     return p
 
 
@@ -384,6 +386,7 @@ class SpotTable(QTableWidget):
         self.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.setWordWrap(False)  # one line per spot: more rows fit a laptop screen (long names are elided)
         self.setToolTip("Receiver spots ranked by worst-case margin (worst wheel, worst angle); ties by the worst wheel's median")
         hh = self.horizontalHeader()
         hh.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
@@ -428,6 +431,8 @@ class SpotTable(QTableWidget):
                     item = QTableWidgetItem(text)
                     if c in (0, 1, 3, 5):
                         item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                    if c == 2:
+                        item.setToolTip(f"spot {i + 1}: {sc.names[i]}")
                     if c == 3 and pending[i]:
                         item.setToolTip("being scored in the background")
                     elif c == 3:
@@ -529,14 +534,20 @@ class SpotFigures(QWidget):
         self.levels_legend = self.levels.addLegend(offset=(-6, 6), labelTextSize="8pt", colCount=3,
                                                    brush=pg.mkBrush(255, 255, 255, 200))
         split.addWidget(self.levels)
-        lower = QSplitter(Qt.Orientation.Horizontal)
+        # the burst and separation figures share the lower half as tabs: each gets the column's full width,
+        # so their two-line titles and axis labels fit at 1366 x 768
+        lower = QTabWidget()
+        lower.setDocumentMode(True)
         self.burst = _plot("Burst success vs speed", "vehicle speed", "bursts heard", "km/h", "%")
         self.burst.setYRange(0, 100, padding=0.03)
         self.burst_legend = self.burst.addLegend(offset=(6, -6), labelTextSize="8pt", colCount=3,
                                                  brush=pg.mkBrush(255, 255, 255, 200))
         self.separation = _plot("Wheel separation by signal strength", "wheel", "level", None, "dBm")
-        lower.addWidget(self.burst)
-        lower.addWidget(self.separation)
+        lower.addTab(self.burst, "Burst success vs speed")
+        lower.setTabToolTip(0, "Share of bursts heard (or the burst margin when all get through) over vehicle speed")
+        lower.addTab(self.separation, "Wheel separation")
+        lower.setTabToolTip(1, "Level distributions per wheel over a turn, for wheel location by signal strength")
+        self.lower_tabs = lower
         split.addWidget(lower)
         split.setSizes([300, 260])
         lay.addWidget(split)
@@ -693,14 +704,14 @@ class SpotFigures(QWidget):
             p.setYRange(min(0.0, float(data.min()), need) - 2, max(float(data.max()), need) + 4, padding=0)
             p.setLabel("left", "burst margin", units="dB")
             p.setTitle(f"every burst gets through: lowest burst margin {float(data.min()):.0f} dB<br>dashed: "
-                       f"required margin; squares: parked; {repeat}", size="8pt")
+                       f"required margin; squares: parked<br>{repeat}", size="8pt")
         else:
             wi, vi = r.worst()
             p.setYRange(0, 100, padding=0.03)
             p.setLabel("left", "bursts heard", units="%")
             p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
                        f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
-                       f"squares: parked; {repeat}", size="8pt")
+                       f"squares: parked<br>{repeat}", size="8pt")
         p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
 
     def _draw_separation(self, sc, i: int) -> None:
