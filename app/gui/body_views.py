@@ -50,6 +50,8 @@ AXIS_HALF_PX = 15.0
 #: below this projected length (unit axis) the axis points mostly along the line of sight: drawn as a dot
 AXIS_DOT_BELOW = 0.3
 AXIS_PEN = pg.mkPen(20, 80, 190, width=2.5)
+WHEEL_PEN = pg.mkPen(30, 30, 30, width=1.5)
+WHEEL_SELECTED_PEN = pg.mkPen(20, 80, 190, width=3)
 
 
 #: where a spot's label may go around its marker, tried in this order: (offset px, x right / y up; TextItem anchor)
@@ -195,7 +197,8 @@ class BodyView(QWidget):
         doc.vehicleChanged.connect(self._label_timer.start)
         doc.selectionChanged.connect(lambda _n: self._label_timer.start())
         doc.vehicleChanged.connect(self._on_vehicle_changed)
-        doc.vehicleChanged.connect(self._refresh_axes)  # a spot's axis changed: the markers stay, their axes follow
+        doc.vehicleChanged.connect(self._refresh_axes)
+        doc.wheelSelectionChanged.connect(self._restyle_wheels)  # a spot's axis changed: the markers stay, their axes follow
         doc.liveScore.connect(self._on_live)
         doc.selectionChanged.connect(self._restyle_markers)
         doc.zoneSelectionChanged.connect(lambda _i: self.schedule_rebuild())
@@ -260,6 +263,7 @@ class BodyView(QWidget):
             self._draw_body(v)
             self._draw_wheels()
             self._draw_spots()
+            self._restyle_wheels()
         finally:
             self._sync = False
         self._label_timer.start()
@@ -313,7 +317,7 @@ class BodyView(QWidget):
         self.region_roi = self._add(roi)
 
     def _draw_wheels(self) -> None:
-        tire_pen = pg.mkPen(30, 30, 30, width=1.5)
+        tire_pen = WHEEL_PEN
         rim_pen = _cosmetic(pg.mkPen(110, 110, 110, width=1))
         groups: dict[tuple, list] = {}
         for w in self.doc.scene.wheels:
@@ -350,11 +354,23 @@ class BodyView(QWidget):
                 label.setPos(r, 0.5 * w.tire_width_m)
             roi.sigRegionChangeFinished.connect(lambda rr_, ids=tuple(ids): self._wheel_edited(ids, rr_))
             # a click or the start of a drag selects the wheel (its values in the Properties panel)
+            roi.setAcceptedMouseButtons(Qt.MouseButton.LeftButton)  # pyqtgraph: needed for sigClicked
             roi.sigClicked.connect(lambda _r, _ev, wid=ids[0]: self.doc.select_wheel(wid))
             roi.sigRegionChangeStarted.connect(lambda _r, wid=ids[0]: self.doc.select_wheel(wid))
             for i in ids:
                 self.wheel_rois[i] = roi
             self._add(roi)
+
+    def _restyle_wheels(self, selected: str = "") -> None:
+        """The selected wheel (Properties panel) drawn with a thick blue outline, the others plain."""
+        selected = selected or self.doc.selected_wheel
+        for wid, roi in self.wheel_rois.items():
+            if roi is self.wheel_rois.get(selected) and wid != selected:
+                continue  # a shared side-view circle: styled through the selected wheel's own entry
+            try:
+                roi.setPen(WHEEL_SELECTED_PEN if wid == selected else WHEEL_PEN)
+            except RuntimeError:  # the item was removed by a rebuild
+                pass
 
     def _draw_spots(self) -> None:
         sc = self.doc.scores

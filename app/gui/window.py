@@ -293,6 +293,13 @@ class MainWindow(QMainWindow):
         self.work_bar.setValue(done)
         self.work_bar.show()
 
+    def show_properties(self) -> None:
+        """Bring the Properties tab forward, the selected spot's x box focused."""
+        self.dock.show()
+        self.dock.raise_()
+        self.settings_tabs.setCurrentIndex(2)
+        self.properties_panel.spot_x.setFocus()
+
     def fit_views(self) -> None:
         self.top.plot.autoRange(padding=0.06)
         self.side.plot.autoRange(padding=0.06)

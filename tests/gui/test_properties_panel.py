@@ -129,3 +129,41 @@ def test_axis_text_and_parse():
     for bad in ("0 0 0", "a b c", "1 2"):
         with pytest.raises(ValueError):
             parse_axis(bad)
+
+
+def test_the_view_menu_command_brings_the_properties_tab_forward(window, qtbot):
+    window.settings_tabs.setCurrentIndex(0)
+    window.actions["show_properties"].trigger()
+    assert window.settings_tabs.tabText(window.settings_tabs.currentIndex()) == "Properties"
+
+
+def test_clicking_a_wheel_in_the_top_view_shows_it_in_the_panel(window, qtbot):
+    from PySide6.QtCore import QPointF, QRectF
+
+    from app.gui.body_views import WHEEL_SELECTED_PEN
+
+    doc, p = window.doc, _panel(window)
+    w = doc.vehicle.wheels[3]
+    vb = window.top.plot.getPlotItem().vb
+    roi = window.top.wheel_rois[w.id]
+    scene = window.top.plot.scene()
+    r = w.tire_size.outer_radius_m
+    vb.setRange(xRange=(w.x_m - 1.2 * r, w.x_m + 1.2 * r), yRange=(w.y_m - 0.3, w.y_m + 0.3), padding=0)  # zoomed in
+    qtbot.wait(50)
+
+    def clear(pt) -> bool:
+        """Within 8 px only this wheel's item takes clicks (an outline or region edge there would add a corner)."""
+        near = scene.items(QRectF(pt.x() - 8, pt.y() - 8, 16, 16))
+        takers = [it for it in near if hasattr(it, "mouseClickEvent") and it.acceptedMouseButtons() & Qt.MouseButton.LeftButton
+                  and it.isVisible() and type(it).__name__ not in ("ViewBox", "PlotItem")]
+        return takers == [roi]
+
+    points = [vb.mapViewToScene(QPointF(w.x_m + fx * r, w.y_m + fy * 0.1))
+              for fx in (0.8, -0.8, 0.6, -0.6) for fy in (0.0, 0.4, -0.4, 0.8, -0.8)]
+    scene_pt = next(pt for pt in points if clear(pt))
+    widget_pt = window.top.plot.mapFromScene(scene_pt)
+    qtbot.mouseClick(window.top.plot.viewport(), Qt.MouseButton.LeftButton, pos=widget_pt)
+    qtbot.waitUntil(lambda: doc.selected_wheel == w.id, timeout=3000)
+    assert p.wheel_choice.currentData() == w.id
+    assert p.wheel_x.value() == pytest.approx(w.x_m * 1000.0)
+    assert window.top.wheel_rois[w.id].pen.color() == WHEEL_SELECTED_PEN.color()
