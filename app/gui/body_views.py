@@ -62,6 +62,8 @@ LABEL_PLACES = tuple(((ox * k, oy * k), a) for k in (1.0, 2.5) for (ox, oy), a i
 MARKER_CLEAR_PX = 6.5
 #: blank border of a text item around its text, px (not counted as overlap)
 LABEL_INSET_PX = 3.5
+#: least gap between two labels, px (so that neighbouring numbers do not read as one label)
+LABEL_GAP_PX = 4.0
 
 
 def place_labels(centres, sizes, order) -> list[int]:
@@ -79,7 +81,8 @@ def place_labels(centres, sizes, order) -> list[int]:
             x0 = c[i, 0] + ox - ax * (w + 2 * LABEL_INSET_PX) + LABEL_INSET_PX
             top = c[i, 1] + oy + ay * (h + 2 * LABEL_INSET_PX) - LABEL_INSET_PX
             r = (x0, top - h, x0 + w, top)
-            if any(r[0] < q[2] and q[0] < r[2] and r[1] < q[3] and q[1] < r[3] for q in placed):
+            g = LABEL_GAP_PX
+            if any(r[0] < q[2] + g and q[0] < r[2] + g and r[1] < q[3] + g and q[1] < r[3] + g for q in placed):
                 continue
             # the nearest point of the rectangle to each other marker centre must be clear of its disc
             nx = np.clip(c[:, 0], r[0], r[2]) - c[:, 0]

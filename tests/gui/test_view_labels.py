@@ -5,7 +5,14 @@ import pytest
 from PySide6.QtWidgets import QGraphicsEllipseItem, QGraphicsLineItem
 
 from app.gui import edits
-from app.gui.body_views import LABEL_INSET_PX, LABEL_PLACES, MARKER_CLEAR_PX, SIDE_VIEW_TITLE, place_labels
+from app.gui.body_views import (
+    LABEL_GAP_PX,
+    LABEL_INSET_PX,
+    LABEL_PLACES,
+    MARKER_CLEAR_PX,
+    SIDE_VIEW_TITLE,
+    place_labels,
+)
 
 
 def _rect(c, size, k):
@@ -28,7 +35,8 @@ def test_placed_labels_do_not_overlap_each_other_or_other_markers():
     for i, a in rects.items():
         for j, b in rects.items():
             if i < j:
-                assert not (a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]), (i, j)
+                g = LABEL_GAP_PX - 1e-9  # apart by at least the gap
+                assert not (a[0] < b[2] + g and b[0] < a[2] + g and a[1] < b[3] + g and b[1] < a[3] + g), (i, j)
         for j, c in enumerate(centres):
             if j != i:
                 nx, ny = np.clip(c[0], a[0], a[2]) - c[0], np.clip(c[1], a[1], a[3]) - c[1]
