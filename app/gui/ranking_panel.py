@@ -33,7 +33,7 @@ from PySide6.QtWidgets import (
 from app.gui import edits
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
-from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, wheel_colour
+from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, signed, wheel_colour
 from app.gui.properties_panel import spot_axis_note
 from app.gui.tasks import Task, run_soon
 from app.heatmap_contour import polylines_for_plot, zero_contour
@@ -424,7 +424,8 @@ class SpotTable(QTableWidget):
                 if pending[i]:  # scored in the background: no numbers yet (pending rows sort last)
                     cells = ("", str(i + 1), sc.names[i], "...", "", "")
                 else:
-                    mt = f"{m:+.1f} ({float(check.margin_at_ceiling_db(m)):+.1f})" if check.over_ceiling else f"{m:+.1f}"
+                    mt = (f"{signed(m, 1)} ({signed(float(check.margin_at_ceiling_db(m)), 1)})" if check.over_ceiling
+                          else signed(m, 1))
                     cells = (str(rank + 1), str(i + 1), sc.names[i], mt, sc.wheel_ids[w],
                              f"{sc.worst_angle_deg[i, w]:.0f}")
                 for c, text in enumerate(cells):

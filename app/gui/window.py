@@ -31,7 +31,7 @@ from app.gui import commands, dialogs
 from app.gui.body_views import BodyView
 from app.gui.defence_panel import install_defence_panel
 from app.gui.document import Document
-from app.gui.look import ElidedLabel
+from app.gui.look import ElidedLabel, signed
 from app.gui.properties_panel import PropertiesPanel, spot_axis_note
 from app.gui.ranking_panel import RankingPanel
 from app.gui.recovery import DEBOUNCE_MS, RecoveryCopy, find_orphans, recovery_dir
@@ -85,7 +85,8 @@ class SpotReadout(QLabel):
         x, y, z = (1000.0 * c for c in sc.positions[i])
         w = int(sc.worst_wheel[i])
         self.margin_db = float(sc.margin_db[i])
-        colour = "#0a6b2a" if self.margin_db >= 0 else "#a3141e"
+        shown = signed(self.margin_db, 2)
+        colour = "#0a6b2a" if float(shown) >= 0 else "#a3141e"  # by the value shown: never a red "-0.00"
         state = " (moving)" if moving else ""
         near = "  near field: indicative only" if sc.near_field is not None and sc.near_field[i] else ""
         from core.placement import INSIDE, classify
@@ -98,7 +99,7 @@ class SpotReadout(QLabel):
             near += f" &nbsp; axis: {own}"
         self.setText(
             f"<b>{name}</b>{state} &nbsp; x {x:.0f} mm, y {y:.0f} mm, z {z:.0f} mm &nbsp;&nbsp; "
-            f"worst-case margin <b style='color:{colour}'>{self.margin_db:+.2f} dB</b> &nbsp; "
+            f"worst-case margin <b style='color:{colour}'>{shown} dB</b> &nbsp; "
             f"worst wheel {sc.wheel_ids[w]} at {sc.worst_angle_deg[i, w]:.0f} deg{near}"
         )
 
