@@ -66,13 +66,20 @@ LABEL_INSET_PX = 3.5
 LABEL_GAP_PX = 4.0
 
 
-def place_labels(centres, sizes, order) -> list[int]:
-    """Choose a place for each label so that no two labels overlap and no label covers another marker.
+def place_labels(centres, sizes, order, axes=None) -> list[int]:
+    """Choose a place for each label so that no two labels overlap and no label covers another marker or
+    any spot's axis line.
 
     ``centres`` (N, 2) marker centres in pixels (x right, y up); ``sizes`` (N, 2) label width and height,
-    px; ``order`` the markers by priority (the selected spot first). Returns, per marker, the index into
-    ``LABEL_PLACES`` or -1 when every place is taken (that label is hidden; the number stays in the tooltip)."""
+    px; ``order`` the markers by priority (the selected spot first); ``axes`` (N, 2) half of each axis
+    line, px (the line runs from centre - axis to centre + axis; zero for none). Returns, per marker, the
+    index into ``LABEL_PLACES`` or -1 when every place is taken (that label is hidden; the number stays
+    in the tooltip)."""
     c = np.asarray(centres, float).reshape(-1, 2)
+    ax = np.zeros_like(c) if axes is None else np.asarray(axes, float).reshape(-1, 2)
+    t = np.linspace(-1.0, 1.0, 17)
+    # points along every axis line (N * 17, 2), under 2 px apart; lines shorter than the marker are inside its disc already
+    line_pts = (c[:, None, :] + t[None, :, None] * ax[:, None, :]).reshape(-1, 2)
     placed: list[tuple[float, float, float, float]] = []
     out = [-1] * len(c)
     for i in order:
@@ -90,6 +97,10 @@ def place_labels(centres, sizes, order) -> list[int]:
             hit = np.hypot(nx, ny) < MARKER_CLEAR_PX
             hit[i] = False
             if hit.any():
+                continue
+            on_line = ((line_pts[:, 0] > r[0] - 1) & (line_pts[:, 0] < r[2] + 1) & (line_pts[:, 1] > r[1] - 1)
+                       & (line_pts[:, 1] < r[3] + 1))
+            if on_line.any():
                 continue
             placed.append(r)
             out[i] = k
@@ -439,6 +450,7 @@ class BodyView(QWidget):
                 changed = True
         if changed:
             self._restyle_markers(self.doc.selected)
+            self._label_timer.start()
 
     def place_labels(self) -> None:
         """Put each spot's label where it overlaps no other label and no other marker (selected spot first)."""
@@ -460,9 +472,14 @@ class BodyView(QWidget):
             lab = m.label()
             r = lab.boundingRect() if lab is not None else QRectF()
             sizes.append((r.width(), r.height()))
+        axes = []
+        for n in names:
+            au, aw = getattr(self.markers[n], "axis_drawn", (0.0, 0.0))
+            drawn = float(np.hypot(au, aw)) >= AXIS_DOT_BELOW
+            axes.append((AXIS_HALF_PX * au, AXIS_HALF_PX * aw) if drawn else (0.0, 0.0))
         sel = self.doc.selected
         order = sorted(range(len(names)), key=lambda j: (names[j] != sel, j))
-        for n, k in zip(names, place_labels(centres, sizes, order)):
+        for n, k in zip(names, place_labels(centres, sizes, order, axes)):
             if self.label_place.get(n, 0) == k and self.markers[n].label() is not None:
                 continue
             self.label_place[n] = k

@@ -43,6 +43,25 @@ def test_placed_labels_do_not_overlap_each_other_or_other_markers():
                 assert np.hypot(nx, ny) >= MARKER_CLEAR_PX - 1e-9, (i, j)
 
 
+def test_labels_keep_off_the_axis_lines():
+    rng = np.random.default_rng(11)  # fixed seed: 12 markers, each with an axis line 15 px each way
+    centres = rng.uniform((0, 0), (160, 100), size=(12, 2))
+    angles = rng.uniform(0, np.pi, 12)
+    axes = 15.0 * np.column_stack([np.cos(angles), np.sin(angles)])
+    sizes = [(24.0, 22.0)] * 12
+    ks = place_labels(centres, sizes, range(12), axes)
+    assert sum(k >= 0 for k in ks) >= 8
+    t = np.linspace(-1, 1, 41)  # finer than the placement's own sampling: a crossing line is found
+    for i, k in enumerate(ks):
+        if k < 0:
+            continue
+        a = _rect(centres[i], sizes[i], k)
+        for j in range(12):
+            pts = centres[j] + t[:, None] * axes[j]
+            inside = (pts[:, 0] > a[0]) & (pts[:, 0] < a[2]) & (pts[:, 1] > a[1]) & (pts[:, 1] < a[3])
+            assert not inside.any(), (i, j)
+
+
 def test_two_spots_at_one_place_get_labels_on_different_sides():
     ks = place_labels([(50.0, 50.0), (50.0, 50.0)], [(24.0, 22.0), (24.0, 22.0)], [0, 1])
     assert ks[0] >= 0 and ks[1] >= 0 and ks[0] != ks[1]
