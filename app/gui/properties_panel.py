@@ -42,8 +42,7 @@ def axis_text(axis) -> str:
     """An axis (3 components) as short text, e.g. '(0, 0.71, 0.71)' (unit vector, 2 decimals)."""
     a = np.asarray(axis, float)
     a = a / np.linalg.norm(a)
-    return "(" + ", ".join(f"{c:.2f}".rstrip("0").rstrip(".").replace("-0", "0") if abs(c) >= 5e-3 else "0"
-                           for c in a) + ")"
+    return "(" + ", ".join(f"{c:.2f}".rstrip("0").rstrip(".") if abs(c) >= 5e-3 else "0" for c in a) + ")"
 
 
 def spot_axis_note(v: Vehicle, name: str) -> str:

@@ -125,6 +125,7 @@ def test_renaming_a_spot_keeps_it_selected_and_a_duplicate_name_is_refused(windo
 def test_axis_text_and_parse():
     assert axis_text((0, 0, 2)) == "(0, 0, 1)"
     assert axis_text((0, 1, 1)) == "(0, 0.71, 0.71)"
+    assert axis_text((0, -1, 0)) == "(0, -1, 0)" and axis_text((-1, 0, 1)) == "(-0.71, 0, 0.71)"
     assert parse_axis("0, 0.7 0.7") == (0.0, 0.7, 0.7)
     for bad in ("0 0 0", "a b c", "1 2"):
         with pytest.raises(ValueError):
