@@ -107,16 +107,21 @@ class PropertiesPanel(QWidget):
         self._loading = False
         lay = QVBoxLayout(self)
         lay.setContentsMargins(4, 4, 4, 4)
-        self.message = QLabel("")
-        self.message.setWordWrap(True)
-        self.message.setStyleSheet("color: #a3141e")
-        self.message.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        self.message.setToolTip("The last value that was refused, with the field and the reason; the document is unchanged")
-        self.message.hide()
-        lay.addWidget(self.message)
+        # one message line per group, shown in the group where a value was refused (in view of the field)
+        self.messages: dict[str, QLabel] = {}
+        for where in ("spot", "wheel", "zone", "region"):
+            m = QLabel("")
+            m.setWordWrap(True)
+            m.setStyleSheet("color: #a3141e")
+            m.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+            m.setToolTip("The last value that was refused, with the field and the reason; the document is unchanged")
+            m.hide()
+            self.messages[where] = m
+        self.message = self.messages["spot"]  # the message shown last
 
         g = QGroupBox("Receiver spot")
         f = QFormLayout(g)
+        f.addRow(self.messages["spot"])
         self.spot_choice = _choice("The selected receiver spot (also chosen by clicking it in a view or the table)")
         self.spot_name = _line("Name of the spot (unique in the file)")
         self.spot_x = _mm("x, forward, mm from the origin (ground below the front axle centre), ISO 8855 vehicle axes")
@@ -143,6 +148,7 @@ class PropertiesPanel(QWidget):
 
         g = QGroupBox("Wheel")
         f = QFormLayout(g)
+        f.addRow(self.messages["wheel"])
         self.wheel_choice = _choice("The wheel shown here (also chosen by clicking a wheel in the top view)")
         self.wheel_x = _mm("Wheel centre x, forward, mm from the origin (ground below the front axle centre)")
         self.wheel_y = _mm("Wheel centre y, left, mm from the centre line (negative: right side)")
@@ -163,6 +169,7 @@ class PropertiesPanel(QWidget):
 
         g = QGroupBox("Panel zone")
         f = QFormLayout(g)
+        f.addRow(self.messages["zone"])
         self.zone_choice = _choice("The selected panel zone (also chosen in the Zones and regions tab)")
         self.zone_name = _line("Name of the zone")
         self.zone_material = _choice("Material of the panels the zone covers (built-in or defined in the file)")
@@ -179,6 +186,7 @@ class PropertiesPanel(QWidget):
 
         g = QGroupBox("Mounting region")
         f = QFormLayout(g)
+        f.addRow(self.messages["region"])
         self.region_choice = _choice("The mounting region of the heatmap")
         self.region_name = _line("Name of the region")
         self.region_fixed = _mm("Height z of a top-view region, or lateral position y of a side-view region, mm")
@@ -218,8 +226,9 @@ class PropertiesPanel(QWidget):
         self.refresh()
 
     # ----- the edit of one value -------------------------------------------------------
-    def edit(self, make: Callable[[Vehicle], Vehicle], text: str) -> bool:
-        """Apply one edit through the document; a refusal shows the document's located message here."""
+    def edit(self, make: Callable[[Vehicle], Vehicle], text: str, where: str = "spot") -> bool:
+        """Apply one edit through the document; a refusal shows the document's located message in the
+        group ``where`` ('spot', 'wheel', 'zone' or 'region')."""
         said: list[str] = []
         self.doc.statusMessage.connect(said.append)
         try:
@@ -227,16 +236,25 @@ class PropertiesPanel(QWidget):
         finally:
             self.doc.statusMessage.disconnect(said.append)
         if ok:
-            self.message.hide()
-            self.message.setText("")
+            self._hide_messages()
         else:
             why = said[-1] if said else f"Edit refused ({text})"
-            self.message.setText(f"{why}. Nothing was changed.")
-            self.message.show()
+            self._say(where, f"{why}. Nothing was changed.")
         return ok
 
+    def _say(self, where: str, text: str) -> None:
+        self._hide_messages()
+        self.message = self.messages[where]
+        self.message.setText(text)
+        self.message.show()
+
+    def _hide_messages(self) -> None:
+        for m in self.messages.values():
+            m.hide()
+            m.setText("")
+
     def _selection_changed(self) -> None:
-        self.message.hide()
+        self._hide_messages()
         self.refresh()
 
     # ----- spot ----------------------------------------------------------------------------
@@ -292,8 +310,7 @@ class PropertiesPanel(QWidget):
         try:
             axis = parse_axis(text)
         except ValueError as e:
-            self.message.setText(f"Edit refused (spot '{s.name}' own axis): {e}. Nothing was changed.")
-            self.message.show()
+            self._say("spot", f"Edit refused (spot '{s.name}' own axis): {e}. Nothing was changed.")
             return
         if s.axis is not None and np.allclose(axis, s.axis):
             return
@@ -313,7 +330,8 @@ class PropertiesPanel(QWidget):
         if self._loading or abs(getattr(w, key) - value) <= 1e-7:
             return
         wid = w.id
-        self.edit(lambda v: edits.set_wheel_value(v, wid, key, value), f"Wheel {wid} {what} {value * MM_PER_M:.1f} mm")
+        self.edit(lambda v: edits.set_wheel_value(v, wid, key, value), f"Wheel {wid} {what} {value * MM_PER_M:.1f} mm",
+                  "wheel")
 
     def _tire_typed(self) -> None:
         w = self._wheel()
@@ -321,7 +339,7 @@ class PropertiesPanel(QWidget):
         if self._loading or not code or code == w.tire:
             return
         wid = w.id
-        self.edit(lambda v: edits.set_wheel_value(v, wid, "tire", code), f"Wheel {wid} tire {code}")
+        self.edit(lambda v: edits.set_wheel_value(v, wid, "tire", code), f"Wheel {wid} tire {code}", "wheel")
         self.refresh()  # a refused code: the box shows the stored tire again
 
     # ----- zone and region -----------------------------------------------------------------
@@ -332,7 +350,7 @@ class PropertiesPanel(QWidget):
         z = self.doc.vehicle.zones[i]
         if getattr(z, key) == value:
             return
-        self.edit(lambda v: edits.set_item_value(v, "zones", i, key, value), f"Zone '{z.name}' {what} {value}")
+        self.edit(lambda v: edits.set_item_value(v, "zones", i, key, value), f"Zone '{z.name}' {what} {value}", "zone")
         self.refresh()
 
     def _zone_height(self, key: str, box: QLineEdit, what: str) -> None:
@@ -345,9 +363,8 @@ class PropertiesPanel(QWidget):
             try:
                 value = float(text.replace("mm", "").strip()) / MM_PER_M
             except ValueError:
-                self.message.setText(f"Edit refused (zone '{z.name}' {what}): {text!r} is not a number of mm. "
-                                     "Nothing was changed.")
-                self.message.show()
+                self._say("zone", f"Edit refused (zone '{z.name}' {what}): {text!r} is not a number of mm. "
+                                  "Nothing was changed.")
                 return
         else:
             value = None
@@ -355,7 +372,7 @@ class PropertiesPanel(QWidget):
         if (old is None and value is None) or (old is not None and value is not None and abs(old - value) <= 1e-7):
             return
         shown = "no limit" if value is None else f"{value * MM_PER_M:.0f} mm"
-        self.edit(lambda v: edits.set_item_value(v, "zones", i, key, value), f"Zone '{z.name}' {what} {shown}")
+        self.edit(lambda v: edits.set_item_value(v, "zones", i, key, value), f"Zone '{z.name}' {what} {shown}", "zone")
         self.refresh()
 
     def _region_renamed(self) -> None:
@@ -366,7 +383,7 @@ class PropertiesPanel(QWidget):
         i = self.doc.region_index
         if new == v.regions[i].name:
             return
-        self.edit(lambda vv: edits.set_item_value(vv, "regions", i, "name", new), f"Rename region to '{new}'")
+        self.edit(lambda vv: edits.set_item_value(vv, "regions", i, "name", new), f"Rename region to '{new}'", "region")
         self.refresh()
 
     def _region_fixed(self, mm: float) -> None:
@@ -379,7 +396,8 @@ class PropertiesPanel(QWidget):
         if old is not None and abs(old - mm / MM_PER_M) <= 1e-7:
             return
         what = "height z" if r.view == "top" else "lateral y"
-        self.edit(lambda vv: edits.set_region_fixed(vv, i, mm / MM_PER_M), f"Region '{r.name}' {what} {mm:.0f} mm")
+        self.edit(lambda vv: edits.set_region_fixed(vv, i, mm / MM_PER_M), f"Region '{r.name}' {what} {mm:.0f} mm",
+                  "region")
 
     # ----- show the document ---------------------------------------------------------------
     def refresh(self) -> None:

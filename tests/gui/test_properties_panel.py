@@ -42,7 +42,7 @@ def test_a_bad_tire_code_is_refused_with_a_message_and_nothing_changes(window, q
     v0, n0 = doc.vehicle, doc.undo_stack.count()
     _type(qtbot, p.wheel_tire, "205/55 R1X")
     assert doc.vehicle is v0 and doc.undo_stack.count() == n0
-    assert p.message.isVisibleTo(p)
+    assert p.message is p.messages["wheel"] and p.message.isVisibleTo(p)  # shown beside the tire box
     text = p.message.text()
     assert "wheels[0].tire" in text and "205/55 R1X" in text and "not a tire size" in text
     assert p.wheel_tire.text() == v0.wheels[0].tire  # the box shows the stored code again
@@ -168,3 +168,20 @@ def test_clicking_a_wheel_in_the_top_view_shows_it_in_the_panel(window, qtbot):
     assert p.wheel_choice.currentData() == w.id
     assert p.wheel_x.value() == pytest.approx(w.x_m * 1000.0)
     assert window.top.wheel_rois[w.id].pen.color() == WHEEL_SELECTED_PEN.color()
+
+
+def test_a_refused_zone_height_is_reported_in_the_zone_group(window, qtbot):
+    doc, p = window.doc, _panel(window)
+    i = next(k for k, z in enumerate(doc.vehicle.zones) if z.view == "top")
+    doc.select_zone(i)
+    v0 = doc.vehicle
+    _type(qtbot, p.zone_z_min, "-5000")  # 5 m below the ground: outside the file's limit for z_min_m
+    assert doc.vehicle is v0
+    assert p.message is p.messages["zone"] and p.message.isVisibleTo(p)
+    assert f"zones[{i}].z_min_m" in p.message.text()
+    assert not p.messages["spot"].isVisibleTo(p)
+    _type(qtbot, p.zone_z_min, "300")
+    assert doc.vehicle.zones[i].z_min_m == pytest.approx(0.3)
+    assert not p.message.isVisibleTo(p)
+    doc.undo_stack.undo()
+    assert doc.vehicle.zones[i].z_min_m == v0.zones[i].z_min_m
