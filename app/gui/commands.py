@@ -210,14 +210,10 @@ def import_measurements(doc: Document, ui) -> None:
 
 
 def compare_bodies(doc: Document, ui) -> None:
-    """Tools > Compare bodies: one spot for several body styles, starting with the open document as it
-    stands (its saved file when nothing is unsaved, so the comparison report can name and hash the file)."""
+    """Tools > Compare bodies: one spot for several body styles, starting with this file."""
     from app.gui.compare_window import open_compare_window
 
-    if doc.path and not doc.modified:
-        ui.compare_window = open_compare_window(ui, [str(doc.path)])
-    else:
-        ui.compare_window = open_compare_window(ui, document=doc.vehicle)
+    ui.compare_window = open_compare_window(ui, [str(doc.path)] if doc.path else None)
 
 
 def confirm_fullwave(doc: Document, ui) -> None:

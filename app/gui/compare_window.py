@@ -194,15 +194,6 @@ class CompareWindow(QMainWindow):
         self._drop_search()
         self.recompute()
 
-    def add_document(self, v: Vehicle) -> None:
-        """Add a vehicle as it stands in an editor (unsaved changes included; no file, path ""), and recompute."""
-        self.paths.append("")
-        self.vehicles.append(v)
-        self.scenes.append(Scene.from_vehicle(v))
-        self.search = None
-        self._drop_search()
-        self.recompute()
-
     def clear(self):
         self.paths, self.vehicles, self.scenes = [], [], []
         self.comparison, self.search, self._selected = None, None, -1
@@ -365,11 +356,9 @@ class CompareWindow(QMainWindow):
         super().closeEvent(event)
 
 
-def open_compare_window(parent=None, paths=None, document: Vehicle | None = None) -> CompareWindow:
-    """Open the comparison window (optionally with files loaded, or the open document as edited) and return it."""
+def open_compare_window(parent=None, paths=None) -> CompareWindow:
+    """Open the comparison window (optionally with files loaded) and return it."""
     w = CompareWindow(parent)  # a QMainWindow is a top-level window even with a parent
-    if document is not None:
-        w.add_document(document)
     if paths:
         w.add_paths(paths)
     w.show()

@@ -60,21 +60,3 @@ def test_search_runs_in_a_worker_and_marks_every_body(qtbot):
     assert all(t.square is not None for t in w.thumbs)
     assert "Searched best position" in w.summary.text()
     assert w.table.item(0, 0).flags() & Qt.ItemFlag.ItemIsEditable == Qt.ItemFlag.NoItemFlags
-
-
-def test_compare_bodies_uses_the_open_document_as_edited(window, qtbot, tmp_path):
-    from app.gui import commands, edits
-
-    doc = window.doc
-    name = doc.selected
-    x, y, z = doc.spot_position(name)
-    assert doc.apply(lambda v: edits.move_spot(v, name, (x - 0.3, y, z)), "move")
-    commands.compare_bodies(doc, window)
-    cw = window.compare_window
-    qtbot.addWidget(cw)
-    assert cw.vehicles == [doc.vehicle] and cw.paths == [""]  # the edited document, not the saved file
-    doc.save(tmp_path / "edited.json")  # nothing unsaved: the saved file (named and hashed in the comparison report)
-    commands.compare_bodies(doc, window)
-    qtbot.addWidget(window.compare_window)
-    assert window.compare_window.paths == [str(tmp_path / "edited.json")]
-    assert window.compare_window.vehicles[0] == doc.vehicle
