@@ -10,10 +10,12 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QPointF, QRectF, Qt, Signal
+from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
 from PySide6.QtGui import QBrush, QPen, QPolygonF
 from PySide6.QtWidgets import (
     QGraphicsEllipseItem,
+    QGraphicsItem,
+    QGraphicsLineItem,
     QGraphicsPolygonItem,
     QGraphicsRectItem,
     QHBoxLayout,
@@ -25,6 +27,7 @@ from PySide6.QtWidgets import (
 from app.gui import edits
 from app.gui.document import Document
 from app.gui.look import BODY_COLOUR, lock_aspect, material_colour
+from app.gui.properties_panel import axis_text, spot_axis_note
 from app.gui.tasks import run_soon
 from core.placement import INSIDE, NEAR_SURFACE, classify
 
@@ -38,6 +41,71 @@ SELECTED_PEN = pg.mkPen(0, 0, 0, width=2.5)
 OUTSIDE_BRUSH = pg.mkBrush(215, 30, 30, 255)
 OUTSIDE_PEN = pg.mkPen(120, 0, 0, width=2.0)
 NEAR_BRUSH = pg.mkBrush(255, 150, 40, 255)
+
+
+#: the side view draws x (forward) to the right and z up: the body as seen from its right side
+SIDE_VIEW_TITLE = "Side view (seen from the right, front to the right)"
+#: half length of a spot's receiver axis line, px, for an axis lying in the view's plane
+AXIS_HALF_PX = 15.0
+#: below this projected length (unit axis) the axis points mostly along the line of sight: drawn as a dot
+AXIS_DOT_BELOW = 0.3
+AXIS_PEN = pg.mkPen(20, 80, 190, width=2.5)
+WHEEL_PEN = pg.mkPen(30, 30, 30, width=1.5)
+WHEEL_SELECTED_PEN = pg.mkPen(20, 80, 190, width=3)
+
+
+#: where a spot's label may go around its marker, tried in this order: (offset px, x right / y up; TextItem anchor)
+_LABEL_AROUND = (((6, 3), (0, 1)), ((8, 0), (0, 0.5)), ((6, -3), (0, 0)), ((-6, 3), (1, 1)), ((-8, 0), (1, 0.5)),
+                 ((-6, -3), (1, 0)), ((0, 8), (0.5, 1)), ((0, -8), (0.5, 0)))
+LABEL_PLACES = tuple(((ox * k, oy * k), a) for k in (1.0, 2.5) for (ox, oy), a in _LABEL_AROUND)
+#: radius kept free around each marker centre, px (the marker is 11 px across)
+MARKER_CLEAR_PX = 6.5
+#: blank border of a text item around its text, px (not counted as overlap)
+LABEL_INSET_PX = 3.5
+#: least gap between two labels, px (so that neighbouring numbers do not read as one label)
+LABEL_GAP_PX = 4.0
+
+
+def place_labels(centres, sizes, order, axes=None) -> list[int]:
+    """Choose a place for each label so that no two labels overlap and no label covers another marker or
+    any spot's axis line.
+
+    ``centres`` (N, 2) marker centres in pixels (x right, y up); ``sizes`` (N, 2) label width and height,
+    px; ``order`` the markers by priority (the selected spot first); ``axes`` (N, 2) half of each axis
+    line, px (the line runs from centre - axis to centre + axis; zero for none). Returns, per marker, the
+    index into ``LABEL_PLACES`` or -1 when every place is taken (that label is hidden; the number stays
+    in the tooltip)."""
+    c = np.asarray(centres, float).reshape(-1, 2)
+    ax = np.zeros_like(c) if axes is None else np.asarray(axes, float).reshape(-1, 2)
+    t = np.linspace(-1.0, 1.0, 17)
+    # points along every axis line (N * 17, 2), under 2 px apart; lines shorter than the marker are inside its disc already
+    line_pts = (c[:, None, :] + t[None, :, None] * ax[:, None, :]).reshape(-1, 2)
+    placed: list[tuple[float, float, float, float]] = []
+    out = [-1] * len(c)
+    for i in order:
+        w, h = (float(t) - 2 * LABEL_INSET_PX for t in sizes[i])
+        for k, ((ox, oy), (ax, ay)) in enumerate(LABEL_PLACES):
+            x0 = c[i, 0] + ox - ax * (w + 2 * LABEL_INSET_PX) + LABEL_INSET_PX
+            top = c[i, 1] + oy + ay * (h + 2 * LABEL_INSET_PX) - LABEL_INSET_PX
+            r = (x0, top - h, x0 + w, top)
+            g = LABEL_GAP_PX
+            if any(r[0] < q[2] + g and q[0] < r[2] + g and r[1] < q[3] + g and q[1] < r[3] + g for q in placed):
+                continue
+            # the nearest point of the rectangle to each other marker centre must be clear of its disc
+            nx = np.clip(c[:, 0], r[0], r[2]) - c[:, 0]
+            ny = np.clip(c[:, 1], r[1], r[3]) - c[:, 1]
+            hit = np.hypot(nx, ny) < MARKER_CLEAR_PX
+            hit[i] = False
+            if hit.any():
+                continue
+            on_line = ((line_pts[:, 0] > r[0] - 1) & (line_pts[:, 0] < r[2] + 1) & (line_pts[:, 1] > r[1] - 1)
+                       & (line_pts[:, 1] < r[3] + 1))
+            if on_line.any():
+                continue
+            placed.append(r)
+            out[i] = k
+            break
+    return out
 
 
 def _cosmetic(pen: QPen) -> QPen:
@@ -112,7 +180,9 @@ class BodyView(QWidget):
             ax = self.plot.getAxis(side)
             ax.enableAutoSIPrefix(False)
             self.plot.setLabel(side, text, units="m")
-        title = "Top view (from above)" if view == "top" else "Side view (left side)"
+        # x forward is drawn to the right with z up: that is the car as seen from its right side (viewer at -y
+        # looking toward +y, ISO 8855 axes), so the title says so (the x axis is shared with the top view)
+        title = "Top view (from above, front to the right)" if view == "top" else SIDE_VIEW_TITLE
         self.plot.setTitle(title, size="10pt")
         self.plot.setMenuEnabled(False)
         self.legend = QLabel(" ")
@@ -130,7 +200,19 @@ class BodyView(QWidget):
         lay.addLayout(row)
         self.plot.scene().sigMouseMoved.connect(self._mouse_moved)
 
+        self.label_place: dict[str, int] = {}  # spot name -> index into LABEL_PLACES (-1: hidden)
+        self._label_timer = QTimer(self)
+        self._label_timer.setSingleShot(True)
+        self._label_timer.setInterval(60)
+        self._label_timer.timeout.connect(self.place_labels)
+        vb = self.plot.getPlotItem().vb
+        vb.sigRangeChanged.connect(lambda *_a: self._label_timer.start())
+        vb.sigResized.connect(lambda *_a: self._label_timer.start())
+        doc.vehicleChanged.connect(self._label_timer.start)
+        doc.selectionChanged.connect(lambda _n: self._label_timer.start())
         doc.vehicleChanged.connect(self._on_vehicle_changed)
+        doc.vehicleChanged.connect(self._refresh_axes)
+        doc.wheelSelectionChanged.connect(self._restyle_wheels)  # a spot's axis changed: the markers stay, their axes follow
         doc.liveScore.connect(self._on_live)
         doc.selectionChanged.connect(self._restyle_markers)
         doc.zoneSelectionChanged.connect(lambda _i: self.schedule_rebuild())
@@ -195,8 +277,10 @@ class BodyView(QWidget):
             self._draw_body(v)
             self._draw_wheels()
             self._draw_spots()
+            self._restyle_wheels()
         finally:
             self._sync = False
+        self._label_timer.start()
 
     def _add(self, item):
         self.plot.addItem(item)
@@ -250,7 +334,7 @@ class BodyView(QWidget):
         self.region_roi = self._add(roi)
 
     def _draw_wheels(self) -> None:
-        tire_pen = pg.mkPen(30, 30, 30, width=1.5)
+        tire_pen = WHEEL_PEN
         rim_pen = _cosmetic(pg.mkPen(110, 110, 110, width=1))
         groups: dict[tuple, list] = {}
         for w in self.doc.scene.wheels:
@@ -258,6 +342,8 @@ class BodyView(QWidget):
             key = (w.id,) if self.view == "top" else (round(w.centre[0], 3), round(w.tire_radius_m, 4))
             groups.setdefault(key, []).append(w)
         for ws in groups.values():
+            if self.view == "side":
+                ws = sorted(ws, key=lambda g: g.centre[1])  # seen from the right: the right-hand wheel is the near one
             w = ws[0]
             ids = [g.id for g in ws]
             cx, cy, cz = w.centre
@@ -284,9 +370,24 @@ class BodyView(QWidget):
                 label.setParentItem(roi)
                 label.setPos(r, 0.5 * w.tire_width_m)
             roi.sigRegionChangeFinished.connect(lambda rr_, ids=tuple(ids): self._wheel_edited(ids, rr_))
+            # a click or the start of a drag selects the wheel (its values in the Properties panel)
+            roi.setAcceptedMouseButtons(Qt.MouseButton.LeftButton)  # pyqtgraph: needed for sigClicked
+            roi.sigClicked.connect(lambda _r, _ev, wid=ids[0]: self.doc.select_wheel(wid))
+            roi.sigRegionChangeStarted.connect(lambda _r, wid=ids[0]: self.doc.select_wheel(wid))
             for i in ids:
                 self.wheel_rois[i] = roi
             self._add(roi)
+
+    def _restyle_wheels(self, selected: str = "") -> None:
+        """The selected wheel (Properties panel) drawn with a thick blue outline, the others plain."""
+        selected = selected or self.doc.selected_wheel
+        for wid, roi in self.wheel_rois.items():
+            if roi is self.wheel_rois.get(selected) and wid != selected:
+                continue  # a shared side-view circle: styled through the selected wheel's own entry
+            try:
+                roi.setPen(WHEEL_SELECTED_PEN if wid == selected else WHEEL_PEN)
+            except RuntimeError:  # the item was removed by a rebuild
+                pass
 
     def _draw_spots(self) -> None:
         sc = self.doc.scores
@@ -302,6 +403,7 @@ class BodyView(QWidget):
             m.sigPositionChanged.connect(lambda mk, n=name: self._spot_dragging(n, mk))
             m.sigPositionChangeFinished.connect(lambda mk, n=name: self._spot_dropped(n, mk))
             m.sigClicked.connect(lambda _mk, n=name: self.doc.select(n))
+            self._draw_axis(m, name)
             self.markers[name] = self._add(m)
         self._restyle_markers(self.doc.selected)
 
@@ -335,7 +437,96 @@ class BodyView(QWidget):
         m.sigPositionChanged.connect(lambda mk, n=selected: self._spot_dragging(n, mk))
         m.sigPositionChangeFinished.connect(lambda mk, n=selected: self._spot_dropped(n, mk))
         m.setToolTip(f"receiver spot '{selected}': drag to move")
+        self._draw_axis(m, selected)
         self.markers[selected] = self._add(m)
+
+    def _refresh_axes(self) -> None:
+        """Redraw the axis of every marker whose spot's receiver axis changed (markers that stay in place)."""
+        changed = False
+        for name, m in list(self.markers.items()):
+            try:
+                now = self.axis_in_view(name)
+            except StopIteration:
+                continue  # the spot is gone: the pending rebuild removes its marker
+            if getattr(m, "axis_drawn", None) != now:
+                self._draw_axis(m, name)
+                changed = True
+        if changed:
+            self._restyle_markers(self.doc.selected)
+            self._label_timer.start()
+
+    def place_labels(self) -> None:
+        """Put each spot's label where it overlaps no other label and no other marker (selected spot first)."""
+        try:
+            vb = self.plot.getPlotItem().vb
+        except RuntimeError:  # the view was destroyed while the timer waited
+            return
+        if not self.markers:
+            return
+        px, py = vb.viewPixelSize()
+        if not (px > 0 and py > 0):
+            return
+        names = list(self.markers)
+        centres, sizes = [], []
+        for n in names:
+            m = self.markers[n]
+            p = m.pos()
+            centres.append((p.x() / px, p.y() / py))
+            lab = m.label()
+            r = lab.boundingRect() if lab is not None else QRectF()
+            sizes.append((r.width(), r.height()))
+        axes = []
+        for n in names:
+            au, aw = getattr(self.markers[n], "axis_drawn", (0.0, 0.0))
+            drawn = float(np.hypot(au, aw)) >= AXIS_DOT_BELOW
+            axes.append((AXIS_HALF_PX * au, AXIS_HALF_PX * aw) if drawn else (0.0, 0.0))
+        sel = self.doc.selected
+        order = sorted(range(len(names)), key=lambda j: (names[j] != sel, j))
+        for n, k in zip(names, place_labels(centres, sizes, order, axes)):
+            if self.label_place.get(n, 0) == k and self.markers[n].label() is not None:
+                continue
+            self.label_place[n] = k
+            lab = self.markers[n].label()
+            if lab is None:
+                continue
+            (ox, oy), anchor = LABEL_PLACES[max(k, 0)]
+            lab.offset = pg.Point(ox, oy)
+            lab.setAnchor(anchor)
+            lab.viewTransformChanged()
+            lab.setVisible(k >= 0)
+
+    def axis_in_view(self, name: str) -> tuple[float, float]:
+        """The spot's receiver axis (unit vector) projected on this view's plane: (along x, along y or z)."""
+        v = self.doc.vehicle
+        spot = next(s for s in v.spots if s.name == name)
+        a = v.spot_axis(spot)
+        return (float(a[0]), float(a[1] if self.view == "top" else a[2]))
+
+    def _draw_axis(self, marker: SpotMarker, name: str) -> None:
+        """The spot's receiver antenna axis at its marker, in the view's projection: a line through the
+        marker (a dipole axis has no sign), its length the projected length; an axis mostly along the
+        line of sight is a dot. Drawn in pixels (the views keep x and y at one scale), moving with the marker."""
+        try:
+            au, aw = self.axis_in_view(name)
+        except StopIteration:
+            return
+        old = getattr(marker, "axis_item", None)
+        if old is not None and old.scene() is not None:
+            old.scene().removeItem(old)
+        marker.axis_drawn = (au, aw)
+        length = float(np.hypot(au, aw))
+        if length < AXIS_DOT_BELOW:
+            item = QGraphicsEllipseItem(QRectF(-2.5, -2.5, 5.0, 5.0), marker)
+            item.setBrush(QBrush(AXIS_PEN.color()))
+            item.setPen(QPen(Qt.PenStyle.NoPen))
+        else:
+            du, dw = AXIS_HALF_PX * au, -AXIS_HALF_PX * aw  # device pixels: y grows downwards
+            item = QGraphicsLineItem(-du, -dw, du, dw, marker)
+            item.setPen(_cosmetic(AXIS_PEN))
+            item.setFlag(QGraphicsItem.GraphicsItemFlag.ItemStacksBehindParent, True)  # through the marker
+        item.setFlag(QGraphicsItem.GraphicsItemFlag.ItemIgnoresTransformations, True)
+        item.setAcceptedMouseButtons(Qt.MouseButton.NoButton)
+        marker.axis_item = item
 
     def _restyle_markers(self, selected: str) -> None:
         if self._rebuild_pending:
@@ -351,14 +542,21 @@ class BodyView(QWidget):
         status, warning = self.placement.get(name, (INSIDE, ""))
         bad = status not in (INSIDE, NEAR_SURFACE)
         mark = " !" if status != INSIDE else ""
+        k = self.label_place.get(name, 0)
+        (ox, oy), anchor = LABEL_PLACES[max(k, 0)]
         m.setLabel(f"{i + 1}{mark} {name}" if sel else f"{i + 1}{mark}",
-                   {"offset": (7, -7), "color": (160, 0, 0) if bad else (0, 0, 0) if sel else (40, 40, 40),
-                    "anchor": (0, 1)})
+                   {"offset": (ox, oy), "color": (160, 0, 0) if bad else (0, 0, 0) if sel else (40, 40, 40),
+                    "anchor": anchor})
+        if m.label() is not None:
+            m.label().setVisible(k >= 0)
         brush = OUTSIDE_BRUSH if bad else NEAR_BRUSH if status == NEAR_SURFACE else SELECTED_BRUSH if sel else SPOT_BRUSH
         m.setBrush(brush)
         m.setPen(SELECTED_PEN if sel else OUTSIDE_PEN if bad else SPOT_PEN)
         m.setZValue(21 if sel else 20)
-        tip = f"receiver spot '{name}': drag to move, click to select"
+        own = spot_axis_note(self.doc.vehicle, name)
+        axis = (f"receiver axis: {own} (overrides the Receiver antenna setting)" if own else
+                f"receiver axis: the Receiver antenna setting {axis_text(self.doc.vehicle.radio.receiver.axis)}")
+        tip = f"{i + 1}: receiver spot '{name}': drag to move, click to select\n{axis} (blue line: its projection)"
         m.setToolTip(f"{tip}\nWarning: {warning}" if warning else tip)
 
     def _place_markers(self) -> bool:

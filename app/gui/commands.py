@@ -177,6 +177,11 @@ def fit_views(doc: Document, ui) -> None:
     ui.fit_views()
 
 
+def show_properties(doc: Document, ui) -> None:
+    """Show the Properties tab (exact values of the selected spot, wheel, zone and region)."""
+    ui.show_properties()
+
+
 def compute_heatmap(doc: Document, ui) -> None:
     ui.ranking.heatmap.start()
 
@@ -255,6 +260,8 @@ COMMANDS: tuple[Command, ...] = (
             enabled_when="spot"),
     Command("&Spots", "&Delete spot", delete_spot, "Del", "Delete the selected spot", enabled_when="spot"),
     Command("&View", "&Fit views", fit_views, "Ctrl+0", "Show the whole body in both views"),
+    Command("&View", "&Properties (exact values)", show_properties, "Ctrl+E",
+            "Type exact values of the selected spot, wheel, zone and region"),
     Command("&View", "&Compute heatmap", compute_heatmap, "F5", "Compute the margin over the mounting region"),
     Command("&View", "Ca&ncel heatmap", cancel_heatmap, "Esc", "Stop the heatmap computation"),
     Command("&Tools", "&Compare bodies...", compare_bodies, "Ctrl+Shift+C", "Compare spots across several body files"),

@@ -26,6 +26,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from app.gui.look import signed
 from app.gui.tasks import Task
 from app.report import figures as fig
 from core.defence import defend
@@ -186,11 +187,12 @@ class DefencePanel(QWidget):
         self.case = d.cases[i]
         ss = self.case.sensitivity
         w = int(sc.worst_wheel[i])
-        colour = "#0a6b2a" if sc.margin_db[i] >= 0 else "#a3141e"
+        shown = signed(float(sc.margin_db[i]), 1)
+        colour = "#0a6b2a" if float(shown) >= 0 else "#a3141e"  # by the value shown: never a red "-0.0"
         top = ", ".join(b.label for b in ss.most_sensitive(2))
         ax = ", ".join(f"{a:.3g}" for a in np.asarray(axes[i]))
         self.header.setText(
-            f"<b>{name}</b>: margin <b style='color:{colour}'>{sc.margin_db[i]:+.1f} dB</b>, P(pass) "
+            f"<b>{name}</b>: margin <b style='color:{colour}'>{shown} dB</b>, P(pass) "
             f"<b>{100 * ss.p_pass:.0f} %</b> ({ss.draws} draws); worst wheel {sc.wheel_ids[w]} at "
             f"{sc.worst_angle_deg[i, w]:.0f} deg; receiver axis ({ax}). Most sensitive to: {top or 'nothing varied'}.")
         self.tornado.set_sensitivity(ss)

@@ -124,6 +124,7 @@ class Document(QObject):
     selectionChanged = Signal(str)  # selected spot name ("" for none)
     zoneSelectionChanged = Signal(int)  # index into vehicle.zones, -1 for none
     regionSelectionChanged = Signal(int)  # index into vehicle.regions (the heatmap's region)
+    wheelSelectionChanged = Signal(str)  # selected wheel id ("" for none; shown in the Properties panel)
     documentReplaced = Signal()  # File > New / Open / a recovered copy: a different document
     pathChanged = Signal()
     cleanChanged = Signal(bool)
@@ -139,6 +140,7 @@ class Document(QObject):
         self.selected: str = ""
         self.selected_zone: int = -1
         self.region_index: int = 0
+        self.selected_wheel: str = ""
         self.live: tuple[str, SpotScores] | None = None
         self._live_axis = np.zeros(3)  # the receiver axis the live score was computed with
         self.vehicle: Vehicle = vehicle
@@ -369,6 +371,11 @@ class Document(QObject):
         if index != self.selected_zone:
             self.selected_zone = index
             self.zoneSelectionChanged.emit(index)
+
+    def select_wheel(self, wheel_id: str) -> None:
+        if wheel_id != self.selected_wheel:
+            self.selected_wheel = wheel_id
+            self.wheelSelectionChanged.emit(wheel_id)
 
     def select_region(self, index: int) -> None:
         if index != self.region_index:

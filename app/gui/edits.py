@@ -105,6 +105,36 @@ def delete_wheel(v: Vehicle, wheel_id: str) -> Vehicle:
     return _rebuild(d)
 
 
+def wheel_index(v: Vehicle, wheel_id: str) -> int:
+    for i, w in enumerate(v.wheels):
+        if w.id == wheel_id:
+            return i
+    raise KeyError(wheel_id)
+
+
+def set_item_value(v: Vehicle, group: str, index: int, key: str, value) -> Vehicle:
+    """Set one stored field of ``v.<group>[index]`` (group 'spots', 'wheels', 'zones' or 'regions').
+
+    ``value`` is stored as given (SI units, as in the file); None removes an optional field. The
+    result is validated like a loaded file, so a refused value raises ``VehicleFileError`` naming
+    the field (e.g. ``wheels[2].tire``)."""
+    if group not in ("spots", "wheels", "zones", "regions"):
+        raise KeyError(group)
+    d = vehicle_to_dict(v)
+    item = d[group][index]
+    if value is None:
+        item.pop(key, None)
+    else:
+        item[key] = value
+    return _rebuild(d)
+
+
+def set_wheel_value(v: Vehicle, wheel_id: str, key: str, value) -> Vehicle:
+    """Set one stored field of wheel ``wheel_id``: 'x_m', 'y_m' (m), 'tire' (ISO metric code such as
+    '225/50R17', checked by ``core.tires``), 'rim_width_m' (m), ..."""
+    return set_item_value(v, "wheels", wheel_index(v, wheel_id), key, value)
+
+
 def set_outline(v: Vehicle, key: str, points) -> Vehicle:
     """Replace ``body.top_outline`` or ``body.side_outline`` (key 'top_outline' / 'side_outline')."""
     d = vehicle_to_dict(v)

@@ -100,3 +100,11 @@ class ElidedLabel(QLabel):
 
     def _elide(self) -> None:
         super().setText(self.fontMetrics().elidedText(self._full, Qt.TextElideMode.ElideMiddle, max(10, self.width() - 4)))
+
+
+def signed(value: float, decimals: int) -> str:
+    """``value`` with its sign at ``decimals`` places, never "-0.00": a value that rounds to zero is "+0.00"
+    (a margin shown as zero passes; its colour follows the shown value)."""
+    text = f"{value:+.{decimals}f}"
+    return f"{0.0:+.{decimals}f}" if float(text) == 0.0 else text
+

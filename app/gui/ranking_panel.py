@@ -25,6 +25,7 @@ from PySide6.QtWidgets import (
     QSplitter,
     QTableWidget,
     QTableWidgetItem,
+    QTabWidget,
     QVBoxLayout,
     QWidget,
 )
@@ -33,7 +34,8 @@ from app.gui import edits
 from app.gui.body_views import _only_spots_moved
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
-from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, wheel_colour
+from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, signed, wheel_colour
+from app.gui.properties_panel import spot_axis_note
 from app.gui.tasks import Task, run_soon
 from app.heatmap_contour import polylines_for_plot, zero_contour
 from app.margin_scale import MARGIN_RANGE_DB
@@ -57,6 +59,7 @@ def _plot(title: str, bottom: str, left: str, bottom_units: str | None = None, l
         p.setLabel(side, text, units=units)
     p.showGrid(x=True, y=True, alpha=0.25)
     p.setMenuEnabled(False)
+    p.getPlotItem().setContentsMargins(2, 2, 14, 2)  # room for the last tick label at the right end
     return p
 
 
@@ -450,9 +453,10 @@ class SpotTable(QTableWidget):
     """The spots best first (``SpotScores.order()``); selecting a row selects the spot everywhere."""
 
     COLUMNS = ("rank", "no.", "spot", "margin dB", "worst wheel", "at angle deg", "placement",
-               "full-wave dB")
+               "full-wave dB", "receiver axis")
     PLACEMENT_COLUMN = 6
     FULLWAVE_COLUMN = 7  # shown only while a full-wave confirmation of this very vehicle exists
+    AXIS_COLUMN = 8  # "own (x, y, z)" where the spot's axis overrides the Receiver antenna setting
 
     def __init__(self, doc: Document, parent: QWidget | None = None):
         super().__init__(0, len(self.COLUMNS), parent)
@@ -463,11 +467,12 @@ class SpotTable(QTableWidget):
         self.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.setWordWrap(False)  # one line per spot: more rows fit a laptop screen (long names are elided)
         self.setToolTip("Receiver spots ranked by worst-case margin (worst wheel, worst angle); ties by the worst wheel's median")
         hh = self.horizontalHeader()
         hh.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         hh.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
-        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92), (6, 110), (7, 96)):
+        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92), (6, 110), (7, 96), (8, 110)):
             self.setColumnWidth(c, wpx)
         self.setColumnHidden(self.FULLWAVE_COLUMN, True)
         self.horizontalHeaderItem(self.FULLWAVE_COLUMN).setToolTip(
@@ -500,13 +505,16 @@ class SpotTable(QTableWidget):
                 if pending[i]:  # scored in the background: no numbers yet (pending rows sort last)
                     cells = ("", str(i + 1), sc.names[i], "...", "", "")
                 else:
-                    mt = f"{m:+.1f} ({float(check.margin_at_ceiling_db(m)):+.1f})" if check.over_ceiling else f"{m:+.1f}"
+                    mt = (f"{signed(m, 1)} ({signed(float(check.margin_at_ceiling_db(m)), 1)})" if check.over_ceiling
+                          else signed(m, 1))
                     cells = (str(rank + 1), str(i + 1), sc.names[i], mt, sc.wheel_ids[w],
                              f"{sc.worst_angle_deg[i, w]:.0f}")
                 for c, text in enumerate(cells):
                     item = QTableWidgetItem(text)
                     if c in (0, 1, 3, 5):
                         item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                    if c == 2:
+                        item.setToolTip(f"spot {i + 1}: {sc.names[i]}")
                     if c == 3 and pending[i]:
                         item.setToolTip("being scored in the background")
                     elif c == 3:
@@ -518,9 +526,17 @@ class SpotTable(QTableWidget):
                     self.setItem(rank, c, item)
                 self._set_placement(rank, pl.status[i], pl.flag(i), pl.message(i))
                 self._set_fullwave(rank, sc.names[i])
+                self._set_axis(rank, sc.names[i])
         finally:
             self._loading = False
         self._select_row(self.doc.selected)
+
+    def _set_axis(self, row: int, name: str) -> None:
+        own = spot_axis_note(self.doc.vehicle, name)
+        item = QTableWidgetItem(own or "setting")
+        item.setToolTip(f"This spot's own receiver antenna axis {own[4:]} overrides the Receiver antenna setting"
+                        if own else "This spot uses the Receiver antenna setting's axis")
+        self.setItem(row, self.AXIS_COLUMN, item)
 
     def fullwave_current(self) -> dict | None:
         """The document's full-wave confirmation when it was run on the vehicle as it stands, else None."""
@@ -600,14 +616,20 @@ class SpotFigures(QWidget):
         self.levels_legend = self.levels.addLegend(offset=(-6, 6), labelTextSize="8pt", colCount=3,
                                                    brush=pg.mkBrush(255, 255, 255, 200))
         split.addWidget(self.levels)
-        lower = QSplitter(Qt.Orientation.Horizontal)
+        # the burst and separation figures share the lower half as tabs: each gets the column's full width,
+        # so their two-line titles and axis labels fit at 1366 x 768
+        lower = QTabWidget()
+        lower.setDocumentMode(True)
         self.burst = _plot("Burst success vs speed", "vehicle speed", "bursts heard", "km/h", "%")
         self.burst.setYRange(0, 100, padding=0.03)
         self.burst_legend = self.burst.addLegend(offset=(6, -6), labelTextSize="8pt", colCount=3,
                                                  brush=pg.mkBrush(255, 255, 255, 200))
         self.separation = _plot("Wheel separation by signal strength", "wheel", "level", None, "dBm")
-        lower.addWidget(self.burst)
-        lower.addWidget(self.separation)
+        lower.addTab(self.burst, "Burst success vs speed")
+        lower.setTabToolTip(0, "Share of bursts heard (or the burst margin when all get through) over vehicle speed")
+        lower.addTab(self.separation, "Wheel separation")
+        lower.setTabToolTip(1, "Level distributions per wheel over a turn, for wheel location by signal strength")
+        self.lower_tabs = lower
         split.addWidget(lower)
         split.setSizes([300, 260])
         lay.addWidget(split)
@@ -808,14 +830,14 @@ class SpotFigures(QWidget):
             p.setYRange(min(0.0, float(data.min()), need) - 2, max(float(data.max()), need) + 4, padding=0)
             p.setLabel("left", "burst margin", units="dB")
             p.setTitle(f"every burst gets through: lowest burst margin {float(data.min()):.0f} dB<br>dashed: "
-                       f"required margin; squares: parked; {repeat}", size="8pt")
+                       f"required margin; squares: parked<br>{repeat}", size="8pt")
         else:
             wi, vi = r.worst()
             p.setYRange(0, 100, padding=0.03)
             p.setLabel("left", "bursts heard", units="%")
             p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
                        f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
-                       f"squares: parked; {repeat}", size="8pt")
+                       f"squares: parked<br>{repeat}", size="8pt")
         p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
 
     def _draw_separation(self, sc, i: int) -> None:

@@ -259,6 +259,11 @@ class RadioPanel(QWidget):
         if self._loading:
             return
         val = spin.value()
+        if -1.0 < val < 0.0:
+            # one step up from "model" (-1): the override starts at the model's value at this frequency
+            # (rounded to the box's 0.1 dB), so the arrow visibly starts from where the model is
+            val = round(float(material_loss_db(name, self.doc.vehicle.radio.frequency_hz)), 1) \
+                if name in BUILTIN_MATERIALS else 0.0
         loss = None if val < 0 else val
         text = f"Crossing loss of {name}" + (" (model)" if loss is None else f" {loss:g} dB")
         self.doc.apply(lambda v: edits.set_material_override(v, name, loss), text)

@@ -31,7 +31,8 @@ from app.gui import commands, dialogs
 from app.gui.body_views import BodyView
 from app.gui.defence_panel import install_defence_panel
 from app.gui.document import Document
-from app.gui.look import ElidedLabel
+from app.gui.look import ElidedLabel, signed
+from app.gui.properties_panel import PropertiesPanel, spot_axis_note
 from app.gui.ranking_panel import RankingPanel
 from app.gui.recovery import DEBOUNCE_MS, RecoveryCopy, find_orphans, recovery_dir
 from app.gui.settings_panel import RadioPanel, ZonesPanel
@@ -84,7 +85,8 @@ class SpotReadout(QLabel):
         x, y, z = (1000.0 * c for c in sc.positions[i])
         w = int(sc.worst_wheel[i])
         self.margin_db = float(sc.margin_db[i])
-        colour = "#0a6b2a" if self.margin_db >= 0 else "#a3141e"
+        shown = signed(self.margin_db, 2)
+        colour = "#0a6b2a" if float(shown) >= 0 else "#a3141e"  # by the value shown: never a red "-0.00"
         state = " (moving)" if moving else ""
         near = "  near field: indicative only" if sc.near_field is not None and sc.near_field[i] else ""
         from core.placement import INSIDE, classify
@@ -92,9 +94,12 @@ class SpotReadout(QLabel):
         pl = classify(self.doc.scene, sc.positions[i : i + 1])  # one point, well under a millisecond
         if pl.status[0] != INSIDE:
             near += f" &nbsp; <b style='color:#a3141e'>{pl.flag(0)}</b>"  # the warning: marker and table tooltips
+        own = spot_axis_note(self.doc.vehicle, name)  # the spot's own axis overrides the Receiver antenna setting
+        if own:
+            near += f" &nbsp; axis: {own}"
         self.setText(
             f"<b>{name}</b>{state} &nbsp; x {x:.0f} mm, y {y:.0f} mm, z {z:.0f} mm &nbsp;&nbsp; "
-            f"worst-case margin <b style='color:{colour}'>{self.margin_db:+.2f} dB</b> &nbsp; "
+            f"worst-case margin <b style='color:{colour}'>{shown} dB</b> &nbsp; "
             f"worst wheel {sc.wheel_ids[w]} at {sc.worst_angle_deg[i, w]:.0f} deg{near}"
         )
 
@@ -132,13 +137,16 @@ class MainWindow(QMainWindow):
 
         self.radio_panel = RadioPanel(doc)
         self.zones_panel = ZonesPanel(doc)
+        self.properties_panel = PropertiesPanel(doc)
         tabs = QTabWidget()
-        for w, title in ((self.radio_panel, "Radio and materials"), (self.zones_panel, "Zones and regions")):
+        for w, title in ((self.radio_panel, "Radio and materials"), (self.zones_panel, "Zones and regions"),
+                         (self.properties_panel, "Properties")):
             sa = QScrollArea()
             sa.setWidget(w)
             sa.setWidgetResizable(True)
             sa.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
             tabs.addTab(sa, title)
+        self.settings_tabs = tabs
         dock = QDockWidget("Settings")
         dock.setObjectName("settings")
         dock.setWidget(tabs)
@@ -285,6 +293,13 @@ class MainWindow(QMainWindow):
         self.work_bar.setRange(0, total)
         self.work_bar.setValue(done)
         self.work_bar.show()
+
+    def show_properties(self) -> None:
+        """Bring the Properties tab forward, the selected spot's x box focused."""
+        self.dock.show()
+        self.dock.raise_()
+        self.settings_tabs.setCurrentIndex(2)
+        self.properties_panel.spot_x.setFocus()
 
     def fit_views(self) -> None:
         self.top.plot.autoRange(padding=0.06)
