@@ -43,7 +43,7 @@ from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
 from core.placement import INSIDE, NEAR_SURFACE, classify
 from core.regulatory import check_sensor_eirp
-from core.scoring import EXCLUDED_CELL_NAMES
+from core.scoring import EXCLUDED_CELL_NAMES, RANK_RESOLUTION_DB
 
 KMH_PER_MPS = 3.6
 #: speeds where the frames repeat drawn in the burst figure, over all wheels (the title says when more exist)
@@ -452,8 +452,9 @@ class HeatmapPanel(QWidget):
 class SpotTable(QTableWidget):
     """The spots best first (``SpotScores.order()``); selecting a row selects the spot everywhere."""
 
-    COLUMNS = ("rank", "no.", "spot", "margin dB", "worst wheel", "at angle deg", "placement",
+    COLUMNS = ("rank", "no.", "spot", "margin dB", "wheel", "at deg", "placement",
                "full-wave dB", "receiver axis")
+    HEADER_TIPS = {4: "the spot's worst wheel", 5: "the worst wheel's worst-case angle of its turn, degrees"}
     PLACEMENT_COLUMN = 6
     FULLWAVE_COLUMN = 7  # shown only while a full-wave confirmation of this very vehicle exists
     AXIS_COLUMN = 8  # "own (x, y, z)" where the spot's axis overrides the Receiver antenna setting
@@ -472,8 +473,10 @@ class SpotTable(QTableWidget):
         hh = self.horizontalHeader()
         hh.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         hh.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
-        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 86), (5, 92), (6, 110), (7, 96), (8, 110)):
+        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 52), (5, 52), (6, 96), (7, 96), (8, 110)):
             self.setColumnWidth(c, wpx)
+        for c, tip in self.HEADER_TIPS.items():
+            self.horizontalHeaderItem(c).setToolTip(tip)
         self.setColumnHidden(self.FULLWAVE_COLUMN, True)
         self.horizontalHeaderItem(self.FULLWAVE_COLUMN).setToolTip(
             "Full-wave margin, dB, in free space (the full-wave model has no road), of the spots confirmed with "
@@ -499,6 +502,8 @@ class SpotTable(QTableWidget):
             self.setColumnWidth(3, 150 if check.over_ceiling else 78)
             self.setRowCount(len(order))
             pending = self.doc.pending
+            # the spots within the rank resolution of the best are not ranked apart (core.scoring)
+            tied = set() if pending.any() else set(sc.tied_with_best(pl.candidate)[1:])
             for rank, i in enumerate(order):
                 w = int(sc.worst_wheel[i])
                 m = float(sc.margin_db[i])
@@ -507,12 +512,16 @@ class SpotTable(QTableWidget):
                 else:
                     mt = (f"{signed(m, 1)} ({signed(float(check.margin_at_ceiling_db(m)), 1)})" if check.over_ceiling
                           else signed(m, 1))
-                    cells = (str(rank + 1), str(i + 1), sc.names[i], mt, sc.wheel_ids[w],
-                             f"{sc.worst_angle_deg[i, w]:.0f}")
+                    cells = (f"\u2248 {rank + 1}" if i in tied else str(rank + 1), str(i + 1), sc.names[i], mt,
+                             sc.wheel_ids[w], f"{sc.worst_angle_deg[i, w]:.0f}")
                 for c, text in enumerate(cells):
                     item = QTableWidgetItem(text)
                     if c in (0, 1, 3, 5):
                         item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                    if c == 0 and i in tied:
+                        item.setToolTip(f"within {RANK_RESOLUTION_DB:g} dB of the best margin: not ranked apart from the "
+                                        "best (the model's resolution against a whole-vehicle full-wave reference, "
+                                        "docs/VALIDATION.md)")
                     if c == 2:
                         item.setToolTip(f"spot {i + 1}: {sc.names[i]}")
                     if c == 3 and pending[i]:
