@@ -7,6 +7,8 @@ table from the document's ``SpotScores`` in the order of ``SpotScores.order()``,
 
 from __future__ import annotations
 
+from typing import ClassVar
+
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
@@ -454,7 +456,7 @@ class SpotTable(QTableWidget):
 
     COLUMNS = ("rank", "no.", "spot", "margin dB", "wheel", "at deg", "placement",
                "full-wave dB", "receiver axis")
-    HEADER_TIPS = {4: "the spot's worst wheel", 5: "the worst wheel's worst-case angle of its turn, degrees"}
+    HEADER_TIPS: ClassVar[dict[int, str]] = {4: "the spot's worst wheel", 5: "the worst wheel's worst-case angle of its turn, degrees"}
     PLACEMENT_COLUMN = 6
     FULLWAVE_COLUMN = 7  # shown only while a full-wave confirmation of this very vehicle exists
     AXIS_COLUMN = 8  # "own (x, y, z)" where the spot's axis overrides the Receiver antenna setting
