@@ -443,17 +443,29 @@ def near_field_flags(scene: Scene, positions: np.ndarray) -> np.ndarray:
     return near
 
 
-#: spots refined together (core.turn_minimum works on all of them in each vectorised step)
+#: spots refined together (core.turn_minimum works on all of them in each vectorised step), at most
 REFINE_BLOCK = 2048
+#: links (spots x wheels x angles) held for the refinement at once: bounds the memory of a block (its
+#: fields stay until the block's minima are refined); 2048 spots of 4 wheels at 72 angles per turn. At
+#: 1440 angles per turn and the work limit (core.bounds) a heatmap held 1.0 GB with blocks of 2048 spots.
+REFINE_LINKS = 2048 * 4 * 72
+
+
+def refine_block(scene: Scene) -> int:
+    """Spots per refinement block for this scene: REFINE_BLOCK, fewer when a spot has many links."""
+    per_spot = max(1, len(scene.wheels) * len(scene.angles_rad))
+    return max(1, min(REFINE_BLOCK, REFINE_LINKS // per_spot))
 
 
 def _turns_in_blocks(scene: Scene, positions: np.ndarray, axes, progress, cancel, chunk_links: int) -> TurnLevels:
-    """spot_turns over many spots in blocks of REFINE_BLOCK, with progress (spots) and cancel per chunk."""
+    """spot_turns over many spots in blocks of :func:`refine_block` spots, with progress (spots) and cancel per
+    chunk. Each spot's levels do not depend on the block it is computed in."""
     total = len(positions)
     ax = None if axes is None else np.broadcast_to(np.asarray(axes, float), positions.shape)
     parts = []
-    for start in range(0, total, REFINE_BLOCK):
-        sl = slice(start, min(total, start + REFINE_BLOCK))
+    block = refine_block(scene)
+    for start in range(0, total, block):
+        sl = slice(start, min(total, start + block))
 
         def tick(done, base=start):
             if progress is not None:

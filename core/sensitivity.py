@@ -838,13 +838,35 @@ def _tornado_cases(inputs: list[UncertainInput]) -> list[tuple[UncertainInput, l
     return cases
 
 
+#: links of the fast model held at once (spots x wheels x (DENSE_ANGLES + 1), plus the jumps' samples): bounds
+#: the memory of the analysis of many spots (about 1.4 kB per link; 500 spots of 4 wheels held 1.1 GB at once)
+MODEL_LINKS = 64 * 4 * (DENSE_ANGLES + 1)
+
+
+def _block_margins(scene, inputs, positions, axes, worst_angle_rad, d: Draws, mc: Draws) -> tuple[np.ndarray, np.ndarray]:
+    """The fast model's margins of the tornado cases ``d`` and the draws ``mc`` for S spots, (len(d), S) and
+    (len(mc), S), built for blocks of spots so that at most about MODEL_LINKS links are held at once (a spot's
+    margins do not depend on the other spots of its block; the draws are the same for every block)."""
+    positions = np.atleast_2d(np.asarray(positions, float))
+    axes = np.atleast_2d(np.asarray(axes, float))
+    S, W = len(positions), max(1, len(scene.wheels))
+    block = max(1, MODEL_LINKS // (W * (DENSE_ANGLES + 1)))
+    parts_d, parts_mc = [], []
+    for a in range(0, S, block):
+        sl = slice(a, min(S, a + block))
+        worst = None if worst_angle_rad is None else np.asarray(worst_angle_rad, float)[sl]
+        model = PerturbationModel(scene, inputs, positions[sl], axes[sl], worst)
+        parts_d.append(model.margins(d))
+        parts_mc.append(model.margins(mc))
+    return np.concatenate(parts_d, axis=1), np.concatenate(parts_mc, axis=1)
+
+
 def analyse(scene, positions, axes, names, engine_margin_db, worst_angle_rad=None, n_draws: int = DEFAULT_DRAWS,
             seed: int = DEFAULT_SEED, inputs: list[UncertainInput] | None = None) -> Sensitivity:
     """Tornado and P(pass) of S spots (positions, axes (S, 3); the engine's margins (S,) dB and worst angles (S, W))."""
     if n_draws < 1:
         raise ValueError("n_draws must be at least 1")
     inputs = list(inputs) if inputs is not None else uncertain_inputs(scene.vehicle, scene)
-    model = PerturbationModel(scene, inputs, positions, axes, worst_angle_rad)
     cases = _tornado_cases(inputs)
     n_cases = sum(len(c) for _, c in cases)
     d = nominal_draws(inputs, 1 + n_cases)
@@ -858,12 +880,12 @@ def analyse(scene, positions, axes, names, engine_margin_db, worst_angle_rad=Non
                 one.tilt_azimuth_rad[:] = val["azimuth"]
             k += 1
         spans.append((inp, cs, k - len(cs), k))
-    m = model.margins(d)  # (1 + cases, S)
+    mc = random_draws(inputs, n_draws, seed)
+    m, m_mc = _block_margins(scene, inputs, positions, axes, worst_angle_rad, d, mc)  # (1 + cases, S), (draws, S)
     nominal = m[0]
     engine = np.asarray(engine_margin_db, float)
     shift = engine - nominal  # anchoring
-    mc = random_draws(inputs, n_draws, seed)
-    m_mc = model.margins(mc) + shift[None, :]
+    m_mc = m_mc + shift[None, :]
     out = []
     for s in range(len(engine)):
         bars = []

@@ -363,3 +363,21 @@ def test_heatmap_stages_progress_counts_every_cell_once_and_cancel_stops(small_s
         next(gen)
     with pytest.raises(ValueError):
         list(heatmap_stages(small_scene, region, 0.1, strides=(2, 4, 1)))
+
+
+def test_refinement_blocks_bound_the_links_held_and_do_not_change_results(monkeypatch):
+    # core.scoring.refine_block: many angles per turn make smaller blocks (the memory of a block is bounded by
+    # REFINE_LINKS links); a spot's levels, worst cases and angles are the same whatever block it lands in.
+    import core.scoring as scoring
+
+    scene = Scene.from_vehicle(sedan(angles_per_turn=1440), wheel_model="knife_edge")
+    assert scoring.refine_block(scene) == scoring.REFINE_LINKS // (len(scene.wheels) * 1440) < scoring.REFINE_BLOCK
+    rng = np.random.default_rng(5)
+    pts = np.column_stack([rng.uniform(-3.0, -0.5, 7), rng.uniform(-0.5, 0.5, 7), rng.uniform(0.3, 1.0, 7)])
+    whole = score_spots(scene, pts)
+    monkeypatch.setattr(scoring, "REFINE_LINKS", 2 * len(scene.wheels) * 1440)  # blocks of 2 spots: 4 blocks
+    assert scoring.refine_block(scene) == 2
+    split = score_spots(scene, pts)
+    np.testing.assert_array_equal(split.levels_dbm, whole.levels_dbm)
+    np.testing.assert_array_equal(split.worst_dbm, whole.worst_dbm)
+    np.testing.assert_array_equal(split.worst_angle_deg, whole.worst_angle_deg)

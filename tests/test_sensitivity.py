@@ -216,3 +216,21 @@ def test_percentile_scoring_uses_the_engines_statistic():
     scene, s, pos, ax = _setup(v)
     res = analyse_scores(scene, s, ax, n_draws=1)
     assert max(abs(sp.fast_check_db) for sp in res.spots) < 1e-3
+
+
+def test_analysis_in_blocks_of_spots_equals_one_block(monkeypatch):
+    """core.sensitivity builds the fast model for blocks of spots (memory bounded by MODEL_LINKS): a spot's tornado
+    and P(pass) do not depend on the other spots of its block, and the draws are shared by every block."""
+    import core.sensitivity as sens
+
+    v = sedan()
+    scene, s, pos, ax = _setup(v)
+    whole = analyse_scores(scene, s, ax, n_draws=40)
+    monkeypatch.setattr(sens, "MODEL_LINKS", 3 * len(scene.wheels) * (sens.DENSE_ANGLES + 1))  # blocks of 3 spots
+    split = analyse_scores(scene, s, ax, n_draws=40)
+    assert len(s.names) > 3
+    for a, b in zip(whole.spots, split.spots):
+        assert a.p_pass == b.p_pass and a.margin_p05_db == b.margin_p05_db and a.fast_check_db == b.fast_check_db
+        np.testing.assert_array_equal(a.mc_margins_db, b.mc_margins_db)
+        assert [(t.key, t.margin_low_db, t.margin_high_db) for t in a.bars] == \
+            [(t.key, t.margin_low_db, t.margin_high_db) for t in b.bars]

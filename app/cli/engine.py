@@ -117,7 +117,8 @@ def _cmd_rank(args) -> int:
     defence = defend(scene, scores, axes)
     if args.json:
         doc = rank_document(v, scores, _setup(args, v, scene, source, overrides), placement, defence=defence)
-        print(json.dumps({**doc, "caution": SAFETY_NOTE}, indent=1))
+        json.dump({**doc, "caution": SAFETY_NOTE}, sys.stdout, indent=1)  # streamed: no copy of the whole text
+        print()
         return 0
     check = check_sensor_eirp(v.radio)
     if check.over_ceiling:
