@@ -327,10 +327,8 @@ class HeatmapPanel(QWidget):
         nu, nv = len(hm.u_m), len(hm.v_m)
         du = (hm.u_m[-1] - hm.u_m[0]) / (nu - 1) if nu > 1 else hm.step_m
         dv = (hm.v_m[-1] - hm.v_m[0]) / (nv - 1) if nv > 1 else hm.step_m
-        finite = np.abs(m[~np.isnan(m)])
-        # symmetric colour range about 0 dB, in 5 dB steps, covering nearly all cells (10..40 dB)
-        span = float(np.ceil(np.percentile(finite, 98) / 5.0) * 5.0) if finite.size else 10.0
-        span = min(max(span, 10.0), 40.0)
+        # the one fixed colour scale of every margin map (app.margin_scale): maps of two bodies compare by colour
+        span = MARGIN_RANGE_DB
         self.image.setImage(m.T, autoLevels=False, levels=(-span, span))
         self.image.setRect(QRectF(hm.u_m[0] - du / 2, hm.v_m[0] - dv / 2, nu * du, nv * dv))
         self.colorbar.setLevels((-span, span))

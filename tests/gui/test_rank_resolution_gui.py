@@ -7,6 +7,7 @@ import os
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
+import numpy as np
 from core.samples import SAMPLES_DIR
 
 from core.placement import classify
@@ -34,3 +35,20 @@ def test_spots_within_the_rank_resolution_are_marked_in_the_table(qtbot, setting
             assert text == f"\u2248 {row + 1}" and "not ranked apart" in table.item(row, 0).toolTip()
         else:
             assert text == str(row + 1) and table.item(row, 0).toolTip() == ""
+
+
+def test_the_heatmap_uses_the_one_fixed_colour_scale(window, qtbot):
+    # app.margin_scale: every margin map on the same scale (not fitted to each map), so two bodies compare by
+    # colour; the sedan's cabin margins (about +17 to +20 dB) once set a 20 dB scale of their own
+    from app.margin_scale import MARGIN_RANGE_DB
+
+    panel = window.ranking.heatmap
+    panel.step.setCurrentIndex(panel.step.findData(0.2))
+    done = []
+    panel.heatmapReady.connect(done.append)
+    panel.start()
+    qtbot.waitUntil(lambda: bool(done), timeout=120_000)
+    finite = done[-1].margin_db[~np.isnan(done[-1].margin_db)]
+    assert finite.size and np.abs(finite).max() < MARGIN_RANGE_DB - 5.0  # a map a fitted scale would narrow
+    assert tuple(panel.image.getLevels()) == (-MARGIN_RANGE_DB, MARGIN_RANGE_DB)
+    assert tuple(panel.colorbar.levels()) == (-MARGIN_RANGE_DB, MARGIN_RANGE_DB)
