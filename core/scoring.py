@@ -446,9 +446,11 @@ def near_field_flags(scene: Scene, positions: np.ndarray) -> np.ndarray:
 #: spots refined together (core.turn_minimum works on all of them in each vectorised step), at most
 REFINE_BLOCK = 2048
 #: links (spots x wheels x angles) held for the refinement at once: bounds the memory of a block (its
-#: fields stay until the block's minima are refined); 2048 spots of 4 wheels at 72 angles per turn. At
-#: 1440 angles per turn and the work limit (core.bounds) a heatmap held 1.0 GB with blocks of 2048 spots.
-REFINE_LINKS = 2048 * 4 * 72
+#: fields stay until the block's minima are refined); 512 spots of 4 wheels at 72 angles per turn. At
+#: 1440 angles per turn and the work limit (core.bounds) a heatmap held 1.0 GB with blocks of 2048 spots;
+#: the sedan's 2,352-cell heatmap peaks at 43 MiB with this bound (157 MiB with 2,048-spot blocks) in
+#: the same CPU time (interleaved A/B, docs/performance.md).
+REFINE_LINKS = 512 * 4 * 72
 
 
 def refine_block(scene: Scene) -> int:
