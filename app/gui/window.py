@@ -163,6 +163,9 @@ class MainWindow(QMainWindow):
         self.work_bar.hide()
         self.statusBar().addPermanentWidget(self.work_bar)
         self.statusBar().addPermanentWidget(self.model_label)
+        # a temporary message (an edit refused, a file written) gets the whole bar while it shows; the setup
+        # line returns when it ends (it ran into the setup line and read as one sentence)
+        self.statusBar().messageChanged.connect(lambda text: self.model_label.setVisible(not text))
         self._build_menus()
 
         doc.statusMessage.connect(lambda t: self.statusBar().showMessage(t, 10000))

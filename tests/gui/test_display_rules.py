@@ -1,5 +1,7 @@
-"""The spot table marks the spots the model does not rank apart from the best (core.scoring.RANK_RESOLUTION_DB,
-from the engine's agreement with the whole-vehicle full-wave reference, docs/VALIDATION.md)."""
+"""What the desktop program shows must not say more than the numbers hold: spots the model does not rank apart
+from the best are marked (core.scoring.RANK_RESOLUTION_DB, from the engine's agreement with the whole-vehicle
+full-wave reference, docs/VALIDATION.md); every heatmap on the one fixed colour scale; a temporary status
+message never reads as part of the setup line."""
 
 from __future__ import annotations
 
@@ -52,3 +54,11 @@ def test_the_heatmap_uses_the_one_fixed_colour_scale(window, qtbot):
     assert finite.size and np.abs(finite).max() < MARGIN_RANGE_DB - 5.0  # a map a fitted scale would narrow
     assert tuple(panel.image.getLevels()) == (-MARGIN_RANGE_DB, MARGIN_RANGE_DB)
     assert tuple(panel.colorbar.levels()) == (-MARGIN_RANGE_DB, MARGIN_RANGE_DB)
+
+
+def test_a_temporary_status_message_does_not_run_into_the_setup_line(window, qtbot):
+    bar = window.statusBar()
+    assert window.model_label.isVisibleTo(window)
+    bar.showMessage("Edit refused: a message long enough to reach the permanent setup line of the status bar", 200)
+    assert not window.model_label.isVisibleTo(window)
+    qtbot.waitUntil(lambda: window.model_label.isVisibleTo(window), timeout=5000)  # back when the message ends
