@@ -12,8 +12,8 @@ import numpy as np
 from app.caution import SAFETY_NOTE
 from app.report.data import CAUTION, file_sha256, program_version
 from core.compare import CommonSearch, Comparison, names_at_several_places, recommend
-from core.provenance import vehicle_source
-from core.vehicle import read_vehicle_bytes, vehicle_to_json
+from core.provenance import load_with_source
+from core.vehicle import read_vehicle_bytes
 
 
 def _short(style: str, k: int) -> str:
@@ -167,7 +167,8 @@ def write_comparison_pdf(out_pdf, vehicles, paths, c: Comparison, search: Common
     from app.report.pdf import S, esc, render_pdf_atomic
 
     now = datetime.now(UTC).astimezone()
-    hashes = [file_sha256(read_vehicle_bytes(p)) if p else vehicle_source(None, vehicle_to_json(v).encode("utf-8"))["sha256"]
+    # a file: its bytes; the open document: its canonical JSON (core.provenance, as the placement report)
+    hashes = [file_sha256(read_vehicle_bytes(p)) if p else load_with_source(v)[1]["sha256"]
               for v, p in zip(vehicles, paths)]
     labels = body_labels(c)
     best = c.common_best
