@@ -20,7 +20,7 @@ and angle, shaped only by the walls near each spot.
 
 from __future__ import annotations
 
-from functools import lru_cache
+from functools import cache
 from pathlib import Path
 
 import numpy as np
@@ -34,12 +34,26 @@ ROOT = Path(__file__).resolve().parents[1]
 BODIES = [("sedan", "l8_contents"), ("hatchback", "l8_contents"), ("suv", "l8_contents")]
 
 
-@lru_cache(maxsize=None)
+#: the reference without cabin contents (both sides configured alike: the engine's contents absorption 0)
+EMPTY = [("sedan", "l8_empty"), ("hatchback", "l8_empty"), ("hatchback", "l10_empty")]
+
+
+def _reference(body: str, config: str) -> dict:
+    return load_reference_csv(ROOT / "tests" / "data" / f"fullwave_levels_{body}.csv")[(body, config)]
+
+
+def _reference_medians(body: str, config: str) -> np.ndarray:
+    """(S, W) median over the turn of the frequency-averaged reference level, dBm."""
+    return turn_statistics(frequency_average_db(_reference(body, config)["levels_dbm"]))["median"]["wheel"]
+
+
+@cache
 def _agreement(body: str, config: str, cavity: bool = True) -> dict:
-    ref = load_reference_csv(ROOT / "tests" / "data" / f"fullwave_levels_{body}.csv")[(body, config)]
+    ref = _reference(body, config)
     v = load_vehicle(ROOT / "sample_vehicles" / f"{body}.json")
     n = len(ref["angles_deg"])
-    v = v.model_copy(update={"radio": v.radio.model_copy(
+    body_update = {"cabin_absorption_m2": 0.0} if config.endswith("_empty") else {}
+    v = v.model_copy(update={"body": v.body.model_copy(update=body_update), "radio": v.radio.model_copy(
         update={"angles_per_turn": n, "ground_reflection": False, "fade_probability": 0.0})})
     names, pos, axes = vehicle_spot_arrays(v)
     idx = [names.index(s) for s in ref["spots"]]
@@ -64,6 +78,40 @@ def test_cabin_level_agrees_with_the_full_wave_reference(body, config):
 @pytest.mark.parametrize("body, config", BODIES)
 def test_cabin_spot_ranking_agrees_with_the_full_wave_reference(body, config):
     assert _agreement(body, config)["rho"] >= 0.8
+
+
+@pytest.mark.parametrize("body, config", EMPTY)
+def test_without_contents_on_both_sides_the_ranking_agrees_better(body, config):
+    """The same comparison with the cabin empty on both sides (reference l8_empty / l10_empty, the engine's
+    contents absorption 0): offset and RMS within the issue's targets, and the ranking closer than with the
+    contents (measured rho 0.68 sedan, 0.68 / 0.79 hatchback at lambda/8 / lambda/10, against 0.49 / 0.43
+    with them). The lower bound 0.6 is a regression guard at the measured values, not a target."""
+    a = _agreement(body, config)
+    assert abs(a["offset_db"]) <= 6.0 and a["rms_db"] <= 4.0, a
+    assert a["rho"] >= 0.6, a
+    with_contents = _agreement(body, "l8_contents")
+    assert a["rho"] > with_contents["rho"] + 0.15, (a, with_contents)
+
+
+@pytest.mark.xfail(strict=True, reason="known disagreement: rho 0.68-0.79 without contents against the 0.8 target")
+@pytest.mark.parametrize("body, config", EMPTY)
+def test_without_contents_the_ranking_meets_the_target(body, config):
+    assert _agreement(body, config)["rho"] >= 0.8
+
+
+@pytest.mark.parametrize("body", ["sedan", "hatchback"])
+def test_the_reference_contents_scatter_as_well_as_absorb(body):
+    """Why the empty cabin is compared as well (docs/VALIDATION.md): adding the two occupant blocks to the
+    reference raises some (spot, wheel) medians by more than 3 dB (up to 5.8 dB on the hatchback, 3.7 dB on
+    the sedan), which absorption alone - all the engine's contents term models, one cross-section in the
+    power balance (Hill et al. 1994) - can only lower; on the hatchback they reshuffle the spots' order
+    (Spearman rho between the empty and the occupied cabin under 0.3)."""
+    from scipy.stats import spearmanr
+
+    empty, full = _reference_medians(body, "l8_empty"), _reference_medians(body, "l8_contents")
+    assert (full - empty).max() > 3.0
+    if body == "hatchback":
+        assert spearmanr(empty.min(axis=1), full.min(axis=1)).statistic < 0.3
 
 
 @pytest.mark.parametrize("body, config", BODIES)
