@@ -121,10 +121,15 @@ def _on_white(c, alpha: float):
     return QColor(*(round(255 + alpha * (ch - 255)) for ch in (c.red(), c.green(), c.blue())))
 
 
+def same_but_spots(a, b) -> bool:
+    """True when vehicles ``a`` and ``b`` differ at most in their spots (added, removed, moved, renamed):
+    everything a margin map depends on is the same (its cells are receiver positions of their own)."""
+    return a.model_copy(update={"spots": ()}) == b.model_copy(update={"spots": ()})
+
+
 def _only_spots_moved(a, b) -> bool:
     """True when vehicles ``a`` and ``b`` differ at most in where their spots are (same names, same order)."""
-    return ([s.name for s in a.spots] == [s.name for s in b.spots]
-            and a.model_copy(update={"spots": ()}) == b.model_copy(update={"spots": ()}))
+    return [s.name for s in a.spots] == [s.name for s in b.spots] and same_but_spots(a, b)
 
 
 class SpotMarker(pg.TargetItem):

@@ -33,7 +33,7 @@ from PySide6.QtWidgets import (
 )
 
 from app.gui import edits
-from app.gui.body_views import _only_spots_moved
+from app.gui.body_views import _only_spots_moved, same_but_spots
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
 from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, signed, wheel_colour
@@ -308,11 +308,13 @@ class HeatmapPanel(QWidget):
 
     def _computed_for_current(self) -> bool:
         """True when the heatmap shown, or the one being computed, is of the document's vehicle as it stands
-        (e.g. a dragged outline was dropped where its last preview was computed): nothing to recompute."""
+        (e.g. a dragged outline was dropped where its last preview was computed) or differs from it only in
+        the spots, which a margin map does not depend on: nothing to recompute."""
         region, step = self.region(), float(self.step.currentData())
         job = self.job
         key = job.key if job is not None and not job.cancel_requested() else self._shown_for if job is None else None
-        return key is not None and key[0] == self.doc.vehicle and key[1] == region and key[2] == step
+        return (key is not None and key[1] == region and key[2] == step
+                and (key[0] == self.doc.vehicle or same_but_spots(key[0], self.doc.vehicle)))
 
     def _live_spot(self, name: str, sc) -> None:
         """A spot is being dragged: its dot follows (the margin map itself does not depend on the spots)."""

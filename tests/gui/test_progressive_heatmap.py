@@ -100,3 +100,23 @@ def test_cancel_during_a_drag_stops_for_good(window, qtbot):
     assert panel.job is None and not panel.is_running()
     assert panel.compute.isEnabled() and not panel.cancel_button.isEnabled()
     assert panel.readout.text() == "Heatmap cancelled."
+
+
+def test_a_spot_edit_leaves_the_heatmap_alone_and_a_body_edit_recomputes_it(window, qtbot):
+    """The margin map's cells are receiver positions of their own: moving, adding or removing a spot changes
+    nothing it depends on, so with "auto" on a spot edit keeps the map shown (no run started, the map object
+    the same); a body edit (a zone's material) starts a new run."""
+    panel = window.ranking.heatmap
+    panel.step.setCurrentIndex(panel.step.findData(0.1))
+    panel.auto.setChecked(True)
+    seen = _events(panel)
+    panel.start()
+    qtbot.waitUntil(lambda: any(k == "full" for k, _ in seen), timeout=120_000)
+    shown = panel.result
+    spot = window.doc.vehicle.spots[0]
+    x, y, z = window.doc.vehicle.resolve_spot(spot)
+    assert window.doc.apply(lambda v: edits.move_spot(v, spot.name, (x - 0.1, y, z)), "move spot")
+    qtbot.wait(2 * panel._debounce.interval())
+    assert panel.job is None and not panel._debounce.isActive() and panel.result is shown
+    assert window.doc.apply(lambda v: edits.set_zone_material(v, 0, "plastic"), "zone material")
+    qtbot.waitUntil(lambda: panel.job is not None, timeout=10_000)
