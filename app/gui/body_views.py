@@ -1,6 +1,7 @@
 """Top view and side view of the body: outlines, zones, wheels, mounting region and receiver spots.
 
-Both views are editable: drag an outline vertex, click an outline segment to add a vertex,
+Both views are editable: drag an outline vertex, click an outline segment to add a vertex (where it
+runs over a wheel the click selects the wheel),
 right-click a vertex to remove it; drag a wheel; drag a receiver spot (live margin while dragging,
 the edit is made when the mouse is released). The views write user input to the document only;
 they redraw from the document's signals. A spot's x is shared by both views.
@@ -159,6 +160,26 @@ class _HandleFreeEllipse(pg.EllipseROI):
             self.removeHandle(h)
 
 
+class _BodyOutline(pg.PolyLineROI):
+    """The body outline: a click on a segment adds a vertex there, except where the segment runs over a
+    wheel - there the click selects the wheel (``wheel_at(point)`` names the wheel under a point of the
+    view, m, or None), as a click anywhere else on the wheel does."""
+
+    def __init__(self, points, wheel_at, select_wheel, **kw):
+        super().__init__(points, **kw)
+        self._wheel_at, self._select_wheel = wheel_at, select_wheel
+
+    def segmentClicked(self, segment, ev=None, pos=None):
+        at = segment.mapToParent(ev.pos()) if ev is not None else pos
+        wid = self._wheel_at(at) if at is not None else None
+        if wid is not None:
+            if ev is not None:
+                ev.accept()
+            self._select_wheel(wid)
+            return
+        super().segmentClicked(segment, ev, pos)
+
+
 class BodyView(QWidget):
     """One view of the body: 'top' (x, y) or 'side' (x, z), in metres; readouts in mm."""
 
@@ -294,7 +315,8 @@ class BodyView(QWidget):
 
     def _draw_body(self, v) -> None:
         pts = v.body.top_outline if self.view == "top" else v.body.side_outline
-        roi = pg.PolyLineROI([list(p) for p in pts], closed=True, movable=False, pen=pg.mkPen(BODY_COLOUR, width=2))
+        roi = _BodyOutline([list(p) for p in pts], self.wheel_at, self.doc.select_wheel, closed=True, movable=False,
+                           pen=pg.mkPen(BODY_COLOUR, width=2))
         roi.setZValue(10)
         roi.sigRegionChangeFinished.connect(self._body_edited)
         roi.sigRegionChanged.connect(lambda r: self._outline_moving("body", -1, r))
@@ -382,6 +404,13 @@ class BodyView(QWidget):
             for i in ids:
                 self.wheel_rois[i] = roi
             self._add(roi)
+
+    def wheel_at(self, point) -> str | None:
+        """The id of the wheel drawn under ``point`` (QPointF in the view's coordinates, m), or None."""
+        for wid, roi in self.wheel_rois.items():
+            if roi.shape().contains(roi.mapFromParent(point)):
+                return wid
+        return None
 
     def _restyle_wheels(self, selected: str = "") -> None:
         """The selected wheel (Properties panel) drawn with a thick blue outline, the others plain."""

@@ -185,3 +185,38 @@ def test_a_refused_zone_height_is_reported_in_the_zone_group(window, qtbot):
     assert not p.message.isVisibleTo(p)
     doc.undo_stack.undo()
     assert doc.vehicle.zones[i].z_min_m == v0.zones[i].z_min_m
+
+
+def test_a_click_where_the_outline_runs_over_a_wheel_selects_the_wheel(window, qtbot):
+    """In the side view the body's lower edge runs over every tire circle: a click on that edge inside a
+    wheel selects the wheel (as a click elsewhere on it does) instead of adding an outline corner; the
+    same edge clicked away from the wheels still adds one."""
+    import numpy as np
+    from PySide6.QtCore import QPointF
+    from shapely.geometry import LineString, Point
+
+    doc, view = window.doc, window.side
+    w = doc.vehicle.wheels[2]
+    r = w.tire_size.outer_radius_m
+    outline = [tuple(p) for p in doc.vehicle.body.side_outline]
+    circle = Point(w.x_m, w.tire_size.outer_radius_m).buffer(0.8 * r)  # well inside the tire (centre at z = r)
+    k, inside = next((k, seg.intersection(circle)) for k, seg in
+                     ((k, LineString([outline[k], outline[(k + 1) % len(outline)]])) for k in range(len(outline)))
+                     if seg.intersects(circle))
+    pt = inside.interpolate(0.5, normalized=True)
+    vb = view.plot.getPlotItem().vb
+    vb.setRange(xRange=(w.x_m - 1.5 * r, w.x_m + 1.5 * r), yRange=(-0.2, 2.2 * r), padding=0)
+    qtbot.wait(50)
+    before = len(view.body_roi.getHandles())
+    doc.select_wheel(doc.vehicle.wheels[0].id)
+    click = view.plot.mapFromScene(vb.mapViewToScene(QPointF(pt.x, pt.y)))
+    qtbot.mouseClick(view.plot.viewport(), Qt.MouseButton.LeftButton, pos=click)
+    qtbot.waitUntil(lambda: doc.selected_wheel in {g.id for g in doc.vehicle.wheels if abs(g.x_m - w.x_m) < 1e-6},
+                    timeout=3000)
+    assert len(view.body_roi.getHandles()) == before and not doc.undo_stack.canUndo()
+    # the same segment away from the wheels (the part outside every tire) still takes a corner
+    seg = LineString([outline[k], outline[(k + 1) % len(outline)]])
+    far = next(seg.interpolate(f, normalized=True) for f in np.linspace(0.05, 0.95, 19)
+               if view.wheel_at(QPointF(seg.interpolate(f, normalized=True).x, seg.interpolate(f, normalized=True).y)) is None)
+    assert view.body_roi.segmentClicked(view.body_roi.segments[k], pos=QPointF(far.x, far.y)) is None
+    assert len(view.body_roi.getHandles()) == before + 1
