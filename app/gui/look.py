@@ -63,8 +63,8 @@ def lock_aspect(plot: pg.PlotWidget) -> None:
 
 
 class ElidedLabel(QLabel):
-    """A one-line label that shortens its text with an ellipsis in the middle when the window is narrow
-    (so a long status line never sets the window's minimum width); the full text is its tooltip's first line."""
+    """A one-line label that shortens its text with an ellipsis when the window is narrow (so a long status
+    line never sets the window's minimum width; :func:`elide_parts`); the full text is its tooltip's first line."""
 
     def __init__(self, text: str = "", parent=None):
         super().__init__(parent)
@@ -82,7 +82,7 @@ class ElidedLabel(QLabel):
         return self._full
 
     #: the widest the label asks to be, px (a status line leaves room for the messages beside it)
-    MAX_HINT_PX = 720
+    MAX_HINT_PX = 960
 
     def sizeHint(self):
         hint = super().sizeHint()
@@ -98,8 +98,30 @@ class ElidedLabel(QLabel):
         super().resizeEvent(ev)
         self._elide()
 
+    #: separator of the parts of a status line; a part is shortened whole, never a number in the middle
+    SEPARATOR = "  |  "
+
     def _elide(self) -> None:
-        super().setText(self.fontMetrics().elidedText(self._full, Qt.TextElideMode.ElideMiddle, max(10, self.width() - 4)))
+        super().setText(elide_parts(self._full, self.fontMetrics(), max(10, self.width() - 4), self.SEPARATOR))
+
+
+def elide_parts(text: str, metrics, width_px: int, separator: str = "  |  ") -> str:
+    """``text`` shortened to ``width_px``: its longest ``separator``-joined part first, cut at its end with
+    an ellipsis (the other parts, e.g. frequency and sensitivity, stay whole), then the whole line at its
+    end. Cutting the line in its middle could join two values into one that reads as another
+    ("-105 dB...2 MHz")."""
+    if metrics.horizontalAdvance(text) <= width_px:
+        return text
+    parts = text.split(separator)
+    if len(parts) > 1:
+        k = max(range(len(parts)), key=lambda i: metrics.horizontalAdvance(parts[i]))
+        rest = metrics.horizontalAdvance(separator.join(parts[:k] + parts[k + 1:])) + metrics.horizontalAdvance(
+            separator)
+        room = width_px - rest
+        if room >= 12 * metrics.averageCharWidth():
+            parts[k] = metrics.elidedText(parts[k], Qt.TextElideMode.ElideRight, room)
+            return separator.join(parts)
+    return metrics.elidedText(text, Qt.TextElideMode.ElideRight, width_px)
 
 
 def signed(value: float, decimals: int) -> str:

@@ -62,3 +62,28 @@ def test_a_temporary_status_message_does_not_run_into_the_setup_line(window, qtb
     bar.showMessage("Edit refused: a message long enough to reach the permanent setup line of the status bar", 200)
     assert not window.model_label.isVisibleTo(window)
     qtbot.waitUntil(lambda: window.model_label.isVisibleTo(window), timeout=5000)  # back when the message ends
+
+
+def test_a_long_status_line_is_shortened_part_by_part_never_inside_a_value(qapp):
+    """The setup line in the status bar is shortened where the window is narrow: its longest part (the wheel
+    model's description) is cut at its end, the frequency, EIRP and sensitivity stay whole; a cut in the
+    middle of the line once joined "-105 dBm" and "433.92 MHz" into "-105 dB...2 MHz"."""
+    from PySide6.QtGui import QFont, QFontMetrics
+
+    from app.gui.look import elide_parts
+
+    m = QFontMetrics(QFont())
+    parts = ["433.92 MHz", "sensor EIRP -12.0 dBm", "sensitivity -105 dBm",
+             "wheel model: installed pattern: NEC-2 table: 17.0 x 7.5 in rim, 433.92 MHz, radial sensor, with steel belt",
+             "road reflection on"]
+    line = "  |  ".join(parts)
+    full = m.horizontalAdvance(line)
+    assert elide_parts(line, m, full + 2) == line
+    width = int(full * 0.75)
+    short = elide_parts(line, m, width)
+    assert m.horizontalAdvance(short) <= width
+    kept = short.split("  |  ")
+    assert kept[:3] == parts[:3] and kept[4] == parts[4]
+    assert kept[3] != parts[3] and parts[3].startswith(kept[3].rstrip("…").rstrip("."))
+    tiny = elide_parts(line, m, 80)  # too narrow for the parts: the line's start, cut at its end
+    assert m.horizontalAdvance(tiny) <= 80 and tiny.startswith("433")
