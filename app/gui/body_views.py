@@ -67,9 +67,10 @@ LABEL_INSET_PX = 3.5
 LABEL_GAP_PX = 4.0
 
 
-def place_labels(centres, sizes, order, axes=None) -> list[int]:
+def place_labels(centres, sizes, order, axes=None, avoid=None) -> list[int]:
     """Choose a place for each label so that no two labels overlap and no label covers another marker or
-    any spot's axis line.
+    any spot's axis line; among those places, one that covers none of the points ``avoid`` (M, 2) px (the
+    body outline's lines) when there is one.
 
     ``centres`` (N, 2) marker centres in pixels (x right, y up); ``sizes`` (N, 2) label width and height,
     px; ``order`` the markers by priority (the selected spot first); ``axes`` (N, 2) half of each axis
@@ -83,8 +84,15 @@ def place_labels(centres, sizes, order, axes=None) -> list[int]:
     line_pts = (c[:, None, :] + t[None, :, None] * ax[:, None, :]).reshape(-1, 2)
     placed: list[tuple[float, float, float, float]] = []
     out = [-1] * len(c)
+    soft = np.zeros((0, 2)) if avoid is None else np.asarray(avoid, float).reshape(-1, 2)
+
+    def covers(pts, r) -> bool:
+        return bool(np.any((pts[:, 0] > r[0] - 1) & (pts[:, 0] < r[2] + 1) & (pts[:, 1] > r[1] - 1)
+                           & (pts[:, 1] < r[3] + 1)))
+
     for i in order:
         w, h = (float(t) - 2 * LABEL_INSET_PX for t in sizes[i])
+        first_free = None  # the first place that breaks only the soft rule (covers an outline line)
         for k, ((ox, oy), (ax, ay)) in enumerate(LABEL_PLACES):
             x0 = c[i, 0] + ox - ax * (w + 2 * LABEL_INSET_PX) + LABEL_INSET_PX
             top = c[i, 1] + oy + ay * (h + 2 * LABEL_INSET_PX) - LABEL_INSET_PX
@@ -99,13 +107,16 @@ def place_labels(centres, sizes, order, axes=None) -> list[int]:
             hit[i] = False
             if hit.any():
                 continue
-            on_line = ((line_pts[:, 0] > r[0] - 1) & (line_pts[:, 0] < r[2] + 1) & (line_pts[:, 1] > r[1] - 1)
-                       & (line_pts[:, 1] < r[3] + 1))
-            if on_line.any():
+            if covers(line_pts, r):
                 continue
-            placed.append(r)
-            out[i] = k
+            if covers(soft, r):
+                first_free = first_free or (k, r)
+                continue
+            first_free = (k, r)
             break
+        if first_free is not None:
+            placed.append(first_free[1])
+            out[i] = first_free[0]
     return out
 
 
@@ -516,7 +527,7 @@ class BodyView(QWidget):
             axes.append((AXIS_HALF_PX * au, AXIS_HALF_PX * aw) if drawn else (0.0, 0.0))
         sel = self.doc.selected
         order = sorted(range(len(names)), key=lambda j: (names[j] != sel, j))
-        for n, k in zip(names, place_labels(centres, sizes, order, axes)):
+        for n, k in zip(names, place_labels(centres, sizes, order, axes, self._outline_points_px(px, py))):
             if self.label_place.get(n, 0) == k and self.markers[n].label() is not None:
                 continue
             self.label_place[n] = k
@@ -528,6 +539,23 @@ class BodyView(QWidget):
             lab.setAnchor(anchor)
             lab.viewTransformChanged()
             lab.setVisible(k >= 0)
+
+    def _outline_points_px(self, px: float, py: float) -> np.ndarray:
+        """Points every 2 px along the body outline's lines as drawn, in the pixel frame of
+        :meth:`place_labels` (labels keep off them where they can)."""
+        roi = getattr(self, "body_roi", None)
+        if roi is None:
+            return np.zeros((0, 2))
+        try:
+            pts = np.array([[p.x(), p.y()] for p in (roi.mapToParent(h.pos()) for h in roi.getHandles())])
+        except RuntimeError:
+            return np.zeros((0, 2))
+        if len(pts) < 2:
+            return np.zeros((0, 2))
+        a = pts / (px, py)
+        b = np.roll(a, -1, axis=0)
+        n = np.maximum(2, np.ceil(np.hypot(*(b - a).T) / 2.0).astype(int))
+        return np.concatenate([a[j] + np.linspace(0.0, 1.0, n[j])[:, None] * (b[j] - a[j]) for j in range(len(a))])
 
     def axis_in_view(self, name: str) -> tuple[float, float]:
         """The spot's receiver axis (unit vector) projected on this view's plane: (along x, along y or z)."""

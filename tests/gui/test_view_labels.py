@@ -62,6 +62,21 @@ def test_labels_keep_off_the_axis_lines():
             assert not inside.any(), (i, j)
 
 
+def test_labels_keep_off_the_outline_where_they_can():
+    """The body outline's lines are a soft rule: a label takes the first place clear of them, and where every
+    place crosses one it is still shown (at its first free place) rather than hidden."""
+    c, size = (100.0, 100.0), (120.0, 22.0)
+    first = place_labels([c], [size], [0])[0]
+    a = _rect(c, size, first)
+    line = np.column_stack([np.linspace(0, 300, 301), np.full(301, 0.5 * (a[1] + a[3]))])  # through that place
+    k = place_labels([c], [size], [0], avoid=line)[0]
+    assert k >= 0 and k != first
+    b = _rect(c, size, k)
+    assert not ((line[:, 0] > b[0]) & (line[:, 0] < b[2]) & (line[:, 1] > b[1]) & (line[:, 1] < b[3])).any()
+    grid = np.stack(np.meshgrid(np.arange(0, 300, 2.0), np.arange(0, 300, 2.0)), -1).reshape(-1, 2)
+    assert place_labels([c], [size], [0], avoid=grid)[0] == first  # nowhere clear: shown all the same
+
+
 def test_two_spots_at_one_place_get_labels_on_different_sides():
     ks = place_labels([(50.0, 50.0), (50.0, 50.0)], [(24.0, 22.0), (24.0, 22.0)], [0, 1])
     assert ks[0] >= 0 and ks[1] >= 0 and ks[0] != ks[1]
