@@ -148,3 +148,20 @@ def test_burst_margin_parked_is_the_worst_sampled_level_and_diversity_raises_it(
     assert np.all((b.margin_db >= 0) == (b.success >= 1.0))
     k = np.argmin(np.abs(b.speeds_mps - b.resonant_mps[0][0]))
     assert b.margin_db[0, k] < b.margin_db[0].max()
+
+
+def test_tornado_range_text_writes_a_shared_unit_once():
+    """Beside each tornado bar (report and desktop panel) the input's range: a unit both ends share is written
+    once, so the range fits a narrow panel; different words stay whole; an input without effect says so."""
+    from app.report.figures import tornado_range_text
+    from core.sensitivity import TornadoBar
+
+    def bar(lo, hi, key="x", effect=""):
+        return TornadoBar(key, "input", "", lo, hi, 0.0, 1.0, "", effect)
+
+    assert tornado_range_text(bar("433.052 MHz", "434.788 MHz")) == "433.052 .. 434.788 MHz"
+    assert tornado_range_text(bar("-15.0 dBm", "-9.0 dBm")) == "-15.0 .. -9.0 dBm"
+    assert tornado_range_text(bar("reflection off", "wet ground")) == "reflection off .. wet ground"
+    assert tornado_range_text(bar("10 dB", "30 dBm")) == "10 dB .. 30 dBm"
+    assert tornado_range_text(bar("15 deg, toward x", "15 deg, toward y", key="axis_tilt")) == "15 deg: worst / best"
+    assert tornado_range_text(bar("1 dB", "2 dB", effect="not in this setup")) == "no effect here"

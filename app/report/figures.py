@@ -762,6 +762,18 @@ def tornado_height(ss, s: float) -> float:
     return (len(ss.bars) * 15.0 + 70.0) * s
 
 
+def tornado_range_text(b) -> str:
+    """The range beside a tornado bar, short: a unit both ends share written once ("433.052 .. 434.788 MHz")."""
+    if b.effect:
+        return "no effect here"
+    if b.key == "axis_tilt":
+        return f"{b.low_text.split(',')[0]}: worst / best"
+    lo, hi = b.low_text.rsplit(" ", 1), b.high_text.rsplit(" ", 1)
+    if len(lo) == 2 and len(hi) == 2 and lo[1] == hi[1] and not lo[1][:1].isdigit():
+        return f"{lo[0]} .. {hi[0]} {hi[1]}"
+    return f"{b.low_text} .. {b.high_text}"
+
+
 def draw_tornado(p: QPainter, rect: QRectF, s: float, ss, title: str | None = None) -> None:
     """The tornado of a spot (core.sensitivity.SpotSensitivity): per input a bar from its margin with the input at
     the low end of its range (blue) to the margin at the high end (orange), most influential on top; the nominal
@@ -775,7 +787,7 @@ def draw_tornado(p: QPainter, rect: QRectF, s: float, ss, title: str | None = No
     p.setFont(font(6.5, s=s))
     fm = QFontMetricsF(p.font())
     label_w = max(fm.horizontalAdvance(b.label) for b in bars) + 6 * s
-    range_w = max(fm.horizontalAdvance(f"{b.low_text} .. {b.high_text}") for b in bars) + 8 * s
+    range_w = max(fm.horizontalAdvance(tornado_range_text(b)) for b in bars) + 8 * s
     range_w = min(range_w, rect.width() * 0.32)
     p.restore()
     items = [("input at the low end of its range", TORNADO_LOW, Qt.PenStyle.SolidLine),
@@ -802,13 +814,7 @@ def draw_tornado(p: QPainter, rect: QRectF, s: float, ss, title: str | None = No
         q = ax.map(lo, yy)
         p.setPen(QColor(150, 150, 150) if grey else QColor(BODY))
         p.drawText(QPointF(q.x() - 4 * s - fm.horizontalAdvance(b.label), q.y() + fm.ascent() / 2 - 1 * s), b.label)
-        if b.effect:
-            txt = "no effect here"
-        elif b.key == "axis_tilt":
-            txt = f"{b.low_text.split(',')[0]}: worst / best direction"
-        else:
-            txt = f"{b.low_text} .. {b.high_text}"
-        txt = fm.elidedText(txt, Qt.TextElideMode.ElideRight, range_w - 6 * s)
+        txt = fm.elidedText(tornado_range_text(b), Qt.TextElideMode.ElideRight, range_w - 6 * s)
         q2 = ax.map(hi, yy)
         p.drawText(QPointF(q2.x() + 5 * s, q2.y() + fm.ascent() / 2 - 1 * s), txt)
     p.setClipRect(ax.frame)
