@@ -109,11 +109,10 @@ def new_window(qtbot, settings, path=DEFAULT_SAMPLE, vehicle=None, autosave=True
 def test_edit_open_and_close_during_a_heatmap_answer_at_once(window, qtbot):
     panel = window.ranking.heatmap
     doc = window.doc
-    name = doc.vehicle.spots[0].name
     files = ("cargo_van.json", "suv.json", "cargo_van.json")
 
-    def edit(k):
-        doc.apply(lambda v: edits.move_spot(v, name, (-1.0 - 0.05 * k, 0.1, 0.5)), "move")
+    def edit(k):  # a body edit (a zone's material, alternately): with auto on it restarts the heatmap
+        doc.apply(lambda v: edits.set_zone_material(v, 0, ("plastic", "glass")[k % 2]), "zone material")
 
     def open_file(k):
         window.open_path(SAMPLES_DIR / files[k], confirm=False)
@@ -122,7 +121,6 @@ def test_edit_open_and_close_during_a_heatmap_answer_at_once(window, qtbot):
     idle_edit = idle_gap(lambda k: edit(10 + k))
     idle_open = idle_gap(lambda k: open_file(1 - k))  # suv, then the van: ends on the van
     window.open_path(DEFAULT_SAMPLE, confirm=False)
-    name = doc.vehicle.spots[0].name
 
     panel.auto.setChecked(True)
     panel.step.setCurrentIndex(panel.step.findData(0.025))  # a fine grid: many chunks, several seconds
@@ -183,8 +181,7 @@ def test_an_edit_with_auto_on_restarts_without_a_cancelled_state(window, qtbot):
     panel.start()
     first = panel.job
     doc = window.doc
-    name = doc.vehicle.spots[0].name
-    doc.apply(lambda v: edits.move_spot(v, name, (-1.1, 0.05, 0.5)), "move")
+    doc.apply(lambda v: edits.set_zone_material(v, 0, "plastic"), "zone material")  # a body edit: the map changes
     qtbot.waitUntil(lambda: panel.job is not None and panel.job is not first, timeout=10_000)
     assert not panel.compute.isEnabled() and panel.cancel_button.isEnabled()
     with qtbot.waitSignal(panel.heatmapReady, timeout=120_000) as blocker:
