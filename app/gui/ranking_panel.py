@@ -451,6 +451,16 @@ class HeatmapPanel(QWidget):
         return name
 
 
+def _level_range(sc, i: int, legend_share: float = 0.3) -> tuple[float, float]:
+    """y range of the level plot, dBm: the spot's levels and the sensitivity with 5 dB below, and the top
+    ``legend_share`` of the plot's height (the wheel legend's, :meth:`SpotFigures._legend_share`) above the
+    highest curve, at least 12 dB."""
+    lo = min(float(sc.levels_dbm[i].min()), sc.sensitivity_dbm) - 5.0
+    top = max(float(sc.levels_dbm[i].max()), sc.sensitivity_dbm + sc.required_margin_db)
+    f = min(max(legend_share, 0.0), 0.6)
+    return lo, max(top + 12.0, (top - f * lo) / (1.0 - f))
+
+
 class SpotTable(QTableWidget):
     """The spots best first (``SpotScores.order()``); selecting a row selects the spot everywhere."""
 
@@ -626,6 +636,8 @@ class SpotFigures(QWidget):
         self.levels.getAxis("bottom").setTicks([[(a, str(a)) for a in range(0, 361, 90)]])
         self.levels_legend = self.levels.addLegend(offset=(-6, 6), labelTextSize="8pt", colCount=3,
                                                    brush=pg.mkBrush(255, 255, 255, 200))
+        self._range_of = None  # (scores, row) of the levels drawn: the y range is kept clear of the legend
+        self.levels.getPlotItem().vb.sigResized.connect(self._keep_legend_room)
         split.addWidget(self.levels)
         # the burst and separation figures share the lower half as tabs: each gets the column's full width,
         # so their two-line titles and axis labels fit at 1366 x 768
@@ -681,7 +693,7 @@ class SpotFigures(QWidget):
             p.clear()
         if i is None or self.doc.pending[i]:
             self.levels.clear()
-            self._levels_drawn = self._level_items = None
+            self._levels_drawn = self._level_items = self._range_of = None
         self._drop_burst()
         self.burst_result = None
         if i is None:
@@ -775,11 +787,23 @@ class SpotFigures(QWidget):
         p.addItem(pg.InfiniteLine(need, angle=0, pen=pg.mkPen(120, 120, 120, width=1, style=Qt.PenStyle.DotLine),
                                   label=f"+ required margin {sc.required_margin_db:.0f} dB",
                                   labelOpts={"position": 0.75, "color": (90, 90, 90)}))
-        lo = min(float(sc.levels_dbm[i].min()), sens) - 5
-        hi = max(float(sc.levels_dbm[i].max()), need) + 12
-        p.setYRange(lo, hi, padding=0)
+        self._range_of = (sc, i)
+        p.setYRange(*_level_range(sc, i, self._legend_share()), padding=0)
         p.setXRange(0, 360, padding=0)
         self._levels_title(sc, i, title)
+
+    def _keep_legend_room(self, *_args) -> None:
+        """The plot was resized: the legend's share of its height changed, so its y range is set again."""
+        if self._range_of is not None:
+            self.levels.setYRange(*_level_range(*self._range_of, self._legend_share()), padding=0)
+
+    def _legend_share(self) -> float:
+        """The share of the level plot's height taken by the wheel legend from the top (its box, its offset
+        and 6 px), or 0.3 before the plot has a size."""
+        h = self.levels.getPlotItem().vb.height()
+        if h <= 20:
+            return 0.3
+        return (self.levels_legend.boundingRect().height() + 12.0) / h
 
     def _move_levels(self, sc, title: str) -> bool:
         """The dragged spot's new levels (row 0 of ``sc``) into the curves already drawn (no new plot items:
@@ -794,9 +818,8 @@ class SpotFigures(QWidget):
         ww = int(sc.worst_wheel[0])
         worst.setData([sc.worst_angle_deg[0, ww]], [sc.worst_dbm[0, ww]])
         worst.setSymbolPen(pg.mkPen(wheel_colour(ww), width=2.5))
-        need = sc.sensitivity_dbm + sc.required_margin_db
-        self.levels.setYRange(min(float(sc.levels_dbm[0].min()), sc.sensitivity_dbm) - 5,
-                              max(float(sc.levels_dbm[0].max()), need) + 12, padding=0)
+        self._range_of = (sc, 0)
+        self.levels.setYRange(*_level_range(sc, 0, self._legend_share()), padding=0)
         self._levels_title(sc, 0, title)
         return True
 

@@ -87,3 +87,22 @@ def test_a_long_status_line_is_shortened_part_by_part_never_inside_a_value(qapp)
     assert kept[3] != parts[3] and parts[3].startswith(kept[3].rstrip("…").rstrip("."))
     tiny = elide_parts(line, m, 80)  # too narrow for the parts: the line's start, cut at its end
     assert m.horizontalAdvance(tiny) <= 80 and tiny.startswith("433")
+
+
+def test_the_wheel_legend_of_the_level_plot_covers_no_curve(window, qtbot):
+    """The level plot keeps room above its highest curve for the wheel legend (0.4 of the span, at least 15 dB):
+    no point of any wheel's curve lies under the legend box, for the spots of the sample at 1366 x 768."""
+    from PySide6.QtCore import QPointF
+
+    window.resize(1366, 768)
+    figs, doc = window.ranking.figures, window.doc
+    qtbot.waitUntil(lambda: figs._level_items is not None and not doc.pending.any(), timeout=60_000)
+    for name in doc.scores.names[:4]:
+        doc.select(name)
+        qtbot.waitUntil(lambda: "(moving)" not in figs.levels.getPlotItem().titleLabel.text, timeout=10_000)
+        qtbot.wait(50)
+        box = figs.levels_legend.sceneBoundingRect()
+        vb = figs.levels.getPlotItem().vb
+        for curve in figs._level_items[3]:
+            pts = [vb.mapViewToScene(QPointF(float(x), float(y))) for x, y in zip(curve.xData, curve.yData)]
+            assert not any(box.contains(p) for p in pts), name
