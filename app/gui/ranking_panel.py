@@ -797,13 +797,14 @@ class SpotFigures(QWidget):
         if self._range_of is not None:
             self.levels.setYRange(*_level_range(*self._range_of, self._legend_share()), padding=0)
 
-    def _legend_share(self) -> float:
-        """The share of the level plot's height taken by the wheel legend from the top (its box, its offset
-        and 6 px), or 0.3 before the plot has a size."""
-        h = self.levels.getPlotItem().vb.height()
+    def _legend_share(self, plot=None, legend=None) -> float:
+        """The share of a plot's height (the level plot's by default) its wheel legend takes from the edge it
+        sits at (its box, its offset and 6 px), or 0.3 before the plot has a size."""
+        plot, legend = plot or self.levels, legend or self.levels_legend
+        h = plot.getPlotItem().vb.height()
         if h <= 20:
             return 0.3
-        return (self.levels_legend.boundingRect().height() + 12.0) / h
+        return (legend.boundingRect().height() + 12.0) / h
 
     def _move_levels(self, sc, title: str) -> bool:
         """The dragged spot's new levels (row 0 of ``sc``) into the curves already drawn (no new plot items:
@@ -840,6 +841,7 @@ class SpotFigures(QWidget):
         data = r.margin_db if all_pass else 100 * r.success
         parked = r.parked_margin_db if all_pass else 100 * r.parked
         right = {g.id for g in self.doc.scene.wheels if g.outboard_sign < 0}
+        self.burst_legend.setColumnCount(max(1, min(len(r.wheel_ids), 6)))  # one row: less of the figure covered
         for w, wid in enumerate(r.wheel_ids):
             col = wheel_colour(w)
             # right-side wheels dashed: mirrored wheels give the same curve, both stay visible
@@ -861,7 +863,9 @@ class SpotFigures(QWidget):
         if all_pass:
             need = self.doc.scores.required_margin_db
             p.addItem(pg.InfiniteLine(need, angle=0, pen=pg.mkPen(60, 60, 60, width=1, style=Qt.PenStyle.DashLine)))
-            p.setYRange(min(0.0, float(data.min()), need) - 2, max(float(data.max()), need) + 4, padding=0)
+            lo, hi = min(0.0, float(data.min()), need) - 2, max(float(data.max()), need) + 4
+            f = min(0.5, self._legend_share(self.burst, self.burst_legend))  # room below for the wheel legend
+            p.setYRange(lo - f * (hi - lo) / (1.0 - f), hi, padding=0)
             p.setLabel("left", "burst margin", units="dB")
             p.setTitle(f"every burst gets through: lowest burst margin {float(data.min()):.0f} dB<br>dashed: "
                        f"required margin; squares: parked<br>{repeat}", size="8pt")
