@@ -35,7 +35,7 @@ BODIES = [("sedan", "l8_contents"), ("hatchback", "l8_contents"), ("suv", "l8_co
 
 
 #: the reference without cabin contents (both sides configured alike: the engine's contents absorption 0)
-EMPTY = [("sedan", "l8_empty"), ("hatchback", "l8_empty"), ("hatchback", "l10_empty")]
+EMPTY = [("sedan", "l8_empty"), ("hatchback", "l8_empty"), ("hatchback", "l10_empty"), ("suv", "l8_empty")]
 
 
 def _reference(body: str, config: str) -> dict:
@@ -81,19 +81,27 @@ def test_cabin_spot_ranking_agrees_with_the_full_wave_reference(body, config):
 
 
 @pytest.mark.parametrize("body, config", EMPTY)
-def test_without_contents_on_both_sides_the_ranking_agrees_better(body, config):
+def test_without_contents_on_both_sides_offset_and_rms_meet_the_targets(body, config):
     """The same comparison with the cabin empty on both sides (reference l8_empty / l10_empty, the engine's
-    contents absorption 0): offset and RMS within the issue's targets, and the ranking closer than with the
-    contents (measured rho 0.68 sedan, 0.68 / 0.79 hatchback at lambda/8 / lambda/10, against 0.49 / 0.43
-    with them). The lower bound 0.6 is a regression guard at the measured values, not a target."""
+    contents absorption 0): offset and RMS within the issue's targets (measured: offset -4.6 to +0.8 dB, RMS
+    1.3-1.9 dB)."""
     a = _agreement(body, config)
     assert abs(a["offset_db"]) <= 6.0 and a["rms_db"] <= 4.0, a
+
+
+@pytest.mark.parametrize("body, config", [c for c in EMPTY if c[0] != "suv"])
+def test_without_contents_the_sedan_and_hatchback_rank_closer(body, config):
+    """Without the contents the engine ranks the sedan's and hatchback's spots closer to the reference (measured
+    rho 0.68 sedan, 0.68 / 0.79 hatchback at lambda/8 / lambda/10, against 0.49 / 0.43 with them); the SUV does
+    not gain (0.18 against 0.16: its contents barely move the reference's order, rho 0.93 between empty and
+    occupied). The bound 0.6 is a regression guard at the measured values, not a target."""
+    a = _agreement(body, config)
     assert a["rho"] >= 0.6, a
     with_contents = _agreement(body, "l8_contents")
     assert a["rho"] > with_contents["rho"] + 0.15, (a, with_contents)
 
 
-@pytest.mark.xfail(strict=True, reason="known disagreement: rho 0.68-0.79 without contents against the 0.8 target")
+@pytest.mark.xfail(strict=True, reason="known disagreement: rho 0.18-0.79 without contents against the 0.8 target")
 @pytest.mark.parametrize("body, config", EMPTY)
 def test_without_contents_the_ranking_meets_the_target(body, config):
     assert _agreement(body, config)["rho"] >= 0.8
