@@ -192,6 +192,28 @@ class MainWindow(QMainWindow):
         doc.cleanChanged.connect(self._edited)
         install_defence_panel(self)  # the selected spot's link budget, tornado and P(pass) (app/gui/defence_panel.py)
         self.resize(1600, 1000)
+        self._watch_kernel_warm_up()
+
+    def _watch_kernel_warm_up(self) -> None:
+        """While core.kernels compiles in the background (first start of an installed copy), say so in the
+        status bar (the numpy path computes meanwhile); when it is ready, say that once."""
+        from core import kernels
+
+        if not kernels.warming():
+            return
+        self.statusBar().showMessage("Preparing the compiled link kernel (first start only); "
+                                     "computing on the numpy path meanwhile...")
+        self.kernel_timer = QTimer(self)
+        self.kernel_timer.setInterval(250)
+
+        def poll():
+            if kernels.warming():
+                return
+            self.kernel_timer.stop()
+            self.statusBar().showMessage(f"Link computations: {kernels.status()}", 8000)
+
+        self.kernel_timer.timeout.connect(poll)
+        self.kernel_timer.start()
 
     # ----- menus -----------------------------------------------------------------------
     def _build_menus(self) -> None:
