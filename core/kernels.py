@@ -23,9 +23,9 @@ compiles into the cache (so the compiler never holds this process's interpreter 
 thread then loads the kernels, and until that is finished :func:`available` is False and the numpy
 path runs, so no caller ever blocks on the compiler (:func:`status` says which).
 
-Threads: the parallel kernel (large calls) is serialised by a lock, because numba's portable thread
-pool ("workqueue" layer) must not be entered from two Python threads at once; the serial kernel
-(calls under ``PARALLEL_MIN_SEGMENTS``) takes no lock. Both release the GIL (``nogil=True``), so a
+Threads: the parallel kernel (large calls) is entered by one Python thread at a time, because numba's
+portable thread pool ("workqueue" layer) must not be entered from two at once; a call that finds it
+busy, and every call under ``PARALLEL_MIN_SEGMENTS``, runs the serial kernel on its own thread. Both release the GIL (``nogil=True``), so a
 front end's event loop keeps running and a thread pool of Python threads computes on every core.
 
 Results agree with the numpy path to round-off (tests/test_kernels.py checks 0.01 dB on random
@@ -601,7 +601,11 @@ def body_loss_db(hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bits0=None)
     args = (a, b, bits0, p.top_seg, p.side_seg, p.wh, p.arch, p.arch_bits, p.arch_mem_off, p.arch_mem, p.tz_pip,
             p.tz_off, p.tz_zmin, p.tz_zmax, p.tz_loss, p.sz_pip, p.sz_off, p.sz_loss, p.env, p.box, p.default_loss,
             p.wheelhouse_loss, lam, DIFFRACTION_SAMPLES, min(len(a), 16 * threads))
-    if threads > 1 and len(a) >= PARALLEL_MIN_SEGMENTS:
-        with _LOCK:
+    # the parallel kernel when its thread pool is free; a caller finding it busy (another Python thread,
+    # e.g. a pool of heatmap cells) computes on its own thread instead of waiting: the same results, bit for bit
+    if threads > 1 and len(a) >= PARALLEL_MIN_SEGMENTS and _LOCK.acquire(blocking=False):
+        try:
             return _body_loss_kernel(*args)
+        finally:
+            _LOCK.release()
     return _body_loss_serial(*args)
