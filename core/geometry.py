@@ -32,6 +32,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from core import kernels  # imports numba here, at start-up, not in the middle of a front end's event loop
 from core.propagation import knife_edge_loss_db, wavelength_m
 
 DIFFRACTION_SAMPLES = 8
@@ -679,6 +680,13 @@ def body_loss_terms(hull: Hull, a: np.ndarray, b: np.ndarray, freq_hz: float, bi
 
 
 def _body_loss(hull: Hull, a, b, freq_hz: float, bits0, detail: bool):
+    if not detail and kernels.available():  # the compiled kernel unless WHEELREACH_KERNEL=numpy or no numba
+        return kernels.body_loss_db(hull, a, b, freq_hz, bits0)
+    return _body_loss_numpy(hull, a, b, freq_hz, bits0, detail)
+
+
+def _body_loss_numpy(hull: Hull, a, b, freq_hz: float, bits0, detail: bool):
+    """The pure-numpy body loss: the reference the compiled kernel (core.kernels) is checked against."""
     a = np.asarray(a, float)
     b = np.asarray(b, float)
     f = hull_flips(hull, a, b, bits0)

@@ -28,6 +28,14 @@ def test_bench_quick_prints_the_summary_line_with_positive_figures(capsys):
                 "progressive heatmap: first coarse stage", "heatmap cells on a thread pool:",
                 "bare numpy crossing test of the heatmap's"):
         assert any(line.startswith(key) for line in lines), key
+    # the compiled kernel's figures (issue 17 item 4), or the line saying the numpy path ran
+    from core import kernels
+
+    keys = (("compiled kernel (numba", "single spot: numpy path", "body loss of the heatmap's", "kernel heatmap: 1 core",
+             "kernel heatmap on all cores =", "scalar reference (") if kernels.enabled()
+            else ("compiled kernel: not in use",))
+    for key in keys:
+        assert any(line.startswith(key) for line in lines), key
     # the desktop section (issue 14 item 4, issue 17 item 3): the real window offscreen, figures and limits
     text = "\n".join(lines)
     spot = float(re.search(r"^desktop engine single spot: (\S+) ms", text, re.MULTILINE).group(1))

@@ -6,6 +6,13 @@ In one process and one run, after a warm-up, it measures (medians of several rep
   finer grid of at least 2,400 spots if the region is smaller), all wheels, the file's angles per
   turn: seconds and links per second (a link = one spot, one wheel, one angle);
 - single spot (the drag update): ``score_spots`` of one spot, all wheels and angles: ms;
+- the heatmap's cells on a thread pool and a process pool (1 and all cores), and the bare numpy crossing
+  test of the same direct links (issue 17);
+- the compiled body-loss kernel (core.kernels, when numba is in use): the heatmap on the numpy path and
+  with the kernel on 1 thread, the single spot on both paths, the body loss of the heatmap's direct links
+  in one call on 1 and all threads; then the ratios of issue 17 (1 core and all cores, parallel speed-up,
+  against the bare crossing test and the scalar reference). The figures above them take the default path
+  (the kernel with all its threads when numba is installed);
 - the scalar reference (core.reference) on a random subset of the same links, its time scaled to
   the heatmap's link count: the speedup of the engine over it;
 - peak memory of the heatmap call and of a 10,000-spot grid: the tracemalloc peak of the call
@@ -238,8 +245,9 @@ def process_pool_seconds(scene, points: np.ndarray, workers: int, repeats: int) 
 
 
 def parallel_figures(scene, points: np.ndarray, heat_s: float, repeats: int, out=print) -> dict:
-    """Issue 17 item 4 without a compiled kernel: the heatmap's cells on 1 thread and on all cores (a
-    thread pool), and the bare numpy crossing test of the same direct links, from the same run."""
+    """Issue 17 item 4: the heatmap's cells on 1 thread and on all cores (a thread pool; each thread's body losses
+    take the compiled kernel when it is in use), a process pool, and the bare numpy crossing test of the same
+    direct links, from the same run."""
     from core.scoring import CHUNK_LINKS
 
     n_all = os.cpu_count() or 1
@@ -261,6 +269,94 @@ def parallel_figures(scene, points: np.ndarray, heat_s: float, repeats: int, out
         f"({n_cross} edge crossings, no zones, wheelhouses, passages or road ray): {bare_s:.3f} s (best of "
         f"{repeats}); heatmap = {heat_s / bare_s:.1f} x the bare test, on all cores {best / bare_s:.1f} x")
     return {"threads_1_s": one, "threads_all_s": every, "processes_s": procs, "bare_s": bare_s}
+
+
+class _kernel_path:
+    """Context: the engine on the given path ("numpy" or "numba") with n compiled-kernel threads (None: all)."""
+
+    def __init__(self, name: str, threads: int | None = None):
+        self.name, self.threads = name, threads
+
+    def __enter__(self):
+        from core import kernels
+
+        self.old = os.environ.get(kernels.ENV_VAR)
+        os.environ[kernels.ENV_VAR] = self.name
+        kernels.set_threads(self.threads)
+        return self
+
+    def __exit__(self, *exc):
+        from core import kernels
+
+        if self.old is None:
+            os.environ.pop(kernels.ENV_VAR, None)
+        else:
+            os.environ[kernels.ENV_VAR] = self.old
+        kernels.set_threads(None)
+        return False
+
+
+def kernel_figures(scene, region, step: float, points: np.ndarray, one: np.ndarray, repeats: int,
+                   out=print) -> dict:
+    """The compiled body-loss kernel against the numpy path (issue 17 item 4), from the same run: the heatmap
+    on the numpy path and with the kernel on 1 thread (medians), the single spot on both paths, and the
+    body loss of the heatmap's direct links in one kernel call on 1 thread and on all cores. (The heatmap on
+    all cores is the bench's main heatmap figure, which takes the kernel with all its threads.)"""
+    from core import kernels
+    from core.scoring import heatmap, score_spots
+
+    if not kernels.enabled():
+        out(f"compiled kernel: not in use ({kernels.status()}); every figure above is the numpy path's")
+        return {"kernel": "numpy"}
+    kernels.warm_up()
+    n_all = kernels.max_threads()
+    fig: dict = {"kernel": "numba", "threads": n_all}
+    spot_repeats = max(5, 3 * repeats)
+    with _kernel_path("numpy"):
+        heatmap(scene, region, step)
+        fig["heat_numpy_s"] = _median_time(lambda: heatmap(scene, region, step), repeats)[0]
+        fig["spot_numpy_ms"] = 1e3 * _median_time(lambda: score_spots(scene, one), spot_repeats)[0]
+    with _kernel_path("numba"):
+        fig["spot_kernel_ms"] = 1e3 * _median_time(lambda: score_spots(scene, one), spot_repeats)[0]
+    with _kernel_path("numba", 1):
+        heatmap(scene, region, step)
+        fig["heat_1t_s"] = _median_time(lambda: heatmap(scene, region, step), repeats)[0]
+    a, b = heatmap_segments(scene, points)
+    a = np.ascontiguousarray(a)
+    bits = np.ascontiguousarray(np.tile(scene.sensor_bits.reshape(-1), len(points)))
+    for th in (1, n_all):
+        with _kernel_path("numba", th):
+            kernels.body_loss_db(scene.hull, a, b, scene.freq_hz, bits)  # warm-up (thread pool start)
+            fig[f"direct_{th}t_s"] = _median_time(
+                lambda: kernels.body_loss_db(scene.hull, a, b, scene.freq_hz, bits), repeats)[0]
+    out(f"compiled kernel (numba {kernels.numba.__version__}, threading layer {kernels.threading_layer()}, "
+        f"{n_all} threads): heatmap on 1 thread {fig['heat_1t_s']:.3f} s (median of {repeats}); numpy path "
+        f"{fig['heat_numpy_s']:.3f} s: kernel on 1 thread x{fig['heat_numpy_s'] / fig['heat_1t_s']:.2f} faster")
+    out(f"single spot: numpy path {fig['spot_numpy_ms']:.2f} ms, kernel {fig['spot_kernel_ms']:.2f} ms (medians of "
+        f"{spot_repeats}) = {fig['spot_kernel_ms'] / fig['spot_numpy_ms']:.2f} x the numpy path (target 0.25 x)")
+    out(f"body loss of the heatmap's {len(a)} direct links in one kernel call: {fig['direct_1t_s']:.3f} s on 1 "
+        f"thread, {fig[f'direct_{n_all}t_s']:.3f} s on {n_all} (x{fig['direct_1t_s'] / fig[f'direct_{n_all}t_s']:.2f})")
+    return fig
+
+
+def kernel_summary(fig: dict, kfig: dict, par: dict, scaled_ref_s: float | None, out=print) -> None:
+    """The ratios of issue 17's targets from figures of this run: heatmap on 1 core and on all cores (the
+    faster of the kernel's own threads and the thread pool of cells), against the scalar reference, the bare
+    numpy crossing test and the numpy path."""
+    if kfig.get("kernel") != "numba":
+        return
+    one = kfig["heat_1t_s"]
+    own, pool = fig["heatmap_s"], par["threads_all_s"]
+    every, how = (own, "kernel threads") if own <= pool else (pool, "thread pool of cells")
+    n = kfig["threads"]
+    out(f"kernel heatmap: 1 core {one:.3f} s, all {n} cores {every:.3f} s ({how}; kernel threads {own:.3f} s, "
+        f"thread pool {pool:.3f} s): parallel speed-up x{one / every:.2f} (target 1.7 on 2 cores)")
+    out(f"kernel heatmap on all cores = {every / par['bare_s']:.2f} x the bare numpy crossing test of the same "
+        f"links ({par['bare_s']:.3f} s; target 1.0 x); numpy path {kfig['heat_numpy_s'] / par['bare_s']:.2f} x")
+    if scaled_ref_s is not None:
+        out(f"scalar reference ({scaled_ref_s:.1f} s for the heatmap's links) / heatmap: numpy path "
+            f"{scaled_ref_s / kfig['heat_numpy_s']:.0f}x, kernel on 1 core {scaled_ref_s / one:.0f}x, on all cores "
+            f"{scaled_ref_s / every:.0f}x (target 3000x)")
 
 
 DEFENCE_SPOTS = 10
@@ -344,13 +440,14 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
     spot_s, _, _ = _median_time(lambda: score_spots(scene, one), spot_repeats)
     out(f"single spot ({one[0, 0]:.2f}, {one[0, 1]:.2f}, {one[0, 2]:.2f}) m, {W} wheels x {A} angles: "
         f"{spot_s * 1e3:.2f} ms (median of {spot_repeats})")
-    parallel_figures(scene, pts, heat_s, max(1, min(3, repeats)), out)
+    par = parallel_figures(scene, pts, heat_s, max(1, min(3, repeats)), out)
+    kfig = kernel_figures(scene, region, step, pts, one, repeats, out)
 
     defence_s, n_def, d_links = defence_seconds(v, scene, hm, repeats)
     out(f"defence analysis of {n_def} spots (scores, budgets by term, tornado, {DEFAULT_DRAWS}-draw P(pass); "
         f"{d_links} links traced): {defence_s:.3f} s (median of {repeats}) = {defence_s / heat_s:.2f} x the heatmap")
 
-    speedup = None
+    speedup = scaled = None
     if with_reference:
         n_ref = 20 if quick else 1000
         per_link, degenerate = reference_seconds_per_link(v, scene, pts, n_ref)
@@ -361,6 +458,7 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
             f"scaled to {links} links: {scaled:.1f} s; speedup {speedup:.0f}x")
     else:
         out("scalar reference: not available for this wheel model (the reference models the knife-edge wheel)")
+    kernel_summary({"heatmap_s": heat_s}, kfig, par, scaled, out)
 
     peak = _peak_mib(run_main)
     out(f"peak memory of the heatmap call: {peak:.1f} MiB (tracemalloc peak, numpy buffers included)")
@@ -390,6 +488,7 @@ def bench_model(v, wheel_model: str | None, quick: bool, repeats: int, show_prog
         "peak_mib": peak,
         "peak_10k_mib": peak_mem,
         "growth": growth,
+        "kernel": kfig,
     }
 
 

@@ -53,8 +53,12 @@ def run_gui(file: str | None = None, screenshot: str | None = None) -> int:
     from app.gui import tasks
     from app.gui.document import Document
     from app.gui.window import MainWindow
+    from core import kernels
     from core.vehicle import load_vehicle
 
+    # compile (first start of this installed copy) or load the link kernel in the background; the numpy path
+    # serves the window until it is ready, so the window never waits for the compiler
+    kernels.start_warm_up()
     QCoreApplication.setOrganizationName("Wheelreach")
     QCoreApplication.setApplicationName("Wheelreach")
     app = QApplication.instance() or QApplication(sys.argv[:1])

@@ -192,6 +192,35 @@ class MainWindow(QMainWindow):
         doc.cleanChanged.connect(self._edited)
         install_defence_panel(self)  # the selected spot's link budget, tornado and P(pass) (app/gui/defence_panel.py)
         self.resize(1600, 1000)
+        self._watch_kernel_warm_up()
+
+    def _watch_kernel_warm_up(self) -> None:
+        """While core.kernels compiles in the background (first start of an installed copy), say so in the
+        status bar (a permanent note, so other messages do not hide it; the numpy path computes meanwhile);
+        when it is ready, remove the note and say so once."""
+        from PySide6.QtWidgets import QLabel
+
+        from core import kernels
+
+        if not kernels.warming():
+            return
+        self.kernel_note = QLabel("preparing the compiled link kernel (first start only)...")
+        self.kernel_note.setToolTip("The link kernel is compiled once for this installation, in the background; "
+                                    "until it is ready the numpy path computes the same results, more slowly.")
+        self.statusBar().insertPermanentWidget(0, self.kernel_note)
+        self.kernel_timer = QTimer(self)
+        self.kernel_timer.setInterval(250)
+
+        def poll():
+            if kernels.warming():
+                return
+            self.kernel_timer.stop()
+            self.statusBar().removeWidget(self.kernel_note)
+            self.kernel_note.deleteLater()
+            self.statusBar().showMessage(f"Link computations: {kernels.status()}", 8000)
+
+        self.kernel_timer.timeout.connect(poll)
+        self.kernel_timer.start()
 
     # ----- menus -----------------------------------------------------------------------
     def _build_menus(self) -> None:
