@@ -219,6 +219,12 @@ def _spots(v: Vehicle) -> list[dict]:
     return out
 
 
+def _body_loss_path() -> str:
+    from core import kernels
+
+    return kernels.status()
+
+
 def setup_record(v: Vehicle, scene, source: dict, command_line: list[str] | None = None,
                  overrides: dict | None = None, extra: dict | None = None) -> dict:
     """The setup record of an output (module notes), JSON-ready.
@@ -241,6 +247,8 @@ def setup_record(v: Vehicle, scene, source: dict, command_line: list[str] | None
         "data_tables": data_table_hashes(),
         "wheel_model": _wheel_model(v, scene),
         "score_method": scene.score_method,
+        # which code computed the body losses (core.kernels; both paths agree within 0.01 dB, tests/test_kernels.py)
+        "body_loss_path": _body_loss_path(),
         "radio": {**vehicle_to_dict(v)["radio"], "ground_reflection": bool(scene.ground_reflection)},
         "sensor_eirp": _sensor_eirp(v),
         "spots": _spots(v),

@@ -89,6 +89,9 @@ def test_setup_names_version_commit_hashes_method_eirp_and_axes(capsys):
         assert digest == hashlib.sha256((ROOT / name).read_bytes()).hexdigest()
     assert set(st["data_tables"]) == {"core/data/wheel_patterns.npz", "core/data/wheel_patterns.json"}
     assert st["score_method"] == scene.score_method  # always read from the Scene property
+    from core import kernels
+
+    assert st["body_loss_path"] == kernels.status()  # compiled kernel or numpy path, and why
     assert st["wheel_model"]["used"] == scene.wheel_model_label
     assert set(st["wheel_model"]["tables_per_wheel"]) == {w.id for w in v.wheels}
     assert st["wheel_model"]["table_set"]["solver"].startswith("NEC-2")
