@@ -558,7 +558,8 @@ def desktop_figures(path, repeats: int, out=print) -> dict | None:
             win.close()
             tasks.shutdown(30.0)
             app.processEvents()
-    step_ms, drop_ms, spot_ms = median_ms(steps), median_ms(drops), spot_s * 1e3
+    # rounded as printed, so each ratio printed is the ratio of the two figures printed beside it
+    step_ms, drop_ms, spot_ms = round(median_ms(steps), 2), round(median_ms(drops), 2), round(spot_s * 1e3, 2)
     out(f"desktop program: {doc.vehicle.name}, spot {name!r}, wheel model {doc.scene.wheel_model_label}, "
         f"window 1600 x 1000 ({app.platformName()} platform)")
     out(f"desktop engine single spot: {spot_ms:.2f} ms (median of {n_spot}, taken between the drags; the dragged "
