@@ -464,12 +464,15 @@ def _level_range(sc, i: int, legend_share: float = 0.3) -> tuple[float, float]:
 class SpotTable(QTableWidget):
     """The spots best first (``SpotScores.order()``); selecting a row selects the spot everywhere."""
 
-    COLUMNS = ("rank", "no.", "spot", "margin dB", "wheel", "at deg", "placement",
-               "full-wave dB", "receiver axis")
-    HEADER_TIPS: ClassVar[dict[int, str]] = {4: "the spot's worst wheel", 5: "the worst wheel's worst-case angle of its turn, degrees"}
+    COLUMNS = ("rank", "no.", "spot", "margin dB", "wheel", "at deg", "place",
+               "full-wave dB", "axis")
+    HEADER_TIPS: ClassVar[dict[int, str]] = {
+        4: "the spot's worst wheel", 5: "the worst wheel's worst-case angle of its turn, degrees",
+        6: "placement: ok inside the body; flagged near a panel, in a wheelhouse or outside the body",
+        8: "receiver antenna axis: the Receiver antenna setting, or the spot's own (x, y, z)"}
     PLACEMENT_COLUMN = 6
     FULLWAVE_COLUMN = 7  # shown only while a full-wave confirmation of this very vehicle exists
-    AXIS_COLUMN = 8  # "own (x, y, z)" where the spot's axis overrides the Receiver antenna setting
+    AXIS_COLUMN = 8  # "own" (its vector in the tooltip) where the spot's axis overrides the Receiver antenna setting
 
     def __init__(self, doc: Document, parent: QWidget | None = None):
         super().__init__(0, len(self.COLUMNS), parent)
@@ -483,10 +486,11 @@ class SpotTable(QTableWidget):
         self.setWordWrap(False)  # one line per spot: more rows fit a laptop screen (long names are elided)
         self.setToolTip("Receiver spots ranked by worst-case margin (worst wheel, worst angle); ties by the worst wheel's median")
         hh = self.horizontalHeader()
-        hh.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
+        # every column as wide as its header and cells, the names take the rest: at 1366 px the table
+        # fits its dock without scrolling sideways (a fixed width per column did not)
+        hh.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
         hh.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
-        for c, wpx in ((0, 44), (1, 36), (3, 78), (4, 52), (5, 52), (6, 96), (7, 96), (8, 110)):
-            self.setColumnWidth(c, wpx)
+        hh.setMinimumSectionSize(24)
         for c, tip in self.HEADER_TIPS.items():
             self.horizontalHeaderItem(c).setToolTip(tip)
         self.setColumnHidden(self.FULLWAVE_COLUMN, True)
@@ -511,7 +515,6 @@ class SpotTable(QTableWidget):
             pl = classify(self.doc.scene, sc.positions)
             check = check_sensor_eirp(self.doc.vehicle.radio)  # over the ceiling: show the margin there too
             self.horizontalHeaderItem(3).setText("margin dB (at ceiling)" if check.over_ceiling else "margin dB")
-            self.setColumnWidth(3, 150 if check.over_ceiling else 78)
             self.setRowCount(len(order))
             pending = self.doc.pending
             # the spots within the rank resolution of the best are not ranked apart (core.scoring)
@@ -554,7 +557,7 @@ class SpotTable(QTableWidget):
 
     def _set_axis(self, row: int, name: str) -> None:
         own = spot_axis_note(self.doc.vehicle, name)
-        item = QTableWidgetItem(own or "setting")
+        item = QTableWidgetItem("own" if own else "setting")  # the vector in the tooltip: the column stays narrow
         item.setToolTip(f"This spot's own receiver antenna axis {own[4:]} overrides the Receiver antenna setting"
                         if own else "This spot uses the Receiver antenna setting's axis")
         self.setItem(row, self.AXIS_COLUMN, item)
