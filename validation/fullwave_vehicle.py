@@ -3,11 +3,15 @@
     nice -n 10 python validation/fullwave_vehicle.py run hatchback:l8_contents sedan:l8_contents ...
     nice -n 10 python validation/fullwave_vehicle.py run small_box:l8_contents   # the tests' small body
     python validation/fullwave_vehicle.py summary      # statistics and convergence from the stored levels
+    nice -n 10 python validation/fullwave_vehicle.py refresh hatchback:l8_empty "platform rear floor"
 
 ``run`` solves each BODY:CONFIG (BODY a sample vehicle name, CONFIG one of CONFIGS) at the band
 centre and +-1, +-2 % (5 frequencies), appending one row per (spot, wheel, angle) to
 tests/data/fullwave_levels_<body>.csv and one line per solve to tests/data/fullwave_runs.csv; a
-(body, config, frequency) already stored is skipped, so an interrupted run resumes. ``summary``
+(body, config, frequency) already stored is skipped, so an interrupted run resumes, and a frequency
+that a configuration differing only in its frequency set has stored is copied, not solved again.
+``refresh`` solves the named spots again at every stored frequency of BODY:CONFIG and replaces their
+rows (after a spot's position changed: a landmark rule, a sample edit), printing how far they moved. ``summary``
 writes tests/data/fullwave_summary.csv: per body and configuration, the spot statistics (minimum,
 10th percentile and median over the turn of the frequency-averaged level, worst wheel) and, where
 two configurations of one body differ in one step (mesh, contents, frequency averaging), how that
@@ -17,6 +21,7 @@ step moves them (Spearman rho between spots, mean and max change). One solver pr
 from __future__ import annotations
 
 import csv
+import dataclasses
 import datetime as _dt
 import sys
 import time
@@ -41,6 +46,12 @@ CONFIGS = {
     "l8_empty": vr.ReferenceSetup(cells_per_wavelength=8.0, contents=None),
     "l10_contents": vr.ReferenceSetup(cells_per_wavelength=10.0, contents=ContentsSpec()),
     "l10_empty": vr.ReferenceSetup(cells_per_wavelength=10.0, contents=None),
+    # frequency averaging over a wider band: 13 frequencies over +-6 % (1 % apart) instead of 5 over +-2 %
+    "l8_empty_wide": vr.ReferenceSetup(cells_per_wavelength=8.0, contents=None, n_frequencies=13, span=0.06),
+    # the same 1 % steps over +-4 % (9 frequencies): the average whose ranking repeats (docs/VALIDATION.md)
+    "l8_empty_4pc": vr.ReferenceSetup(cells_per_wavelength=8.0, contents=None, n_frequencies=9, span=0.04),
+    "l8_contents_wide": vr.ReferenceSetup(cells_per_wavelength=8.0, contents=ContentsSpec(), n_frequencies=13,
+                                          span=0.06),
     # the wheels' own mesh: rims and belt at lambda/10 (first hatchback runs) instead of lambda/12 + lambda/20
     "l8_contents_w10": vr.ReferenceSetup(cells_per_wavelength=8.0, contents=ContentsSpec(),
                                          wheel_cells_per_wavelength=10.0, belt_cells_per_wavelength=10.0),
@@ -78,6 +89,41 @@ def _vehicle(body: str):
     return load_vehicle(SAMPLES_DIR / f"{body}.json")
 
 
+def _same_solution(a: vr.ReferenceSetup, b: vr.ReferenceSetup) -> bool:
+    """Two setups give the same solve at a shared frequency (they differ at most in the frequency set)."""
+    keep = {"n_frequencies": 1, "span": 0.0}
+    return dataclasses.replace(a, **keep) == dataclasses.replace(b, **keep)
+
+
+def _read_rows(body: str) -> list[dict]:
+    with levels_path(body).open(newline="") as fh:
+        return list(csv.DictReader(fh))
+
+
+def _write_rows(body: str, rows: list[dict]) -> None:
+    """Replace the level file in one step (a temporary file renamed over it)."""
+    path = levels_path(body)
+    tmp = path.with_suffix(".tmp")
+    with tmp.open("w", newline="") as fh:
+        w = csv.DictWriter(fh, fieldnames=list(vr.LEVEL_COLUMNS))
+        w.writeheader()
+        w.writerows(rows)
+    tmp.replace(path)
+
+
+def _copy_frequency(body: str, config: str, freq_mhz: float) -> str | None:
+    """Copy the rows of a configuration that solved the same setup at freq_mhz; its name, or None."""
+    donors = [c for c in CONFIGS if c != config and _same_solution(CONFIGS[c], CONFIGS[config])]
+    rows = _read_rows(body) if levels_path(body).exists() else []
+    for donor in donors:
+        got = [r for r in rows if r["config"] == donor and round(float(r["freq_mhz"]), 3) == round(freq_mhz, 3)]
+        if got:
+            with levels_path(body).open("a", newline="") as fh:
+                csv.DictWriter(fh, fieldnames=list(vr.LEVEL_COLUMNS)).writerows([r | {"config": config} for r in got])
+            return donor
+    return None
+
+
 def run(items: list[str]) -> None:
     for item in items:
         body, config = item.split(":")
@@ -86,6 +132,10 @@ def run(items: list[str]) -> None:
         done = _stored(body)
         for f in vr.band_frequencies(v.radio.frequency_hz, setup.n_frequencies, setup.span):
             if (config, round(f / 1e6, 3)) in done:
+                continue
+            donor = _copy_frequency(body, config, f / 1e6)
+            if donor is not None:
+                print(f"{body} {config} {f / 1e6:.3f} MHz: copied from {donor}", flush=True)
                 continue
             t0 = time.time()
             res = vr.solve_frequency(v, f, setup)
@@ -100,6 +150,37 @@ def run(items: list[str]) -> None:
                             f"{time.time() - t0:.1f}", _dt.date.today().isoformat(), setup.label()])
             print(f"{body} {config} {f / 1e6:.3f} MHz: {res['segments']} segments, {time.time() - t0:.0f} s",
                   flush=True)
+
+
+def refresh(item: str, spot_names: list[str]) -> None:
+    """Solve the named spots again at every stored frequency of BODY:CONFIG and replace their rows."""
+    from core.scoring import vehicle_spot_arrays
+
+    body, config = item.split(":")
+    v = _vehicle(body)
+    names, pos, axes = vehicle_spot_arrays(v)
+    idx = [names.index(s) for s in spot_names]
+    spots = ([names[i] for i in idx], pos[idx], axes[idx])
+    freqs = sorted({float(r["freq_mhz"]) for r in _read_rows(body) if r["config"] == config})
+    for fm in freqs:
+        t0 = time.time()
+        res = vr.solve_frequency(v, fm * 1e6, CONFIGS[config], spots=spots)
+        new = {}
+        for i, s in enumerate(res["names"]):
+            for j, wid in enumerate(res["wheel_ids"]):
+                for k, a in enumerate(res["angles_deg"]):
+                    new[(s, wid, f"{a:g}")] = f"{res['levels_dbm'][i, j, k]:.3f}"
+        rows, moved = _read_rows(body), []
+        for r in rows:
+            key = (r["spot"], r["wheel"], r["angle_deg"])
+            if r["config"] == config and round(float(r["freq_mhz"]), 3) == round(fm, 3) and key in new:
+                moved.append(abs(float(new[key]) - float(r["level_dbm"])))
+                r["level_dbm"] = new[key]
+        if len(moved) != len(new):
+            raise SystemExit(f"{body} {config} {fm} MHz: {len(moved)} stored rows for {len(new)} solved")
+        _write_rows(body, rows)
+        print(f"{body} {config} {fm:.3f} MHz: {len(moved)} rows replaced, moved median {np.median(moved):.2f} dB, "
+              f"max {max(moved):.2f} dB, {time.time() - t0:.0f} s", flush=True)
 
 
 def spot_statistics(entry: dict, freq_index=None) -> dict:
@@ -162,9 +243,11 @@ def summary() -> list[dict]:
 
 
 if __name__ == "__main__":
-    if len(sys.argv) < 2 or sys.argv[1] not in ("run", "summary"):
+    if len(sys.argv) < 2 or sys.argv[1] not in ("run", "summary", "refresh"):
         raise SystemExit(__doc__)
     if sys.argv[1] == "run":
         run(sys.argv[2:])
+    elif sys.argv[1] == "refresh":
+        refresh(sys.argv[2], sys.argv[3:])
     else:
         summary()
