@@ -191,6 +191,30 @@ def spot_statistics(entry: dict, freq_index=None) -> dict:
     return {k: st[k]["spot"] for k in STATS}
 
 
+def _band_rows(body: str, config: str, entry: dict) -> list[dict]:
+    """Rows for a configuration solved over more than +-2 %: how widening the average moves the spot
+    statistics (+-2 -> +-4 -> +-6 %), and the split-half agreement of each width (vr.frequency_halves)."""
+    rows, before = [], None
+    if len(entry["freq_mhz"]) <= 5:
+        return rows
+    for span in (0.02, 0.04, 0.06):
+        band = vr.within_band(entry, span)
+        if before is not None and len(band["freq_mhz"]) == len(before[1]["freq_mhz"]):
+            break
+        st = spot_statistics(band)
+        for k in STATS:
+            found = []
+            if before is not None:
+                found.append((f"frequency: +-{before[0]:.0%} -> +-{span:.0%} average", vr.agreement(before[2][k], st[k])))
+            halves = vr.frequency_halves(band["levels_dbm"], k)
+            found += [(f"frequency halves +-{span:.0%}: {split}", halves[split]) for split in ("interleaved", "low_high")]
+            rows += [{"body": body, "step": step, "config": config, "statistic": k, "rho": a["rho"],
+                      "mean_change_db": a["offset_db"], "rms_change_db": a["rms_db"], "max_change_db": a["max_db"],
+                      "spots": a["n"]} for step, a in found]
+        before = (span, band, st)
+    return rows
+
+
 def summary() -> list[dict]:
     rows = []
     for path in sorted(DATA.glob("fullwave_levels_*.csv")):
@@ -213,6 +237,7 @@ def summary() -> list[dict]:
                              "statistic": k, "rho": float(np.min(rhos)) if rhos else float("nan"),
                              "mean_change_db": float(np.mean(spread)), "rms_change_db": float("nan"),
                              "max_change_db": float(np.max(spread)), "spots": len(spread)})
+            rows += _band_rows(body, config, e)
         for (body, config), e in sorted(data.items()):
             if body == "small_box" or len(e["freq_mhz"]) < 5:
                 continue

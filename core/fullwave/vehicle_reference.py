@@ -71,10 +71,12 @@ __all__ = [
     "engine_levels",
     "free_space_scene",
     "frequency_average_db",
+    "frequency_halves",
     "load_reference_csv",
     "solve_frequency",
     "turn_statistics",
     "wheel_power_ratio",
+    "within_band",
 ]
 
 
@@ -240,6 +242,39 @@ def turn_statistics(levels_dbm, percentile: float = 10.0) -> dict:
     stats = {"min": lv.min(axis=-1), f"p{percentile:g}": np.percentile(lv, percentile, axis=-1),
              "median": np.median(lv, axis=-1)}
     return {k: {"wheel": v, "spot": v.min(axis=-1)} for k, v in stats.items()}
+
+
+def within_band(entry: dict, span: float) -> dict:
+    """A stored entry (:func:`load_reference_csv`) kept to the frequencies within centre x (1 +- span),
+    the centre being the entry's middle frequency (the band centre of a symmetric run)."""
+    f = np.asarray(entry["freq_mhz"], float)
+    centre = float(f[len(f) // 2])
+    keep = np.abs(f / centre - 1.0) <= span + 1e-6
+    return entry | {"freq_mhz": f[keep], "levels_dbm": np.asarray(entry["levels_dbm"])[keep]}
+
+
+def frequency_halves(levels_dbm, statistic: str = "median", percentile: float = 10.0) -> dict:
+    """How well a frequency-averaged spot statistic repeats: the statistic (worst wheel) of the power
+    average over one half of the frequencies against that over the other half, :func:`agreement` for
+    two splits of ``levels_dbm`` (F, S, W, A): ``"interleaved"`` (every other frequency, the first half
+    taking the odd one out: both halves span the band, so they agree once the band is sampled densely
+    enough) and ``"low_high"`` (the lower against the upper frequencies, the middle one left out when F
+    is odd: whether the band is narrow enough for one average to stand for all of it).
+
+    A split-half test of reproducibility, as for any averaged measurement; averaging over frequency stands
+    in for averaging over the states of a stirred cavity (frequency stirring of reverberation chambers,
+    IEC 61000-4-21).
+    """
+    lv = np.asarray(levels_dbm, float)
+    n = lv.shape[0]
+    key = statistic if statistic != "p10" else f"p{percentile:g}"
+
+    def stat(sel):
+        return turn_statistics(frequency_average_db(lv[sel]), percentile)[key]["spot"]
+
+    idx = np.arange(n)
+    return {"interleaved": agreement(stat(idx[0::2]), stat(idx[1::2])),
+            "low_high": agreement(stat(idx[: n // 2]), stat(idx[(n + 1) // 2:]))}
 
 
 def agreement(engine_db, reference_db) -> dict:
