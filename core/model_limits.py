@@ -36,8 +36,9 @@ def limits(scene: Scene) -> list[tuple[str, str]]:
         ("Ranking resolution",
          (f"Against a whole-vehicle full-wave (NEC-2) solution of three sample bodies the engine's cabin levels agree "
          f"to {lo:.1f}-{hi:.1f} dB RMS after one mean offset per body ({off_lo:+.1f} to {off_hi:+.1f} dB), but it "
-         f"does not reproduce the order of cabin spots whose levels lie close together. Spots within "
-         f"{RANK_RESOLUTION_DB:g} dB of each other are not ranked apart (docs/VALIDATION.md).")),
+         f"does not reproduce the order of cabin spots whose levels lie close together; nor is that order stable "
+         f"in the full-wave solution itself, which reorders those spots between frequencies a few per cent "
+         f"apart. Spots within {RANK_RESOLUTION_DB:g} dB of each other are not ranked apart (docs/VALIDATION.md).")),
         ("One cavity",
          ("The hull has no inner panels: engine bay, cabin, boot and bumpers are one cavity, so a spot in a bumper "
          "or the engine bay receives the cabin's diffuse field as if it were open to the cabin (likely optimistic "
