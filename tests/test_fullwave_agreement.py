@@ -219,3 +219,39 @@ def test_against_the_4_percent_average_the_ranking_meets_the_target(body, config
     """Spearman rho >= 0.8 against the +-4 % average: met on the hatchback (0.82) only; widening the average
     from +-2 % does not help consistently (sedan 0.68 -> 0.59, SUV 0.18 -> 0.47, hatchback 0.67 -> 0.82)."""
     assert _agreement(body, config, span=0.04)["rho"] >= 0.8
+
+
+def _pairs_across_halves(body: str, config: str) -> list[tuple[float, bool]]:
+    """Every pair of spots: (their gap in the +-4 % average, dB; whether the lower and the upper half of the
+    band both order them as the whole band does)."""
+    lv = _reference(body, config, 0.04)["levels_dbm"]
+    n = len(lv)
+
+    def medians(sel):
+        return turn_statistics(frequency_average_db(lv[sel]))["median"]["spot"]
+
+    whole, low, high = medians(slice(None)), medians(slice(0, n // 2)), medians(slice((n + 1) // 2, None))
+    out = []
+    for i in range(len(whole)):
+        for j in range(i + 1, len(whole)):
+            sign = np.sign(whole[i] - whole[j])
+            out.append((abs(whole[i] - whole[j]),
+                        bool(np.sign(low[i] - low[j]) == sign and np.sign(high[i] - high[j]) == sign)))
+    return out
+
+
+@pytest.mark.parametrize("body, config", [*WIDE, ("hatchback", "l8_contents_wide")])
+def test_spots_further_apart_than_the_rank_resolution_keep_their_order_across_the_band(body, config):
+    """Where the reference's own order of two spots is stable: pairs whose +-4 % averages lie more than
+    core.scoring.RANK_RESOLUTION_DB (4.5 dB) apart keep their order in both the lower and the upper half of the
+    band in 49 of 51 pairs (the other two, hatchback empty, 4.9 and 5.0 dB apart; docs/VALIDATION.md), while
+    closer pairs swap in 32-51 % of cases. Checked: at most two swapped pairs beyond the rule per body, none
+    beyond rule + 1 dB, and the pairs beyond the rule swap less often than the pairs within it."""
+    from core.scoring import RANK_RESOLUTION_DB
+
+    pairs = _pairs_across_halves(body, config)
+    far = [kept for gap, kept in pairs if gap > RANK_RESOLUTION_DB]
+    near = [kept for gap, kept in pairs if gap <= RANK_RESOLUTION_DB]
+    assert far.count(False) <= 2, pairs
+    assert all(gap <= RANK_RESOLUTION_DB + 1.0 for gap, kept in pairs if not kept), pairs
+    assert far.count(False) / len(far) < near.count(False) / len(near)
