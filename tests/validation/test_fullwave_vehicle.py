@@ -192,13 +192,20 @@ def _stored():
 
 
 def test_stored_levels_are_complete_and_mirror_symmetric():
+    """Every stored configuration holds exactly its setup's frequencies (validation/fullwave_vehicle.py CONFIGS:
+    5 over +-2 %, or the wider sets), finite levels, and the mirror symmetry of the symmetric samples."""
+    sys.path.insert(0, str(ROOT / "validation"))
+    import fullwave_vehicle as fv
+
     data = _stored()
     assert {b for b, _ in data} >= {"hatchback"}
     for (body, config), e in data.items():
         v = load_vehicle(SAMPLES / f"{body}.json") if (SAMPLES / f"{body}.json").exists() else None
         centre = (v.radio.frequency_hz if v else 315e6) / 1e6
         f = e["freq_mhz"]
-        assert len(f) == 5 and np.allclose(f, centre * (1 + np.linspace(-0.02, 0.02, 5)), atol=1e-3), (body, config)
+        setup = fv.CONFIGS[config]
+        expected = vr.band_frequencies(centre, setup.n_frequencies, setup.span)
+        assert len(f) == len(expected) and np.allclose(f, expected, atol=1e-3), (body, config)
         lv = e["levels_dbm"]
         assert np.isfinite(lv).all(), (body, config)
         if v is None:
