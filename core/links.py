@@ -38,6 +38,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from core import kernels
 from core.geometry import body_loss_db, body_loss_terms, start_bits
 from core.propagation import fresnel_reflection
 from core.wheel import WheelLossParts, sensor_axes, sensor_positions, wheel_loss_db, wheel_loss_parts
@@ -147,6 +148,10 @@ def fade_power(coherent: np.ndarray, diffuse, q: float) -> np.ndarray:
     total = coherent + diffuse
     if q <= 0.0 or np.all(np.asarray(diffuse) == 0.0):
         return total
+    if kernels.available():  # the compiled table interpolation (core.link_kernel), same arithmetic
+        from core import link_kernel
+
+        return link_kernel.fade_power(coherent, diffuse, q, _fade_table(float(q)))
     lk_grid, g, _rayleigh, z_q = _fade_table(float(q))
     d = np.broadcast_to(np.asarray(diffuse, total.dtype), np.shape(total))
     out = np.array(total, copy=True)
@@ -322,6 +327,18 @@ def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: n
     max(|c|, f) of the design; with the road ray it also bounds the two-ray nulls. The depth f is
     the radio setup's ``null_floor_db`` (engineering default -30 dB).
     """
+    if kernels.available():  # the compiled link field unless WHEELREACH_KERNEL=numpy or no numba
+        from core import link_kernel
+
+        return link_kernel.link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits,
+                                      diffuse_factor)
+    return link_field_numpy(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits, diffuse_factor)
+
+
+def link_field_numpy(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: np.ndarray,
+                     bits0: np.ndarray, dst: np.ndarray, r_axis: np.ndarray,
+                     spot_bits: np.ndarray | None = None, diffuse_factor: np.ndarray | None = None) -> LinkField:
+    """:func:`link_field` on the pure-numpy path: the reference core.link_kernel is checked against."""
     f = link_rays(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits).field()
     return with_cavity(scene, f, wheel_index, theta, dst, r_axis, diffuse_factor)
 

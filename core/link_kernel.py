@@ -1,0 +1,459 @@
+"""Compiled link field (numba): every term of core.links.link_field for N links in one parallel loop.
+
+The pure-numpy code of :mod:`core.links` (``link_rays`` then ``LinkRays.field`` and ``with_cavity``)
+is the reference; this module computes the same :class:`core.links.LinkField`, link by link:
+
+- the direct ray: direction and length (held at ``MIN_PATH_M``), the sensor's field toward it (short
+  dipole: the axis' part perpendicular to the ray; isotropic: unit field along the projected reference
+  axis), its coupling with the receiver (dipole: E . a_r; isotropic: |E|, matched), the body loss of
+  the path (core.kernels' compiled hull crossings) and the knife-edge wheel loss (as
+  core.wheel.wheel_loss_parts: rim flange knife edge, ITU-R P.526-15 eq. 26 and 31, and the tire exit);
+- the road ray (image method): road point, Fresnel coefficients of the road for TE and TM
+  (core.propagation.fresnel_reflection), the reflected field's coupling, the body loss of both legs
+  and the wheel loss of the sensor -> road leg, the phase lag k (d_r - d);
+- the coherent sum relative to the direct ray's phase and the null floor f^2 sum |g|^2;
+- the cabin's diffuse power: core.cavity.Cavity.input_at (periodic interpolation in dB over the
+  tabulated wheel angles) times the receiver's diffuse factor.
+
+With the installed wheel pattern (``sensor_kind == "table"``) the sensor field is looked up by
+core.wheel_patterns in numpy beforehand and handed to the kernel; everything else is compiled.
+:func:`fade_power` is the compiled form of core.links.fade_power (the Rician q-quantile table).
+
+Which path runs follows core.kernels (``WHEELREACH_KERNEL``, numba importable, warm-up finished).
+
+Compilation cache: numba keys a cached function by its own source file only, so after editing
+core/kernels.py (whose compiled helpers this module calls) touch this file or remove its cache
+files (``core/__pycache__/link_kernel*.nbi``/``.nbc``) so that they are rebuilt.
+
+References
+----------
+ITU-R P.526-15 sec. 4.1 (knife edge), ITU-R P.525 (free space), Rappaport, Wireless Communications
+sec. 4.5-4.6 (Fresnel reflection, two-ray model), Hill et al., IEEE Trans. EMC 36(3), 1994 (cavity
+power balance, through core.cavity), S. O. Rice (1944-45, Rician fading, through core.links).
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+
+import numpy as np
+
+from core import kernels
+
+_KIND = {"dipole": 0, "isotropic": 1, "table": 2}
+_LN10 = math.log(10.0)
+
+if kernels.numba is not None:
+    from numba import njit, prange
+
+    from core.kernels import _segments
+
+    @njit(cache=True, error_model="numpy", inline="always")
+    def _knife_db(v):
+        """ITU-R P.526-15 eq. 31 (core.propagation.knife_edge_loss_db), nan for nan."""
+        if math.isnan(v):
+            return np.nan
+        if v > -0.78:
+            x = max(v, -0.78) - 0.1
+            return 6.9 + 20.0 * math.log10(math.hypot(x, 1.0) + x)
+        return 0.0
+
+    @njit(cache=True, error_model="numpy")
+    def _wheel_loss(wp, sx0, sy0, sz0, ex0, ey0, ez0, lam, sidewall, tread):
+        """Knife-edge wheel loss, dB, of one path (core.wheel.wheel_loss_parts, same arithmetic).
+
+        wp: (cx, cy, cz, outboard sign, barrel radius, rim radius, tire radius, rim width, tire width)."""
+        cx, cy, cz, sgn = wp[0], wp[1], wp[2], wp[3]
+        barrel, rim_r, tire_r, rim_w, tire_w = wp[4], wp[5], wp[6], wp[7], wp[8]
+        sx, sz, sw = sx0 - cx, sz0 - cz, sgn * (sy0 - cy)
+        ex, ez, ew = ex0 - cx, ez0 - cz, sgn * (ey0 - cy)
+        dx, dz, dw = ex - sx, ez - sz, ew - sw
+        length = max(math.sqrt(dx * dx + dz * dz + dw * dw), 1e-9)
+        ux, uz, uw = dx / length, dz / length, dw / length
+        qa = ux * ux + uz * uz
+        qb = 2.0 * (sx * ux + sz * uz)
+        solvable = qa > 1e-12
+        two_qa = 2.0 * (qa if solvable else 1.0)
+        rho2 = sx * sx + sz * sz
+        qb2 = qb * qb
+        qa4 = 4.0 * qa
+        half_w = 0.5 * rim_w
+        # 1. into the rim barrel?
+        disc = qb2 - qa4 * (rho2 - barrel * barrel)
+        ok_b = disc > 0 and solvable
+        tb1 = (-qb - math.sqrt(disc if ok_b else 0.0)) / two_qa
+        wb = sw + tb1 * uw
+        enters = ok_b and tb1 > 1e-9 and tb1 < length and abs(wb) <= half_w
+        # 2. knife edge over the receiver-side flange
+        flange_w = half_w if uw >= 0.0 else -half_w
+        axial = abs(uw) > 1e-12
+        uw_safe = uw if axial else 1e-12
+        tf = (flange_w - sw) / uw_safe
+        crosses = axial and tf > 0.0 and tf < length
+        rho_f = math.hypot(sx + tf * ux, sz + tf * uz)
+        lit_edge = crosses and rho_f < tire_r
+        rim_db = 0.0
+        if enters or lit_edge:
+            d1 = tf if crosses else 1.0
+            d2 = length - tf if crosses else 1.0
+            use_axial = enters and not crosses
+            if use_axial:
+                h = half_w - abs(min(max(wb, -half_w), half_w))
+                d1 = max(tb1, 1e-6)
+                d2 = max(length - tb1, 1e-6)
+            else:
+                h = rim_r - rho_f
+                d1 = max(d1, 1e-6)
+                d2 = max(d2, 1e-6)
+            rim_db = _knife_db(h * math.sqrt(2.0 / lam * (1.0 / d1 + 1.0 / d2)))
+        # 3. the tire exit: tread (steel belt) or sidewall
+        disc = qb2 - qa4 * (rho2 - tire_r * tire_r)
+        ok_t = disc > 0 and solvable
+        tt2 = (-qb + math.sqrt(disc if ok_t else 0.0)) / two_qa
+        t_tread = tt2 if (ok_t and tt2 > 0) else np.inf
+        half_tw = 0.5 * tire_w
+        side_w = half_tw if uw >= 0.0 else -half_tw
+        t_side = (side_w - sw) / uw_safe if axial else np.inf
+        if not t_side > 0:
+            t_side = np.inf
+        through_tread = (not enters) and t_tread < t_side and t_tread < length
+        return rim_db + (tread if through_tread else sidewall)
+
+    @njit(cache=True, error_model="numpy", inline="always")
+    def _field_toward(kind, rx_dipole, s0, s1, s2, r0, r1, r2, u0, u1, u2):
+        """Real sensor field toward unit u (core.links.sensor_field, dipole or isotropic)."""
+        if kind == 0:
+            a0, a1, a2 = s0, s1, s2
+        elif rx_dipole:
+            a0, a1, a2 = r0, r1, r2
+        else:
+            a0, a1, a2 = s0, s1, s2
+        p = a0 * u0 + a1 * u1 + a2 * u2
+        e0, e1, e2 = a0 - p * u0, a1 - p * u1, a2 - p * u2
+        if kind == 1:
+            n = max(math.sqrt(e0 * e0 + e1 * e1 + e2 * e2), 1e-12)
+            e0, e1, e2 = e0 / n, e1 / n, e2 / n
+        return e0, e1, e2
+
+    @njit(cache=True, error_model="numpy")
+    def _chunk(lo, hi, src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels,
+               cav_db, opt, eps, hullt, n_samples, out, body_d, body_r1, body_r2, g_pt, ev_t, ev_b, ev_o, fl_t,
+               fl_l, fl_d):
+        """The link field of links [lo, hi) into out (4, N): re, im, floor2, diffuse."""
+        kind = int(opt[0])
+        rx_dipole = opt[1] != 0.0
+        road = opt[2] != 0.0
+        use_wheel = opt[3] != 0.0
+        sidewall, tread, lam, wavenumber, floor_ratio = opt[4], opt[5], opt[6], opt[7], opt[8]
+        has_cav = opt[9] != 0.0
+        min_path = opt[10]
+        top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, \
+            tz_loss, sz_pip, sz_off, sz_loss, env, box, default_loss, wheelhouse_loss = hullt
+        _segments(lo, hi, body_d, src, dst, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem,
+                  tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box, default_loss,
+                  wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d)
+        if road:
+            for i in range(lo, hi):
+                ix, iy, iz = src[i, 0], src[i, 1], -src[i, 2]
+                tg = src[i, 2] / max(src[i, 2] + dst[i, 2], 1e-9)
+                g_pt[i, 0] = ix + tg * (dst[i, 0] - ix)
+                g_pt[i, 1] = iy + tg * (dst[i, 1] - iy)
+                g_pt[i, 2] = 0.0
+            _segments(lo, hi, body_r1, src, g_pt, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
+                      arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
+                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d)
+            _segments(lo, hi, body_r2, dst, g_pt, spot_bits, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
+                      arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
+                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d)
+        n_cav = cav_db.shape[1]
+        for i in range(lo, hi):
+            w = wheel[i]
+            sx, sy, sz = src[i, 0], src[i, 1], src[i, 2]
+            rx, ry, rz = dst[i, 0], dst[i, 1], dst[i, 2]
+            s0, s1, s2 = s_axis[i, 0], s_axis[i, 1], s_axis[i, 2]
+            a0, a1, a2 = r_axis[i, 0], r_axis[i, 1], r_axis[i, 2]
+            # direct ray
+            v0, v1, v2 = rx - sx, ry - sy, rz - sz
+            n = math.sqrt(v0 * v0 + v1 * v1 + v2 * v2)
+            nn = max(n, 1e-12)
+            u0, u1, u2 = v0 / nn, v1 / nn, v2 / nn
+            d = max(n, min_path)
+            if kind == 2:
+                e0, e1, e2 = e_dir[i, 0], e_dir[i, 1], e_dir[i, 2]
+            else:
+                f0, f1, f2 = _field_toward(kind, rx_dipole, s0, s1, s2, a0, a1, a2, u0, u1, u2)
+                e0, e1, e2 = complex(f0), complex(f1), complex(f2)
+            if rx_dipole:
+                c_d = e0 * a0 + e1 * a1 + e2 * a2
+                p0 = p1 = p2 = 0j
+            else:
+                nd = math.sqrt(abs(e0) ** 2 + abs(e1) ** 2 + abs(e2) ** 2)
+                ndd = max(nd, 1e-12)
+                p0, p1, p2 = e0 / ndd, e1 / ndd, e2 / ndd  # the direct ray's polarization
+                c_d = complex(nd)
+            loss = body_d[i]
+            if use_wheel:
+                loss += _wheel_loss(wheels[w], sx, sy, sz, rx, ry, rz, lam, sidewall, tread)
+            g = 10.0 ** (-loss / 20.0) / d
+            f_re = c_d.real * g
+            f_im = c_d.imag * g
+            fl2 = g * g
+            if road:
+                w0, w1, w2 = rx - sx, ry - sy, rz + sz  # receiver - image of the sensor
+                nr = math.sqrt(w0 * w0 + w1 * w1 + w2 * w2)
+                nrr = max(nr, 1e-12)
+                ur0, ur1, ur2 = w0 / nrr, w1 / nrr, w2 / nrr
+                d_r = max(nr, min_path)
+                ui0, ui1, ui2 = ur0, ur1, -ur2
+                if kind == 2:
+                    q0, q1, q2 = e_road[i, 0], e_road[i, 1], e_road[i, 2]
+                else:
+                    h0, h1, h2 = _field_toward(kind, rx_dipole, s0, s1, s2, a0, a1, a2, ui0, ui1, ui2)
+                    q0, q1, q2 = complex(h0), complex(h1), complex(h2)
+                # TE unit vector Z x u_i (y axis for a vertical ray), TM vector n_te x u_i
+                m0, m1 = -ui1, ui0
+                ml = math.sqrt(m0 * m0 + m1 * m1)
+                if ml < 1e-9:
+                    n0, n1, n2 = 0.0, 1.0, 0.0
+                else:
+                    mll = max(ml, 1e-12)
+                    n0, n1, n2 = m0 / mll, m1 / mll, 0.0
+                t0 = n1 * ui2 - n2 * ui1
+                t1 = n2 * ui0 - n0 * ui2
+                t2 = n0 * ui1 - n1 * ui0
+                psi = math.asin(min(max(ur2, 0.0), 1.0))
+                sin_psi = math.sin(psi)
+                cos_psi = math.cos(psi)
+                q = cmath.sqrt(eps - cos_psi * cos_psi)
+                g_perp = (sin_psi - q) / (sin_psi + q)
+                g_par = (eps * sin_psi - q) / (eps * sin_psi + q)
+                e_te = q0 * n0 + q1 * n1 + q2 * n2
+                e_tm = q0 * t0 + q1 * t1 + q2 * t2
+                a_te = g_perp * e_te
+                a_tm = g_par * e_tm
+                er0 = a_te * n0 - a_tm * t0
+                er1 = a_te * n1 - a_tm * t1
+                er2 = a_te * n2 + a_tm * t2  # t_tm = t_i mirrored in z
+                if rx_dipole:
+                    c_r = er0 * a0 + er1 * a1 + er2 * a2
+                else:
+                    c_r = er0 * p0.conjugate() + er1 * p1.conjugate() + er2 * p2.conjugate()
+                loss_r = body_r1[i] + body_r2[i]
+                if use_wheel:
+                    loss_r += _wheel_loss(wheels[w], sx, sy, sz, g_pt[i, 0], g_pt[i, 1], g_pt[i, 2], lam, sidewall,
+                                          tread)
+                g_r = 10.0 ** (-loss_r / 20.0) / d_r
+                b = c_r * g_r
+                ph = wavenumber * (d_r - d)
+                cs, sn = math.cos(ph), math.sin(ph)
+                f_re = f_re + (b.real * cs + b.imag * sn)
+                f_im = f_im + (b.imag * cs - b.real * sn)
+                fl2 = fl2 + g_r * g_r
+            out[0, i] = f_re
+            out[1, i] = f_im
+            out[2, i] = floor_ratio * fl2
+            if has_cav:
+                two_pi = 2.0 * np.pi
+                th = theta[i] % two_pi
+                fr = th / two_pi * n_cav
+                fl = math.floor(fr)
+                i0 = int(fl) % n_cav
+                t = fr - fl
+                i1 = (i0 + 1) % n_cav
+                out[3, i] = 10.0 ** ((cav_db[w, i0] * (1.0 - t) + cav_db[w, i1] * t) / 10.0) * dfac[i]
+            else:
+                out[3, i] = 0.0
+
+    @njit(cache=True, error_model="numpy", nogil=True)
+    def _links_serial(src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels, cav_db,
+                      opt, eps, hullt, n_samples, n_chunks):
+        """:func:`_links_parallel` on the calling thread (small calls: no thread-pool launch)."""
+        n = src.shape[0]
+        out = np.zeros((4, n))
+        body_d = np.zeros(n)
+        body_r1 = np.zeros(n)
+        body_r2 = np.zeros(n)
+        g_pt = np.zeros((n, 3))
+        cap = hullt[0].shape[0] + hullt[1].shape[0] + 4 * hullt[3].shape[0] + hullt[2].shape[0] + 1
+        _chunk(0, n, src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels, cav_db,
+               opt, eps, hullt, n_samples, out, body_d, body_r1, body_r2, g_pt, np.empty(cap),
+               np.empty(cap, np.int64), np.empty(cap, np.int64), np.empty(cap), np.empty(cap), np.empty(cap, np.int8))
+        return out
+
+    @njit(cache=True, error_model="numpy", nogil=True, parallel=True)
+    def _links_parallel(src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels,
+                        cav_db, opt, eps, hullt, n_samples, n_chunks):
+        """The link field (4, N) of N links: re, im, floor2, diffuse; chunks of links in parallel."""
+        n = src.shape[0]
+        out = np.zeros((4, n))
+        body_d = np.zeros(n)
+        body_r1 = np.zeros(n)
+        body_r2 = np.zeros(n)
+        g_pt = np.zeros((n, 3))
+        cap = hullt[0].shape[0] + hullt[1].shape[0] + 4 * hullt[3].shape[0] + hullt[2].shape[0] + 1
+        for c in prange(n_chunks):
+            lo = c * n // n_chunks
+            hi = (c + 1) * n // n_chunks
+            _chunk(lo, hi, src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels,
+                   cav_db, opt, eps, hullt, n_samples, out, body_d, body_r1, body_r2, g_pt, np.empty(cap),
+                   np.empty(cap, np.int64), np.empty(cap, np.int64), np.empty(cap), np.empty(cap),
+                   np.empty(cap, np.int8))
+        return out
+
+    @njit(cache=True, error_model="numpy", nogil=True)
+    def _fade_kernel(coh, dif, lk_lo, lk_hi, g, z_q):
+        """core.links.fade_power elementwise on flat arrays (the table interpolation, same arithmetic)."""
+        n_tab = g.shape[0] - 1
+        scale = n_tab / (lk_hi - lk_lo)
+        out = np.empty(coh.shape[0])
+        r2 = math.sqrt(2.0)
+        for i in range(coh.shape[0]):
+            c = coh[i]
+            d = dif[i]
+            tot = c + d
+            if not d > 0.0:
+                out[i] = tot
+                continue
+            lk = np.log10(c / d)
+            x = (min(max(lk, lk_lo), lk_hi) - lk_lo) * scale
+            j = min(int(x), n_tab - 1)
+            f = x - j
+            gk = math.exp((g[j] * (1.0 - f) + g[j + 1] * f) * _LN10)
+            if lk > lk_hi:
+                kk = 10.0 ** min(lk, 300.0)
+                gk = (math.sqrt(kk) + z_q / r2) ** 2 / (kk + 1.0)
+            out[i] = tot * gk
+        return out
+
+
+def _hull_tuple(hull) -> tuple:
+    p = kernels.packed(hull)
+    return (p.top_seg, p.side_seg, p.wh, p.arch, p.arch_bits, p.arch_mem_off, p.arch_mem, p.tz_pip, p.tz_off,
+            p.tz_zmin, p.tz_zmax, p.tz_loss, p.sz_pip, p.sz_off, p.sz_loss, p.env, p.box, p.default_loss,
+            p.wheelhouse_loss)
+
+
+_WHEELS: dict[int, tuple] = {}
+
+
+def _wheel_table(scene) -> np.ndarray:
+    """(W, 9) wheel parameters of the scene for :func:`_wheel_loss`, cached by scene identity."""
+    hit = _WHEELS.get(id(scene))
+    if hit is not None and hit[0] is scene:
+        return hit[1]
+    tab = np.array([[*w.centre, w.outboard_sign, w.barrel_radius_m, w.rim_radius_m, w.tire_radius_m, w.rim_width_m,
+                     w.tire_width_m] for w in scene.wheels], float).reshape(-1, 9)
+    if len(_WHEELS) > 32:
+        _WHEELS.clear()
+    _WHEELS[id(scene)] = (scene, tab, _cavity_db(scene))
+    return tab
+
+
+def _cavity_db(scene) -> np.ndarray:
+    cav = getattr(scene, "cavity", None)
+    if cav is None:
+        return np.zeros((1, 1))
+    return np.ascontiguousarray(10.0 * np.log10(np.maximum(np.asarray(cav.input, float), 1e-300)))
+
+
+def _flat(x, shape, dtype=float) -> np.ndarray:
+    a = np.ascontiguousarray(np.broadcast_to(np.asarray(x, dtype), shape))
+    return a if a.flags.writeable else a.copy()
+
+
+def link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits=None, diffuse_factor=None):
+    """core.links.link_field (same arguments, same :class:`core.links.LinkField`) by the compiled kernel."""
+    from core.geometry import DIFFRACTION_SAMPLES
+    from core.links import MIN_PATH_M, LinkField, _sensor_fields, _unit, _wheel_groups
+
+    src = np.asarray(src, float).reshape(-1, 3)
+    n = len(src)
+    theta = _flat(np.asarray(theta, float).reshape(-1), (n,))
+    src = _flat(src, (n, 3))
+    s_axis = _flat(np.asarray(s_axis, float).reshape(-1, 3), (n, 3))
+    dst = _flat(np.asarray(dst, float).reshape(-1, 3), (n, 3))
+    r_axis = _flat(np.asarray(r_axis, float).reshape(-1, 3), (n, 3))
+    bits0 = _flat(np.asarray(bits0, np.int64).reshape(-1), (n,), np.int64)
+    wheel = _flat(np.asarray(wheel_index, np.int64).reshape(-1), (n,), np.int64)
+    road = bool(scene.ground_reflection)
+    if road and spot_bits is None:
+        spot_bits = kernels.start_bits(scene.hull, dst)
+    spot_bits = _flat(np.asarray(0 if spot_bits is None else spot_bits, np.int64).reshape(-1), (n,), np.int64)
+    has_cav = getattr(scene, "cavity", None) is not None
+    if has_cav and diffuse_factor is None:
+        from core.cavity import spot_factor
+
+        diffuse_factor = spot_factor(scene, dst, r_axis)
+    dfac = _flat(np.asarray(0.0 if diffuse_factor is None else diffuse_factor, float).reshape(-1), (n,))
+    kind = _KIND[scene.sensor_kind]
+    e_dir = e_road = np.zeros((1, 3), complex)
+    if kind == 2 and n:
+        groups = _wheel_groups(wheel_index, n)
+        u, d = _unit(dst - src)
+        e_dir = np.ascontiguousarray(_sensor_fields(scene, groups, theta, s_axis, u, r_axis, np.maximum(d, MIN_PATH_M)),
+                                     complex)
+        if road:
+            u_r, d_r = _unit(dst - src * np.array([1.0, 1.0, -1.0]))
+            e_road = np.ascontiguousarray(_sensor_fields(scene, groups, theta, s_axis, u_r * np.array([1.0, 1.0, -1.0]),
+                                                         r_axis, np.maximum(d_r, MIN_PATH_M)), complex)
+    wheels = _wheel_table(scene)
+    cav_db = _WHEELS[id(scene)][2]
+    opt = np.array([kind, scene.receiver_pattern == "dipole", road, bool(scene.use_wheel_loss), scene.sidewall_loss_db,
+                    scene.tread_loss_db, scene.wavelength_m, scene.wavenumber, 10.0 ** (scene.null_floor_db / 10.0),
+                    has_cav, MIN_PATH_M], float)
+    if n == 0:
+        out = np.zeros((4, 0))
+    else:
+        kernels.warm_up()
+        threads = kernels.numba.get_num_threads()
+        args = (src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels, cav_db, opt,
+                complex(scene.road_eps), _hull_tuple(scene.hull), DIFFRACTION_SAMPLES, min(n, 16 * threads))
+        out = None
+        if threads > 1 and n >= kernels.PARALLEL_MIN_SEGMENTS and kernels._LOCK.acquire(blocking=False):
+            try:
+                out = _links_parallel(*args)
+            finally:
+                kernels._LOCK.release()
+        if out is None:
+            out = _links_serial(*args)
+    fade_q = getattr(scene, "fade_probability", 0.0)
+    if not has_cav:
+        return LinkField(out[0], out[1], out[2], 0.0, fade_q)
+    return LinkField(out[0], out[1], out[2], out[3], fade_q)
+
+
+def fade_power(coherent: np.ndarray, diffuse, q: float, table) -> np.ndarray:
+    """core.links.fade_power (q > 0, some diffuse power) by the compiled kernel; ``table`` is
+    core.links._fade_table(q)."""
+    lk_grid, g, _rayleigh, z_q = table
+    shape = np.broadcast_shapes(np.shape(coherent), np.shape(diffuse))
+    c = np.ascontiguousarray(np.broadcast_to(np.asarray(coherent, float), shape)).reshape(-1)
+    d = np.ascontiguousarray(np.broadcast_to(np.asarray(diffuse, float), shape)).reshape(-1)
+    c = c if c.flags.writeable else c.copy()
+    d = d if d.flags.writeable else d.copy()
+    return _fade_kernel(c, d, float(lk_grid[0]), float(lk_grid[-1]), np.ascontiguousarray(g), float(z_q)).reshape(shape)
+
+
+def warm_up() -> None:
+    """Compile (or load from the cache) this module's kernels with the engine's argument types."""
+    if kernels.numba is None:
+        return
+    z3 = np.zeros((1, 3))
+    i1 = np.zeros(1, np.int64)
+    hullt = (np.zeros((0, 4)), np.zeros((0, 4)), np.zeros((0, 5)), np.zeros((0, 3)), np.zeros(0, np.int64),
+             np.zeros(1, np.int64), np.zeros(0, np.int64), np.zeros((0, 5)), np.zeros(1, np.int64), np.zeros(0),
+             np.zeros(0), np.zeros(0), np.zeros((0, 5)), np.zeros(1, np.int64), np.zeros(0),
+             np.zeros((5, 2)), np.array([[0.0, 0.0, 0.0], [1.0, 1.0, 1.0]]), 1.0, 1.0)
+    opt = np.zeros(11)
+    opt[6] = opt[7] = opt[8] = 1.0
+    args = (z3.copy(), z3.copy(), z3 + 1.0, z3.copy(), i1.copy(), i1.copy(), i1.copy(), np.zeros(1), np.zeros(1),
+            np.zeros((1, 3), complex), np.zeros((1, 3), complex), np.zeros((1, 9)), np.zeros((1, 1)), opt, 1 + 0j,
+            hullt, 8, 1)
+    _links_serial(*args)
+    with kernels._LOCK:
+        _links_parallel(*args)
+    _fade_kernel(np.ones(1), np.ones(1), -6.0, 4.0, np.zeros(3), 0.0)
+
+
+__all__ = ["fade_power", "link_field", "warm_up"]
