@@ -488,6 +488,37 @@ def turn_field(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
                      if np.ndim(f.diffuse) else f.diffuse, f.fade_q)
 
 
+def turn_fields(scene, spots: np.ndarray, axes: np.ndarray, spot_bits: np.ndarray | None = None,
+                spot_diffuse: np.ndarray | None = None) -> LinkField:
+    """:func:`turn_field` of every wheel in one call of :func:`link_field` (per-link wheel index): arrays
+    (S, W, A). The same link-by-link arithmetic, fewer and larger calls (the compiled kernel runs one
+    parallel loop over them)."""
+    S, W, A = len(spots), len(scene.wheels), len(scene.angles_rad)
+    shape = (S, W, A)
+    src = np.broadcast_to(scene.sensor_pos[None], (S, W, A, 3)).reshape(-1, 3)
+    s_axis = np.broadcast_to(scene.sensor_axis[None], (S, W, A, 3)).reshape(-1, 3)
+    dst = np.broadcast_to(spots[:, None, None, :], (S, W, A, 3)).reshape(-1, 3)
+    r_axis = np.broadcast_to(axes[:, None, None, :], (S, W, A, 3)).reshape(-1, 3)
+    theta = np.broadcast_to(scene.angles_rad[None, None, :], shape).reshape(-1)
+    wheel = np.broadcast_to(np.arange(W)[None, :, None], shape).reshape(-1)
+    bits0 = np.broadcast_to(scene.sensor_bits[None], shape).reshape(-1)
+    bits_p = None
+    if scene.ground_reflection:
+        if spot_bits is None:
+            spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2])
+        bits_p = np.broadcast_to(spot_bits[:, None, None], shape).reshape(-1)
+    dif = None
+    if getattr(scene, "cavity", None) is not None:
+        if spot_diffuse is None:
+            from core.cavity import spot_factor
+
+            spot_diffuse = spot_factor(scene, spots, axes)
+        dif = np.broadcast_to(spot_diffuse[:, None, None], shape).reshape(-1)
+    f = link_field(scene, wheel, theta, src, s_axis, bits0, dst, r_axis, bits_p, dif)
+    return LinkField(f.re.reshape(shape), f.im.reshape(shape), f.floor2.reshape(shape),
+                     np.reshape(f.diffuse, shape) if np.ndim(f.diffuse) else f.diffuse, f.fade_q)
+
+
 def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
                           spot_bits: np.ndarray | None = None) -> np.ndarray:
     """Received level, dBm, for spots (S, 3) with receiver axes (S, 3) from one wheel: (S, A)."""
