@@ -385,22 +385,38 @@ if numba is not None:
                     m += 1
         return m
 
+    @njit(cache=True, error_model="numpy", inline="always")
+    def _row(i, m, off):
+        """Row of an input array for segment i: i - off (m = 0), i % m (m > 0) or i // -m (m < 0)."""
+        if m > 0:
+            return i % m
+        if m < 0:
+            return i // -m
+        return i - off
+
     @njit(cache=True, error_model="numpy")
     def _segments(i_lo, i_hi, out, a, b, bits0_arr, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
                   arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
-                  default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d):
-        """Body loss of the segments a[i] -> b[i], i in [i_lo, i_hi), into out (one chunk of the parallel loop)."""
+                  default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d,
+                  a_m=0, b_m=0, b_off=0, out_off=0):
+        """Body loss of the segments a -> b, i in [i_lo, i_hi), into out[i - out_off] (one chunk of the parallel
+        loop). Segment i runs from a[_row(i, a_m, 0)] (start bits from the same row of bits0_arr) to
+        b[_row(i, b_m, b_off)]: so the link kernel (core.link_kernel) pairs sensor states with receivers without
+        a copy of them per link."""
         n_wh = wh.shape[0]
         for i in range(i_lo, i_hi):
-            ax, ay, az = a[i, 0], a[i, 1], a[i, 2]
-            bx, by, bz = b[i, 0], b[i, 1], b[i, 2]
-            bits0 = bits0_arr[i]
+            ia = _row(i, a_m, 0)
+            ib = _row(i, b_m, b_off)
+            io = i - out_off
+            ax, ay, az = a[ia, 0], a[ia, 1], a[ia, 2]
+            bx, by, bz = b[ib, 0], b[ib, 1], b[ib, 2]
+            bits0 = bits0_arr[ia]
             lo_x, hi_x = min(ax, bx), max(ax, bx)
             lo_y, hi_y = min(ay, by), max(ay, by)
             lo_z, hi_z = min(az, bz), max(az, bz)
             if hi_x < box[0, 0] or lo_x > box[1, 0] or hi_y < box[0, 1] or lo_y > box[1, 1] \
                     or hi_z < box[0, 2] or lo_z > box[1, 2]:
-                out[i] = 0.0
+                out[io] = 0.0
                 continue
             dx = bx - ax
             dy = by - ay
@@ -453,7 +469,7 @@ if numba is not None:
                             ev_b[m] = np.int64(1) << (3 + 2 * h)
                             m += 1
             if m == 0:
-                out[i] = 0.0
+                out[io] = 0.0
                 continue
             # stable insertion sort of the events along the segment
             for e in range(m):
@@ -535,7 +551,7 @@ if numba is not None:
                 else:
                     total += fl_l[e]
                     e += 1
-            out[i] = total
+            out[io] = total
 
     @njit(cache=True, error_model="numpy", nogil=True)
     def _body_loss_serial(a, b, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem, tz_pip,

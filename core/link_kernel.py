@@ -59,7 +59,7 @@ if kernels.numba is not None:
             return 6.9 + 20.0 * math.log10(math.hypot(x, 1.0) + x)
         return 0.0
 
-    @njit(cache=True, error_model="numpy")
+    @njit(cache=True, error_model="numpy", inline="always")
     def _wheel_loss(wp, sx0, sy0, sz0, ex0, ey0, ez0, lam, sidewall, tread):
         """Knife-edge wheel loss, dB, of one path (core.wheel.wheel_loss_parts, same arithmetic).
 
@@ -137,10 +137,15 @@ if kernels.numba is not None:
         return e0, e1, e2
 
     @njit(cache=True, error_model="numpy")
-    def _chunk(lo, hi, src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels,
-               cav_db, opt, eps, hullt, n_samples, out, body_d, body_r1, body_r2, g_pt, ev_t, ev_b, ev_o, fl_t,
-               fl_l, fl_d):
-        """The link field of links [lo, hi) into out (4, N): re, im, floor2, diffuse."""
+    def _chunk(lo, hi, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, wheels,
+               cav_db, opt, eps, hullt, n_samples, out, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, body, g_pt):
+        """The link field of links [lo, hi) into out (4, N): re, im, floor2, diffuse.
+
+        Link i takes the sensor state (src, s_axis, bits0, theta, wheel) of row si and the receiver (dst,
+        r_axis, spot_bits, dfac) of row di: si = i % grid_m, di = i // grid_m when grid_m > 0 (every sensor
+        state for every receiver, receiver-major), else si = di = i. e_dir, e_road (installed pattern) by i.
+        Scratch: body (3, hi - lo) the legs' body losses, g_pt (hi - lo, 3) the road points. The body losses
+        of the chunk are traced first, leg by leg (one tight loop each: core.kernels._segments)."""
         kind = int(opt[0])
         rx_dipole = opt[1] != 0.0
         road = opt[2] != 0.0
@@ -150,29 +155,44 @@ if kernels.numba is not None:
         min_path = opt[10]
         top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, \
             tz_loss, sz_pip, sz_off, sz_loss, env, box, default_loss, wheelhouse_loss = hullt
-        _segments(lo, hi, body_d, src, dst, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem,
+        n_cav = cav_db.shape[1]
+        two_pi = 2.0 * np.pi
+        m_s = max(0, grid_m)  # _segments' row modes: sensor rows i % grid_m, receiver rows i // grid_m
+        m_r = -grid_m if grid_m > 0 else 0
+        _segments(lo, hi, body[0], src, dst, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem,
                   tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box, default_loss,
-                  wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d)
+                  wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_s, m_r, 0, lo)
         if road:
             for i in range(lo, hi):
-                ix, iy, iz = src[i, 0], src[i, 1], -src[i, 2]
-                tg = src[i, 2] / max(src[i, 2] + dst[i, 2], 1e-9)
-                g_pt[i, 0] = ix + tg * (dst[i, 0] - ix)
-                g_pt[i, 1] = iy + tg * (dst[i, 1] - iy)
-                g_pt[i, 2] = 0.0
-            _segments(lo, hi, body_r1, src, g_pt, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
+                si = i % grid_m if grid_m > 0 else i
+                di = i // grid_m if grid_m > 0 else i
+                sz = src[si, 2]
+                rz = dst[di, 2]
+                tg = sz / max(sz + rz, 1e-9)  # the road point: on the line image -> receiver at z = 0
+                g_pt[i - lo, 0] = src[si, 0] + tg * (dst[di, 0] - src[si, 0])
+                g_pt[i - lo, 1] = src[si, 1] + tg * (dst[di, 1] - src[si, 1])
+                g_pt[i - lo, 2] = 0.0
+            # sensor -> road point, and the receiver -> road point (traced from the receiver, its own bits)
+            _segments(lo, hi, body[1], src, g_pt, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
                       arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
-                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d)
-            _segments(lo, hi, body_r2, dst, g_pt, spot_bits, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
+                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_s, 0, lo,
+                      lo)
+            _segments(lo, hi, body[2], dst, g_pt, spot_bits, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
                       arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
-                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d)
-        n_cav = cav_db.shape[1]
+                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_r, 0, lo,
+                      lo)
         for i in range(lo, hi):
-            w = wheel[i]
-            sx, sy, sz = src[i, 0], src[i, 1], src[i, 2]
-            rx, ry, rz = dst[i, 0], dst[i, 1], dst[i, 2]
-            s0, s1, s2 = s_axis[i, 0], s_axis[i, 1], s_axis[i, 2]
-            a0, a1, a2 = r_axis[i, 0], r_axis[i, 1], r_axis[i, 2]
+            if grid_m > 0:
+                si = i % grid_m
+                di = i // grid_m
+            else:
+                si = i
+                di = i
+            w = wheel[si]
+            sx, sy, sz = src[si, 0], src[si, 1], src[si, 2]
+            rx, ry, rz = dst[di, 0], dst[di, 1], dst[di, 2]
+            s0, s1, s2 = s_axis[si, 0], s_axis[si, 1], s_axis[si, 2]
+            a0, a1, a2 = r_axis[di, 0], r_axis[di, 1], r_axis[di, 2]
             # direct ray
             v0, v1, v2 = rx - sx, ry - sy, rz - sz
             n = math.sqrt(v0 * v0 + v1 * v1 + v2 * v2)
@@ -192,7 +212,7 @@ if kernels.numba is not None:
                 ndd = max(nd, 1e-12)
                 p0, p1, p2 = e0 / ndd, e1 / ndd, e2 / ndd  # the direct ray's polarization
                 c_d = complex(nd)
-            loss = body_d[i]
+            loss = body[0, i - lo]
             if use_wheel:
                 loss += _wheel_loss(wheels[w], sx, sy, sz, rx, ry, rz, lam, sidewall, tread)
             g = 10.0 ** (-loss / 20.0) / d
@@ -206,6 +226,7 @@ if kernels.numba is not None:
                 ur0, ur1, ur2 = w0 / nrr, w1 / nrr, w2 / nrr
                 d_r = max(nr, min_path)
                 ui0, ui1, ui2 = ur0, ur1, -ur2
+                gx, gy = g_pt[i - lo, 0], g_pt[i - lo, 1]
                 if kind == 2:
                     q0, q1, q2 = e_road[i, 0], e_road[i, 1], e_road[i, 2]
                 else:
@@ -239,10 +260,9 @@ if kernels.numba is not None:
                     c_r = er0 * a0 + er1 * a1 + er2 * a2
                 else:
                     c_r = er0 * p0.conjugate() + er1 * p1.conjugate() + er2 * p2.conjugate()
-                loss_r = body_r1[i] + body_r2[i]
+                loss_r = body[1, i - lo] + body[2, i - lo]
                 if use_wheel:
-                    loss_r += _wheel_loss(wheels[w], sx, sy, sz, g_pt[i, 0], g_pt[i, 1], g_pt[i, 2], lam, sidewall,
-                                          tread)
+                    loss_r += _wheel_loss(wheels[w], sx, sy, sz, gx, gy, 0.0, lam, sidewall, tread)
                 g_r = 10.0 ** (-loss_r / 20.0) / d_r
                 b = c_r * g_r
                 ph = wavenumber * (d_r - d)
@@ -254,51 +274,41 @@ if kernels.numba is not None:
             out[1, i] = f_im
             out[2, i] = floor_ratio * fl2
             if has_cav:
-                two_pi = 2.0 * np.pi
-                th = theta[i] % two_pi
+                th = theta[si] % two_pi
                 fr = th / two_pi * n_cav
                 fl = math.floor(fr)
                 i0 = int(fl) % n_cav
                 t = fr - fl
                 i1 = (i0 + 1) % n_cav
-                out[3, i] = 10.0 ** ((cav_db[w, i0] * (1.0 - t) + cav_db[w, i1] * t) / 10.0) * dfac[i]
+                out[3, i] = 10.0 ** ((cav_db[w, i0] * (1.0 - t) + cav_db[w, i1] * t) / 10.0) * dfac[di]
             else:
                 out[3, i] = 0.0
 
     @njit(cache=True, error_model="numpy", nogil=True)
-    def _links_serial(src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels, cav_db,
-                      opt, eps, hullt, n_samples, n_chunks):
+    def _links_serial(n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road,
+                      wheels, cav_db, opt, eps, hullt, n_samples, n_chunks):
         """:func:`_links_parallel` on the calling thread (small calls: no thread-pool launch)."""
-        n = src.shape[0]
         out = np.zeros((4, n))
-        body_d = np.zeros(n)
-        body_r1 = np.zeros(n)
-        body_r2 = np.zeros(n)
-        g_pt = np.zeros((n, 3))
         cap = hullt[0].shape[0] + hullt[1].shape[0] + 4 * hullt[3].shape[0] + hullt[2].shape[0] + 1
-        _chunk(0, n, src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels, cav_db,
-               opt, eps, hullt, n_samples, out, body_d, body_r1, body_r2, g_pt, np.empty(cap),
-               np.empty(cap, np.int64), np.empty(cap, np.int64), np.empty(cap), np.empty(cap), np.empty(cap, np.int8))
+        _chunk(0, n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, wheels,
+               cav_db, opt, eps, hullt, n_samples, out, np.empty(cap), np.empty(cap, np.int64),
+               np.empty(cap, np.int64), np.empty(cap), np.empty(cap), np.empty(cap, np.int8), np.zeros((3, n)),
+               np.zeros((n, 3)))
         return out
 
     @njit(cache=True, error_model="numpy", nogil=True, parallel=True)
-    def _links_parallel(src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels,
-                        cav_db, opt, eps, hullt, n_samples, n_chunks):
-        """The link field (4, N) of N links: re, im, floor2, diffuse; chunks of links in parallel."""
-        n = src.shape[0]
+    def _links_parallel(n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road,
+                        wheels, cav_db, opt, eps, hullt, n_samples, n_chunks):
+        """The link field (4, n) of n links: re, im, floor2, diffuse (see :func:`_chunk`); chunks in parallel."""
         out = np.zeros((4, n))
-        body_d = np.zeros(n)
-        body_r1 = np.zeros(n)
-        body_r2 = np.zeros(n)
-        g_pt = np.zeros((n, 3))
         cap = hullt[0].shape[0] + hullt[1].shape[0] + 4 * hullt[3].shape[0] + hullt[2].shape[0] + 1
         for c in prange(n_chunks):
             lo = c * n // n_chunks
             hi = (c + 1) * n // n_chunks
-            _chunk(lo, hi, src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels,
-                   cav_db, opt, eps, hullt, n_samples, out, body_d, body_r1, body_r2, g_pt, np.empty(cap),
-                   np.empty(cap, np.int64), np.empty(cap, np.int64), np.empty(cap), np.empty(cap),
-                   np.empty(cap, np.int8))
+            _chunk(lo, hi, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road,
+                   wheels, cav_db, opt, eps, hullt, n_samples, out, np.empty(cap), np.empty(cap, np.int64),
+                   np.empty(cap, np.int64), np.empty(cap), np.empty(cap), np.empty(cap, np.int8),
+                   np.zeros((3, hi - lo)), np.zeros((hi - lo, 3)))
         return out
 
     @njit(cache=True, error_model="numpy", nogil=True)
@@ -362,11 +372,68 @@ def _flat(x, shape, dtype=float) -> np.ndarray:
     return a if a.flags.writeable else a.copy()
 
 
+def _options(scene) -> tuple[np.ndarray, bool]:
+    from core.links import MIN_PATH_M
+
+    has_cav = getattr(scene, "cavity", None) is not None
+    opt = np.array([_KIND[scene.sensor_kind], scene.receiver_pattern == "dipole", bool(scene.ground_reflection),
+                    bool(scene.use_wheel_loss), scene.sidewall_loss_db, scene.tread_loss_db, scene.wavelength_m,
+                    scene.wavenumber, 10.0 ** (scene.null_floor_db / 10.0), has_cav, MIN_PATH_M], float)
+    return opt, has_cav
+
+
+def _run(scene, n: int, grid_m: int, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road):
+    """The kernel's (4, n) output: the parallel kernel when its thread pool is free and the call is large, else
+    the serial one on the calling thread (bit-identical)."""
+    from core.geometry import DIFFRACTION_SAMPLES
+
+    if n == 0:
+        return np.zeros((4, 0))
+    kernels.warm_up()
+    opt, _ = _options(scene)
+    wheels = _wheel_table(scene)
+    cav_db = _WHEELS[id(scene)][2]
+    threads = kernels.numba.get_num_threads()
+    args = (n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, wheels, cav_db,
+            opt, complex(scene.road_eps), _hull_tuple(scene.hull), DIFFRACTION_SAMPLES, min(n, 16 * threads))
+    if threads > 1 and n >= kernels.PARALLEL_MIN_SEGMENTS and kernels._LOCK.acquire(blocking=False):
+        try:
+            return _links_parallel(*args)
+        finally:
+            kernels._LOCK.release()
+    return _links_serial(*args)
+
+
+def _field_of(scene, out, shape, has_cav):
+    from core.links import LinkField
+
+    fade_q = getattr(scene, "fade_probability", 0.0)
+    re, im, f2 = (out[k].reshape(shape) for k in range(3))
+    return LinkField(re, im, f2, out[3].reshape(shape) if has_cav else 0.0, fade_q)
+
+
+_NO_FIELD = np.zeros((1, 3), complex)
+
+
+def _table_fields(scene, wheel_index, theta, src, s_axis, dst, r_axis):
+    """The installed pattern's sensor field toward the direct ray and toward the road point (core.links, numpy)."""
+    from core.links import MIN_PATH_M, _sensor_fields, _unit, _wheel_groups
+
+    groups = _wheel_groups(wheel_index, len(src))
+    u, d = _unit(dst - src)
+    e_dir = np.ascontiguousarray(_sensor_fields(scene, groups, theta, s_axis, u, r_axis, np.maximum(d, MIN_PATH_M)),
+                                 complex)
+    e_road = _NO_FIELD
+    if scene.ground_reflection:
+        mirror = np.array([1.0, 1.0, -1.0])
+        u_r, d_r = _unit(dst - src * mirror)
+        e_road = np.ascontiguousarray(_sensor_fields(scene, groups, theta, s_axis, u_r * mirror, r_axis,
+                                                     np.maximum(d_r, MIN_PATH_M)), complex)
+    return e_dir, e_road
+
+
 def link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits=None, diffuse_factor=None):
     """core.links.link_field (same arguments, same :class:`core.links.LinkField`) by the compiled kernel."""
-    from core.geometry import DIFFRACTION_SAMPLES
-    from core.links import MIN_PATH_M, LinkField, _sensor_fields, _unit, _wheel_groups
-
     src = np.asarray(src, float).reshape(-1, 3)
     n = len(src)
     theta = _flat(np.asarray(theta, float).reshape(-1), (n,))
@@ -376,51 +443,52 @@ def link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_
     r_axis = _flat(np.asarray(r_axis, float).reshape(-1, 3), (n, 3))
     bits0 = _flat(np.asarray(bits0, np.int64).reshape(-1), (n,), np.int64)
     wheel = _flat(np.asarray(wheel_index, np.int64).reshape(-1), (n,), np.int64)
-    road = bool(scene.ground_reflection)
-    if road and spot_bits is None:
+    if scene.ground_reflection and spot_bits is None:
         spot_bits = kernels.start_bits(scene.hull, dst)
     spot_bits = _flat(np.asarray(0 if spot_bits is None else spot_bits, np.int64).reshape(-1), (n,), np.int64)
-    has_cav = getattr(scene, "cavity", None) is not None
+    _, has_cav = _options(scene)
     if has_cav and diffuse_factor is None:
         from core.cavity import spot_factor
 
         diffuse_factor = spot_factor(scene, dst, r_axis)
     dfac = _flat(np.asarray(0.0 if diffuse_factor is None else diffuse_factor, float).reshape(-1), (n,))
-    kind = _KIND[scene.sensor_kind]
-    e_dir = e_road = np.zeros((1, 3), complex)
-    if kind == 2 and n:
-        groups = _wheel_groups(wheel_index, n)
-        u, d = _unit(dst - src)
-        e_dir = np.ascontiguousarray(_sensor_fields(scene, groups, theta, s_axis, u, r_axis, np.maximum(d, MIN_PATH_M)),
-                                     complex)
-        if road:
-            u_r, d_r = _unit(dst - src * np.array([1.0, 1.0, -1.0]))
-            e_road = np.ascontiguousarray(_sensor_fields(scene, groups, theta, s_axis, u_r * np.array([1.0, 1.0, -1.0]),
-                                                         r_axis, np.maximum(d_r, MIN_PATH_M)), complex)
-    wheels = _wheel_table(scene)
-    cav_db = _WHEELS[id(scene)][2]
-    opt = np.array([kind, scene.receiver_pattern == "dipole", road, bool(scene.use_wheel_loss), scene.sidewall_loss_db,
-                    scene.tread_loss_db, scene.wavelength_m, scene.wavenumber, 10.0 ** (scene.null_floor_db / 10.0),
-                    has_cav, MIN_PATH_M], float)
-    if n == 0:
-        out = np.zeros((4, 0))
-    else:
-        kernels.warm_up()
-        threads = kernels.numba.get_num_threads()
-        args = (src, s_axis, dst, r_axis, bits0, spot_bits, wheel, theta, dfac, e_dir, e_road, wheels, cav_db, opt,
-                complex(scene.road_eps), _hull_tuple(scene.hull), DIFFRACTION_SAMPLES, min(n, 16 * threads))
-        out = None
-        if threads > 1 and n >= kernels.PARALLEL_MIN_SEGMENTS and kernels._LOCK.acquire(blocking=False):
-            try:
-                out = _links_parallel(*args)
-            finally:
-                kernels._LOCK.release()
-        if out is None:
-            out = _links_serial(*args)
-    fade_q = getattr(scene, "fade_probability", 0.0)
-    if not has_cav:
-        return LinkField(out[0], out[1], out[2], 0.0, fade_q)
-    return LinkField(out[0], out[1], out[2], out[3], fade_q)
+    e_dir = e_road = _NO_FIELD
+    if scene.sensor_kind == "table" and n:
+        e_dir, e_road = _table_fields(scene, wheel_index, theta, src, s_axis, dst, r_axis)
+    out = _run(scene, n, 0, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road)
+    return _field_of(scene, out, (n,), has_cav)
+
+
+def turn_fields(scene, spots, axes, spot_bits=None, spot_diffuse=None):
+    """core.links.turn_fields (every wheel at the scene's sampled angles for spots (S, 3) with receiver axes
+    (S, 3); arrays (S, W, A)) by the compiled kernel, which pairs every sensor state with every spot itself
+    instead of taking (S W A)-long copies of them."""
+    spots = _flat(np.asarray(spots, float).reshape(-1, 3), (len(spots), 3))
+    axes = _flat(np.asarray(axes, float).reshape(-1, 3), spots.shape)
+    S, W, A = len(spots), len(scene.wheels), len(scene.angles_rad)
+    m = W * A
+    src = _flat(scene.sensor_pos.reshape(-1, 3), (m, 3))
+    s_axis = _flat(scene.sensor_axis.reshape(-1, 3), (m, 3))
+    bits0 = _flat(scene.sensor_bits.reshape(-1), (m,), np.int64)
+    theta = _flat(np.broadcast_to(scene.angles_rad[None, :], (W, A)).reshape(-1), (m,))
+    wheel = _flat(np.repeat(np.arange(W), A), (m,), np.int64)
+    if scene.ground_reflection and spot_bits is None:
+        spot_bits = kernels.start_bits(scene.hull, spots)
+    spot_bits = _flat(np.asarray(0 if spot_bits is None else spot_bits, np.int64).reshape(-1), (S,), np.int64)
+    _, has_cav = _options(scene)
+    if has_cav and spot_diffuse is None:
+        from core.cavity import spot_factor
+
+        spot_diffuse = spot_factor(scene, spots, axes)
+    dfac = _flat(np.asarray(0.0 if spot_diffuse is None else spot_diffuse, float).reshape(-1), (S,))
+    e_dir = e_road = _NO_FIELD
+    if scene.sensor_kind == "table" and S:
+        idx_s = np.repeat(np.arange(S), m)
+        idx_m = np.tile(np.arange(m), S)
+        e_dir, e_road = _table_fields(scene, wheel[idx_m], theta[idx_m], src[idx_m], s_axis[idx_m], spots[idx_s],
+                                      axes[idx_s])
+    out = _run(scene, S * m, m, src, s_axis, bits0, theta, wheel, spots, axes, spot_bits, dfac, e_dir, e_road)
+    return _field_of(scene, out, (S, W, A), has_cav)
 
 
 def fade_power(coherent: np.ndarray, diffuse, q: float, table) -> np.ndarray:
@@ -447,13 +515,13 @@ def warm_up() -> None:
              np.zeros((5, 2)), np.array([[0.0, 0.0, 0.0], [1.0, 1.0, 1.0]]), 1.0, 1.0)
     opt = np.zeros(11)
     opt[6] = opt[7] = opt[8] = 1.0
-    args = (z3.copy(), z3.copy(), z3 + 1.0, z3.copy(), i1.copy(), i1.copy(), i1.copy(), np.zeros(1), np.zeros(1),
-            np.zeros((1, 3), complex), np.zeros((1, 3), complex), np.zeros((1, 9)), np.zeros((1, 1)), opt, 1 + 0j,
-            hullt, 8, 1)
+    args = (1, 0, z3.copy(), z3.copy(), i1.copy(), np.zeros(1), i1.copy(), z3 + 1.0, z3.copy(), i1.copy(),
+            np.zeros(1), _NO_FIELD.copy(), _NO_FIELD.copy(), np.zeros((1, 9)), np.zeros((1, 1)), opt, 1 + 0j, hullt, 8,
+            1)
     _links_serial(*args)
     with kernels._LOCK:
         _links_parallel(*args)
     _fade_kernel(np.ones(1), np.ones(1), -6.0, 4.0, np.zeros(3), 0.0)
 
 
-__all__ = ["fade_power", "link_field", "warm_up"]
+__all__ = ["fade_power", "link_field", "turn_fields", "warm_up"]

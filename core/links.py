@@ -493,6 +493,10 @@ def turn_fields(scene, spots: np.ndarray, axes: np.ndarray, spot_bits: np.ndarra
     """:func:`turn_field` of every wheel in one call of :func:`link_field` (per-link wheel index): arrays
     (S, W, A). The same link-by-link arithmetic, fewer and larger calls (the compiled kernel runs one
     parallel loop over them)."""
+    if kernels.available():
+        from core import link_kernel
+
+        return link_kernel.turn_fields(scene, spots, axes, spot_bits, spot_diffuse)
     S, W, A = len(spots), len(scene.wheels), len(scene.angles_rad)
     shape = (S, W, A)
     src = np.broadcast_to(scene.sensor_pos[None], (S, W, A, 3)).reshape(-1, 3)

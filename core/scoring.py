@@ -20,8 +20,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from core.geometry import Hull, build_hull, inside_hull, start_bits
 from core import kernels
+from core.geometry import Hull, build_hull, inside_hull, start_bits
 from core.links import LinkField, level_dbm, turn_field, turn_fields
 from core.materials import material_loss_db, road_permittivity
 from core.propagation import SHORT_DIPOLE_GAIN_DBI, near_field_limit_m, wavelength_m
