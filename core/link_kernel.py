@@ -243,10 +243,8 @@ if kernels.numba is not None:
                 t0 = n1 * ui2 - n2 * ui1
                 t1 = n2 * ui0 - n0 * ui2
                 t2 = n0 * ui1 - n1 * ui0
-                psi = math.asin(min(max(ur2, 0.0), 1.0))
-                sin_psi = math.sin(psi)
-                cos_psi = math.cos(psi)
-                q = cmath.sqrt(eps - cos_psi * cos_psi)
+                sin_psi = min(max(ur2, 0.0), 1.0)  # the grazing angle's sine (and cos^2 = 1 - sin^2)
+                q = cmath.sqrt(eps - (1.0 - sin_psi * sin_psi))
                 g_perp = (sin_psi - q) / (sin_psi + q)
                 g_par = (eps * sin_psi - q) / (eps * sin_psi + q)
                 e_te = q0 * n0 + q1 * n1 + q2 * n2
@@ -311,14 +309,13 @@ if kernels.numba is not None:
                    np.zeros((3, hi - lo)), np.zeros((hi - lo, 3)))
         return out
 
-    @njit(cache=True, error_model="numpy", nogil=True)
-    def _fade_kernel(coh, dif, lk_lo, lk_hi, g, z_q):
-        """core.links.fade_power elementwise on flat arrays (the table interpolation, same arithmetic)."""
+    @njit(cache=True, error_model="numpy", inline="always")
+    def _fade_range(lo, hi, coh, dif, lk_lo, lk_hi, g, z_q, out):
+        """core.links.fade_power elementwise over [lo, hi) of flat arrays (the table interpolation, same arithmetic)."""
         n_tab = g.shape[0] - 1
         scale = n_tab / (lk_hi - lk_lo)
-        out = np.empty(coh.shape[0])
         r2 = math.sqrt(2.0)
-        for i in range(coh.shape[0]):
+        for i in range(lo, hi):
             c = coh[i]
             d = dif[i]
             tot = c + d
@@ -334,6 +331,21 @@ if kernels.numba is not None:
                 kk = 10.0 ** min(lk, 300.0)
                 gk = (math.sqrt(kk) + z_q / r2) ** 2 / (kk + 1.0)
             out[i] = tot * gk
+
+    @njit(cache=True, error_model="numpy", nogil=True)
+    def _fade_kernel(coh, dif, lk_lo, lk_hi, g, z_q):
+        """:func:`_fade_range` over all elements on the calling thread."""
+        out = np.empty(coh.shape[0])
+        _fade_range(0, coh.shape[0], coh, dif, lk_lo, lk_hi, g, z_q, out)
+        return out
+
+    @njit(cache=True, error_model="numpy", nogil=True, parallel=True)
+    def _fade_parallel(coh, dif, lk_lo, lk_hi, g, z_q, n_chunks):
+        """:func:`_fade_range` in chunks on every thread (elementwise: the same bits as :func:`_fade_kernel`)."""
+        n = coh.shape[0]
+        out = np.empty(n)
+        for c in prange(n_chunks):
+            _fade_range(c * n // n_chunks, (c + 1) * n // n_chunks, coh, dif, lk_lo, lk_hi, g, z_q, out)
         return out
 
 
@@ -500,7 +512,15 @@ def fade_power(coherent: np.ndarray, diffuse, q: float, table) -> np.ndarray:
     d = np.ascontiguousarray(np.broadcast_to(np.asarray(diffuse, float), shape)).reshape(-1)
     c = c if c.flags.writeable else c.copy()
     d = d if d.flags.writeable else d.copy()
-    return _fade_kernel(c, d, float(lk_grid[0]), float(lk_grid[-1]), np.ascontiguousarray(g), float(z_q)).reshape(shape)
+    args = (c, d, float(lk_grid[0]), float(lk_grid[-1]), np.ascontiguousarray(g), float(z_q))
+    kernels.warm_up()
+    threads = kernels.numba.get_num_threads()
+    if threads > 1 and len(c) >= 4 * kernels.PARALLEL_MIN_SEGMENTS and kernels._LOCK.acquire(blocking=False):
+        try:
+            return _fade_parallel(*args, 4 * threads).reshape(shape)
+        finally:
+            kernels._LOCK.release()
+    return _fade_kernel(*args).reshape(shape)
 
 
 def warm_up() -> None:
@@ -521,7 +541,10 @@ def warm_up() -> None:
     _links_serial(*args)
     with kernels._LOCK:
         _links_parallel(*args)
-    _fade_kernel(np.ones(1), np.ones(1), -6.0, 4.0, np.zeros(3), 0.0)
+    fade = (np.ones(1), np.ones(1), -6.0, 4.0, np.zeros(3), 0.0)
+    _fade_kernel(*fade)
+    with kernels._LOCK:
+        _fade_parallel(*fade, 1)
 
 
 __all__ = ["fade_power", "link_field", "turn_fields", "warm_up"]

@@ -144,7 +144,8 @@ def test_warm_up_covers_the_engine_and_a_background_warm_up_leaves_numpy_serving
     spot_levels(scene, pos, axes)
     score_spots(scene, pos, axes)  # the refinement and the fade quantile too
     for k in (kernels._body_loss_serial, kernels._body_loss_kernel, kernels._start_bits_kernel,
-              link_kernel._links_serial, link_kernel._links_parallel, link_kernel._fade_kernel):
+              link_kernel._links_serial, link_kernel._links_parallel, link_kernel._fade_kernel,
+              link_kernel._fade_parallel):
         assert len(k.signatures) == 1, k
     a, b = _random_segments(scene.hull, 500, seed=11)
     monkeypatch.setattr(kernels, "_READY", __import__("threading").Event())
@@ -262,6 +263,12 @@ def test_fade_power_matches_numpy(monkeypatch):
         assert np.array_equal(got[3], coh[3])  # no diffuse part: the coherent power itself
         assert np.max(np.abs(_db(got) - _db(ref))) < 1e-9
         assert np.array_equal(links.fade_power(coh, dif, q), got)  # the engine's call takes the kernel
+    big = np.tile(coh, (40, 20))  # large enough for the parallel kernel: the same bits
+    big_d = np.tile(dif, (40, 1))
+    monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 8)
+    par = link_kernel.fade_power(big, big_d, 0.01, links._fade_table(0.01))
+    monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 10**12)
+    assert np.array_equal(par, link_kernel.fade_power(big, big_d, 0.01, links._fade_table(0.01)))
 
 
 @pytest.mark.parametrize("path", SAMPLES, ids=lambda p: p.stem)
