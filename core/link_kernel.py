@@ -310,27 +310,67 @@ if kernels.numba is not None:
         return out
 
     @njit(cache=True, error_model="numpy", inline="always")
-    def _fade_range(lo, hi, coh, dif, lk_lo, lk_hi, g, z_q, out):
-        """core.links.fade_power elementwise over [lo, hi) of flat arrays (the table interpolation, same arithmetic)."""
+    def _fade1(c, d, lk_lo, lk_hi, g, z_q):
+        """core.links.fade_power of one value: coherent power c plus diffuse power d held at the q-quantile (the
+        table interpolation in log K, the Rayleigh and normal limits; same arithmetic)."""
+        tot = c + d
+        if not d > 0.0:
+            return tot
         n_tab = g.shape[0] - 1
-        scale = n_tab / (lk_hi - lk_lo)
-        r2 = math.sqrt(2.0)
+        lk = np.log10(c / d)
+        x = (min(max(lk, lk_lo), lk_hi) - lk_lo) * (n_tab / (lk_hi - lk_lo))
+        j = min(int(x), n_tab - 1)
+        f = x - j
+        gk = math.exp((g[j] * (1.0 - f) + g[j + 1] * f) * _LN10)
+        if lk > lk_hi:
+            kk = 10.0 ** min(lk, 300.0)
+            gk = (math.sqrt(kk) + z_q / math.sqrt(2.0)) ** 2 / (kk + 1.0)
+        return tot * gk
+
+    @njit(cache=True, error_model="numpy", inline="always")
+    def _fade_range(lo, hi, coh, dif, lk_lo, lk_hi, g, z_q, out):
+        """:func:`_fade1` over [lo, hi) of flat arrays."""
         for i in range(lo, hi):
-            c = coh[i]
-            d = dif[i]
-            tot = c + d
-            if not d > 0.0:
-                out[i] = tot
-                continue
-            lk = np.log10(c / d)
-            x = (min(max(lk, lk_lo), lk_hi) - lk_lo) * scale
-            j = min(int(x), n_tab - 1)
-            f = x - j
-            gk = math.exp((g[j] * (1.0 - f) + g[j + 1] * f) * _LN10)
-            if lk > lk_hi:
-                kk = 10.0 ** min(lk, 300.0)
-                gk = (math.sqrt(kk) + z_q / r2) ** 2 / (kk + 1.0)
-            out[i] = tot * gk
+            out[i] = _fade1(coh[i], dif[i], lk_lo, lk_hi, g, z_q)
+
+    @njit(cache=True, error_model="numpy", inline="always")
+    def _quad_range(lo, hi, v, f0, f2, g0, g2, tgrid, lk_lo, lk_hi, g, z_q, fade_on, idx, val):
+        """Smallest scored power on the grid tgrid of the complex quadratic v0 + B t + C t^2 (v rows: v0 re, im,
+        B re, im, C re, im) with the floor and the diffuse power linear in t (core.turn_minimum), rows [lo, hi):
+        its first grid index and value."""
+        for i in range(lo, hi):
+            best = np.inf
+            k_best = 0
+            for k in range(tgrid.shape[0]):
+                t = tgrid[k]
+                qr = v[0, i] + t * (v[2, i] + t * v[4, i])
+                qi = v[1, i] + t * (v[3, i] + t * v[5, i])
+                c = max(qr * qr + qi * qi, f0[i] + t * (f2[i] - f0[i]))
+                d = g0[i] + t * (g2[i] - g0[i])
+                p = _fade1(c, d, lk_lo, lk_hi, g, z_q) if fade_on else c + d
+                if p < best:
+                    best = p
+                    k_best = k
+            idx[i] = k_best
+            val[i] = best
+
+    @njit(cache=True, error_model="numpy", nogil=True)
+    def _quad_serial(v, f0, f2, g0, g2, tgrid, lk_lo, lk_hi, g, z_q, fade_on, n_chunks):
+        n = f0.shape[0]
+        idx = np.empty(n, np.int64)
+        val = np.empty(n)
+        _quad_range(0, n, v, f0, f2, g0, g2, tgrid, lk_lo, lk_hi, g, z_q, fade_on, idx, val)
+        return idx, val
+
+    @njit(cache=True, error_model="numpy", nogil=True, parallel=True)
+    def _quad_parallel(v, f0, f2, g0, g2, tgrid, lk_lo, lk_hi, g, z_q, fade_on, n_chunks):
+        n = f0.shape[0]
+        idx = np.empty(n, np.int64)
+        val = np.empty(n)
+        for c in prange(n_chunks):
+            _quad_range(c * n // n_chunks, (c + 1) * n // n_chunks, v, f0, f2, g0, g2, tgrid, lk_lo, lk_hi, g, z_q,
+                        fade_on, idx, val)
+        return idx, val
 
     @njit(cache=True, error_model="numpy", nogil=True)
     def _fade_kernel(coh, dif, lk_lo, lk_hi, g, z_q):
@@ -523,6 +563,36 @@ def fade_power(coherent: np.ndarray, diffuse, q: float, table) -> np.ndarray:
     return _fade_kernel(*args).reshape(shape)
 
 
+def quad_grid_minimum(v0, bq, cq, f0, f2, g0, g2, tgrid, q: float):
+    """The first grid index and the value of the smallest scored power of the complex quadratics
+    V(t) = v0 + bq t + cq t^2 on the grid ``tgrid``, with the floor f0 -> f2 and the diffuse power g0 -> g2
+    linear in t, held at the fade quantile q (core.turn_minimum's interpolation step; the same arithmetic as
+    its numpy form). Arrays of any one shape; returns (index, value) of that shape."""
+    from core.links import _fade_table
+
+    shape = np.shape(f0)
+    v = np.ascontiguousarray(np.stack([np.real(v0), np.imag(v0), np.real(bq), np.imag(bq), np.real(cq),
+                                       np.imag(cq)]).reshape(6, -1), float)
+    f0, f2, g0, g2 = (np.ascontiguousarray(np.broadcast_to(np.asarray(x, float), shape)).reshape(-1).copy()
+                      for x in (f0, f2, g0, g2))
+    fade_on = bool(q > 0.0)  # q = 0: the mean power (fade_power's elementwise rule gives the rest)
+    lk_grid, g, _rayleigh, z_q = _fade_table(float(q)) if q > 0.0 else (np.array([-6.0, 4.0]), np.zeros(2), 0.0, 0.0)
+    n = len(f0)
+    kernels.warm_up()
+    threads = kernels.numba.get_num_threads()
+    args = (v, f0, f2, g0, g2, np.ascontiguousarray(tgrid, float), float(lk_grid[0]), float(lk_grid[-1]),
+            np.ascontiguousarray(g, float), float(z_q), fade_on, min(max(n, 1), 16 * threads))
+    out = None
+    if threads > 1 and n * len(tgrid) >= 4 * kernels.PARALLEL_MIN_SEGMENTS and kernels._LOCK.acquire(blocking=False):
+        try:
+            out = _quad_parallel(*args)
+        finally:
+            kernels._LOCK.release()
+    if out is None:
+        out = _quad_serial(*args)
+    return out[0].reshape(shape), out[1].reshape(shape)
+
+
 def warm_up() -> None:
     """Compile (or load from the cache) this module's kernels with the engine's argument types."""
     if kernels.numba is None:
@@ -545,6 +615,11 @@ def warm_up() -> None:
     _fade_kernel(*fade)
     with kernels._LOCK:
         _fade_parallel(*fade, 1)
+    quad = (np.zeros((6, 1)), np.ones(1), np.ones(1), np.ones(1), np.ones(1), np.linspace(0.0, 1.0, 3), -6.0, 4.0,
+            np.zeros(3), 0.0, True, 1)
+    _quad_serial(*quad)
+    with kernels._LOCK:
+        _quad_parallel(*quad)
 
 
-__all__ = ["fade_power", "link_field", "turn_fields", "warm_up"]
+__all__ = ["fade_power", "link_field", "quad_grid_minimum", "turn_fields", "warm_up"]

@@ -145,7 +145,7 @@ def test_warm_up_covers_the_engine_and_a_background_warm_up_leaves_numpy_serving
     score_spots(scene, pos, axes)  # the refinement and the fade quantile too
     for k in (kernels._body_loss_serial, kernels._body_loss_kernel, kernels._start_bits_kernel,
               link_kernel._links_serial, link_kernel._links_parallel, link_kernel._fade_kernel,
-              link_kernel._fade_parallel):
+              link_kernel._fade_parallel, link_kernel._quad_serial, link_kernel._quad_parallel):
         assert len(k.signatures) == 1, k
     a, b = _random_segments(scene.hull, 500, seed=11)
     monkeypatch.setattr(kernels, "_READY", __import__("threading").Event())
@@ -310,3 +310,38 @@ def test_link_field_parallel_and_chunked_are_identical(monkeypatch):
             assert np.array_equal(getattr(f, x), getattr(one, x)), x
     for x in ("re", "im", "floor2", "diffuse"):
         assert np.array_equal(np.concatenate([getattr(p, x) for p in parts]), getattr(one, x)), x
+
+
+def test_quad_grid_minimum_matches_numpy(monkeypatch):
+    """The compiled grid search of core.turn_minimum's interpolation step (core.link_kernel.quad_grid_minimum)
+    against its numpy form: the same first grid index of the minimum and its value, with and without the fade
+    quantile, serial and parallel."""
+    from core.turn_minimum import _T
+
+    rng = np.random.default_rng(12)
+    shape = (3000, 3)
+
+    def cplx():
+        return rng.normal(size=shape) + 1j * rng.normal(size=shape)
+
+    v0, bq, cq = cplx() * 1e-2, cplx() * 1e-2, cplx() * 1e-2
+    f0, f2 = 10.0 ** rng.uniform(-8, -5, shape), 10.0 ** rng.uniform(-8, -5, shape)
+    g0, g2 = 10.0 ** rng.uniform(-7, -3, shape), 10.0 ** rng.uniform(-7, -3, shape)
+    g0[0] = g2[0] = 0.0
+    tt = _T[None, None, :]
+    qr = v0.real[..., None] + tt * (bq.real[..., None] + tt * cq.real[..., None])
+    qi = v0.imag[..., None] + tt * (bq.imag[..., None] + tt * cq.imag[..., None])
+    for q in (0.0, 0.01):
+        monkeypatch.setenv(kernels.ENV_VAR, "numpy")
+        qp = links.fade_power(np.maximum(qr * qr + qi * qi, f0[..., None] + tt * (f2 - f0)[..., None]),
+                              g0[..., None] + tt * (g2 - g0)[..., None], q)
+        monkeypatch.setenv(kernels.ENV_VAR, "numba")
+        i_ref = np.argmin(qp, axis=-1)
+        v_ref = np.take_along_axis(qp, i_ref[..., None], axis=-1)[..., 0]
+        assert len(np.unique(i_ref)) > 10  # minima all over the grid: a real check
+        monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 10**12)
+        i_s, v_s = link_kernel.quad_grid_minimum(v0, bq, cq, f0, f2, g0, g2, _T, q)
+        monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 1)
+        i_p, v_p = link_kernel.quad_grid_minimum(v0, bq, cq, f0, f2, g0, g2, _T, q)
+        assert np.array_equal(i_s, i_ref) and np.array_equal(i_p, i_s) and np.array_equal(v_p, v_s)
+        assert np.allclose(v_s, v_ref, rtol=1e-12, atol=0.0)
