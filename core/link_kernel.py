@@ -136,9 +136,70 @@ if kernels.numba is not None:
             e0, e1, e2 = e0 / n, e1 / n, e2 / n
         return e0, e1, e2
 
+    @njit(cache=True, error_model="numpy", inline="always")
+    def _bilinear1(grid, w, step_t, n_t, n_p, t, p):
+        """core.wheel_patterns._bilinear at one direction (polar t, azimuth p, rad) of wheel w's wrapped
+        (T, P+1, 3) grid: the same corner weights, summed in the same order."""
+        step_p = 2.0 * np.pi / n_p
+        ft = t / step_t
+        i0 = min(max(int(np.floor(ft)), 0), n_t - 2)
+        ft = min(max(ft - i0, 0.0), 1.0)
+        fp = p / step_p
+        j0 = min(max(int(np.floor(fp)), 0), n_p - 1)
+        fp = min(max(fp - j0, 0.0), 1.0)
+        w00 = (1 - ft) * (1 - fp)
+        w01 = (1 - ft) * fp
+        w10 = ft * (1 - fp)
+        w11 = ft * fp
+        e0 = grid[w, i0, j0, 0] * w00 + grid[w, i0, j0 + 1, 0] * w01 + grid[w, i0 + 1, j0, 0] * w10 \
+            + grid[w, i0 + 1, j0 + 1, 0] * w11
+        e1 = grid[w, i0, j0, 1] * w00 + grid[w, i0, j0 + 1, 1] * w01 + grid[w, i0 + 1, j0, 1] * w10 \
+            + grid[w, i0 + 1, j0 + 1, 1] * w11
+        e2 = grid[w, i0, j0, 2] * w00 + grid[w, i0, j0 + 1, 2] * w01 + grid[w, i0 + 1, j0, 2] * w10 \
+            + grid[w, i0 + 1, j0 + 1, 2] * w11
+        return e0, e1, e2
+
     @njit(cache=True, error_model="numpy")
-    def _chunk(lo, hi, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, wheels,
-               cav_db, opt, eps, hullt, n_samples, out, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, body, g_pt):
+    def _installed_field(tab, grid, near, w, u0, u1, u2, theta, dist):
+        """The installed wheel pattern's field toward unit u at wheel angle theta and path length dist
+        (core.wheel_patterns.field_vectors, reference "sensor", with the near-field term, divided by
+        sqrt(1.5) as core.links.sensor_field does). tab[w]: step_t, n_t, n_p, near step_t, n_t, n_p,
+        has near, wavenumber, outboard sign, sensor offset, sensor radius, NEAR_MIN_RADIUS_M, NEAR_FULL_M,
+        NEAR_NONE_M, BARE_PEAK_FIELD."""
+        tw = tab[w]
+        sg = tw[8]
+        nrm = max(math.sqrt(u0 * u0 + u1 * u1 + u2 * u2), 1e-300)
+        d0, d1, d2 = u0 / nrm, u1 / nrm, u2 / nrm
+        c, s = math.cos(theta), math.sin(theta)
+        dx, dy, dz = d0, sg * d1, d2
+        w0, w1, w2 = c * dx - s * dz, dy, s * dx + c * dz
+        q0, q1, q2 = dist * w0 + 0.0, dist * w1 + tw[9], dist * w2 + tw[10]
+        r = math.sqrt(q0 * q0 + q1 * q1 + q2 * q2)
+        rr = max(r, 1e-300)
+        v0, v1, v2 = q0 / rr, q1 / rr, q2 / rr
+        t = math.acos(min(max(v2, -1.0), 1.0))
+        p = math.atan2(v1, v0) % (2.0 * np.pi)
+        e0, e1, e2 = _bilinear1(grid, w, tw[0], int(tw[1]), int(tw[2]), t, p)
+        dot = e0 * v0 + e1 * v1 + e2 * v2
+        e0, e1, e2 = e0 - dot * v0, e1 - dot * v1, e2 - dot * v2
+        if tw[6] != 0.0:
+            n0, n1, n2 = _bilinear1(near, w, tw[3], int(tw[4]), int(tw[5]), t, p)
+            rn = max(r, tw[11])
+            wt = min(max((tw[13] - r) / (tw[13] - tw[12]), 0.0), 1.0)
+            e0, e1, e2 = e0 + (n0 / rn) * wt, e1 + (n1 / rn) * wt, e2 + (n2 / rn) * wt
+        dd = max(dist, 1e-300)
+        f = dd / rr * cmath.exp(-1j * tw[7] * (r - dd))
+        e0, e1, e2 = e0 * f, e1 * f, e2 * f
+        mag = math.sqrt(abs(e0) ** 2 + abs(e1) ** 2 + abs(e2) ** 2)
+        if r < tw[11] and mag > tw[14]:
+            cap = tw[14] / max(mag, 1e-300)
+            e0, e1, e2 = e0 * cap, e1 * cap, e2 * cap
+        k = math.sqrt(1.5)
+        return (c * e0 + s * e2) / k, (sg * e1) / k, (-s * e0 + c * e2) / k
+
+    @njit(cache=True, error_model="numpy")
+    def _chunk(lo, hi, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, tabs,
+               wheels, cav_db, opt, eps, hullt, n_samples, out, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, body, g_pt):
         """The link field of links [lo, hi) into out (4, N): re, im, floor2, diffuse.
 
         Link i takes the sensor state (src, s_axis, bits0, theta, wheel) of row si and the receiver (dst,
@@ -201,6 +262,8 @@ if kernels.numba is not None:
             d = max(n, min_path)
             if kind == 2:
                 e0, e1, e2 = e_dir[i, 0], e_dir[i, 1], e_dir[i, 2]
+            elif kind == 3:
+                e0, e1, e2 = _installed_field(tabs[0], tabs[1], tabs[2], w, u0, u1, u2, theta[si], d)
             else:
                 f0, f1, f2 = _field_toward(kind, rx_dipole, s0, s1, s2, a0, a1, a2, u0, u1, u2)
                 e0, e1, e2 = complex(f0), complex(f1), complex(f2)
@@ -229,6 +292,8 @@ if kernels.numba is not None:
                 gx, gy = g_pt[i - lo, 0], g_pt[i - lo, 1]
                 if kind == 2:
                     q0, q1, q2 = e_road[i, 0], e_road[i, 1], e_road[i, 2]
+                elif kind == 3:
+                    q0, q1, q2 = _installed_field(tabs[0], tabs[1], tabs[2], w, ui0, ui1, ui2, theta[si], d_r)
                 else:
                     h0, h1, h2 = _field_toward(kind, rx_dipole, s0, s1, s2, a0, a1, a2, ui0, ui1, ui2)
                     q0, q1, q2 = complex(h0), complex(h1), complex(h2)
@@ -284,19 +349,19 @@ if kernels.numba is not None:
 
     @njit(cache=True, error_model="numpy", nogil=True)
     def _links_serial(n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road,
-                      wheels, cav_db, opt, eps, hullt, n_samples, n_chunks):
+                      tabs, wheels, cav_db, opt, eps, hullt, n_samples, n_chunks):
         """:func:`_links_parallel` on the calling thread (small calls: no thread-pool launch)."""
         out = np.zeros((4, n))
         cap = hullt[0].shape[0] + hullt[1].shape[0] + 4 * hullt[3].shape[0] + hullt[2].shape[0] + 1
-        _chunk(0, n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, wheels,
-               cav_db, opt, eps, hullt, n_samples, out, np.empty(cap), np.empty(cap, np.int64),
+        _chunk(0, n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, tabs,
+               wheels, cav_db, opt, eps, hullt, n_samples, out, np.empty(cap), np.empty(cap, np.int64),
                np.empty(cap, np.int64), np.empty(cap), np.empty(cap), np.empty(cap, np.int8), np.zeros((3, n)),
                np.zeros((n, 3)))
         return out
 
     @njit(cache=True, error_model="numpy", nogil=True, parallel=True)
     def _links_parallel(n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road,
-                        wheels, cav_db, opt, eps, hullt, n_samples, n_chunks):
+                        tabs, wheels, cav_db, opt, eps, hullt, n_samples, n_chunks):
         """The link field (4, n) of n links: re, im, floor2, diffuse (see :func:`_chunk`); chunks in parallel."""
         out = np.zeros((4, n))
         cap = hullt[0].shape[0] + hullt[1].shape[0] + 4 * hullt[3].shape[0] + hullt[2].shape[0] + 1
@@ -304,7 +369,7 @@ if kernels.numba is not None:
             lo = c * n // n_chunks
             hi = (c + 1) * n // n_chunks
             _chunk(lo, hi, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road,
-                   wheels, cav_db, opt, eps, hullt, n_samples, out, np.empty(cap), np.empty(cap, np.int64),
+                   tabs, wheels, cav_db, opt, eps, hullt, n_samples, out, np.empty(cap), np.empty(cap, np.int64),
                    np.empty(cap, np.int64), np.empty(cap), np.empty(cap), np.empty(cap, np.int8),
                    np.zeros((3, hi - lo)), np.zeros((hi - lo, 3)))
         return out
@@ -408,8 +473,40 @@ def _wheel_table(scene) -> np.ndarray:
                      w.tire_width_m] for w in scene.wheels], float).reshape(-1, 9)
     if len(_WHEELS) > 32:
         _WHEELS.clear()
-    _WHEELS[id(scene)] = (scene, tab, _cavity_db(scene))
+    _WHEELS[id(scene)] = (scene, tab, _cavity_db(scene), _pattern_tables(scene) if scene.sensor_kind == "table" else None)
     return tab
+
+
+_NO_TABLES = (np.zeros((1, 15)), np.zeros((1, 2, 2, 3), complex), np.zeros((1, 2, 2, 3), complex))
+
+
+def _pattern_tables(scene):
+    """The scene's installed wheel patterns packed for :func:`_installed_field` (tab (W, 15), far grids
+    (W, T, P+1, 3), near grids), or None when they cannot be packed together (grids of different shapes, a
+    near-field term on some wheels only): the sensor field is then looked up in numpy."""
+    from core.wheel_patterns import BARE_PEAK_FIELD, NEAR_FULL_M, NEAR_MIN_RADIUS_M, NEAR_NONE_M
+
+    tables = scene.wheel_tables
+    if not tables or len({t._grid.shape for t in tables}) != 1:
+        return None
+    near = [t._near_grid for t in tables]
+    if any(n is None for n in near) and not all(n is None for n in near):
+        return None
+    if not all(n is None for n in near) and len({n.shape for n in near}) != 1:
+        return None
+    rows = []
+    for t, w in zip(tables, scene.wheels):
+        has_near = t._near_grid is not None
+        nt = t.near_theta_deg if has_near else t.theta_deg
+        n_np = len(t.near_phi_deg) if has_near else len(t.phi_deg)
+        rows.append([math.radians(t.theta_deg[1] - t.theta_deg[0]), len(t.theta_deg), len(t.phi_deg),
+                     math.radians(nt[1] - nt[0]), len(nt), n_np, has_near, t.wavenumber, w.outboard_sign,
+                     t.sensor_offset_m, t.sensor_radius_m, NEAR_MIN_RADIUS_M, NEAR_FULL_M, NEAR_NONE_M,
+                     BARE_PEAK_FIELD])
+    grid = np.ascontiguousarray(np.stack([t._grid for t in tables]), complex)
+    near_g = (np.ascontiguousarray(np.stack(near), complex) if near[0] is not None
+              else np.zeros((len(tables), 2, 2, 3), complex))
+    return np.array(rows, float), grid, near_g
 
 
 def _cavity_db(scene) -> np.ndarray:
@@ -434,6 +531,12 @@ def _options(scene) -> tuple[np.ndarray, bool]:
     return opt, has_cav
 
 
+def _compiled_tables(scene):
+    """The packed installed patterns of a table scene (None: look the sensor field up in numpy)."""
+    _wheel_table(scene)
+    return _WHEELS[id(scene)][3]
+
+
 def _run(scene, n: int, grid_m: int, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road):
     """The kernel's (4, n) output: the parallel kernel when its thread pool is free and the call is large, else
     the serial one on the calling thread (bit-identical)."""
@@ -445,9 +548,13 @@ def _run(scene, n: int, grid_m: int, src, s_axis, bits0, theta, wheel, dst, r_ax
     opt, _ = _options(scene)
     wheels = _wheel_table(scene)
     cav_db = _WHEELS[id(scene)][2]
+    tabs = _NO_TABLES
+    if scene.sensor_kind == "table" and e_dir is _NO_FIELD:
+        tabs = _compiled_tables(scene)
+        opt[0] = 3  # the installed pattern looked up in the kernel
     threads = kernels.numba.get_num_threads()
-    args = (n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, wheels, cav_db,
-            opt, complex(scene.road_eps), _hull_tuple(scene.hull), DIFFRACTION_SAMPLES, min(n, 16 * threads))
+    args = (n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, tabs, wheels,
+            cav_db, opt, complex(scene.road_eps), _hull_tuple(scene.hull), DIFFRACTION_SAMPLES, min(n, 16 * threads))
     if threads > 1 and n >= kernels.PARALLEL_MIN_SEGMENTS and kernels._LOCK.acquire(blocking=False):
         try:
             return _links_parallel(*args)
@@ -505,7 +612,7 @@ def link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_
         diffuse_factor = spot_factor(scene, dst, r_axis)
     dfac = _flat(np.asarray(0.0 if diffuse_factor is None else diffuse_factor, float).reshape(-1), (n,))
     e_dir = e_road = _NO_FIELD
-    if scene.sensor_kind == "table" and n:
+    if scene.sensor_kind == "table" and n and _compiled_tables(scene) is None:
         e_dir, e_road = _table_fields(scene, wheel_index, theta, src, s_axis, dst, r_axis)
     out = _run(scene, n, 0, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road)
     return _field_of(scene, out, (n,), has_cav)
@@ -534,7 +641,7 @@ def turn_fields(scene, spots, axes, spot_bits=None, spot_diffuse=None):
         spot_diffuse = spot_factor(scene, spots, axes)
     dfac = _flat(np.asarray(0.0 if spot_diffuse is None else spot_diffuse, float).reshape(-1), (S,))
     e_dir = e_road = _NO_FIELD
-    if scene.sensor_kind == "table" and S:
+    if scene.sensor_kind == "table" and S and _compiled_tables(scene) is None:
         idx_s = np.repeat(np.arange(S), m)
         idx_m = np.tile(np.arange(m), S)
         e_dir, e_road = _table_fields(scene, wheel[idx_m], theta[idx_m], src[idx_m], s_axis[idx_m], spots[idx_s],
@@ -606,8 +713,8 @@ def warm_up() -> None:
     opt = np.zeros(11)
     opt[6] = opt[7] = opt[8] = 1.0
     args = (1, 0, z3.copy(), z3.copy(), i1.copy(), np.zeros(1), i1.copy(), z3 + 1.0, z3.copy(), i1.copy(),
-            np.zeros(1), _NO_FIELD.copy(), _NO_FIELD.copy(), np.zeros((1, 9)), np.zeros((1, 1)), opt, 1 + 0j, hullt, 8,
-            1)
+            np.zeros(1), _NO_FIELD.copy(), _NO_FIELD.copy(), tuple(x.copy() for x in _NO_TABLES), np.zeros((1, 9)),
+            np.zeros((1, 1)), opt, 1 + 0j, hullt, 8, 1)
     _links_serial(*args)
     with kernels._LOCK:
         _links_parallel(*args)

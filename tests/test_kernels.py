@@ -345,3 +345,18 @@ def test_quad_grid_minimum_matches_numpy(monkeypatch):
         i_p, v_p = link_kernel.quad_grid_minimum(v0, bq, cq, f0, f2, g0, g2, _T, q)
         assert np.array_equal(i_s, i_ref) and np.array_equal(i_p, i_s) and np.array_equal(v_p, v_s)
         assert np.allclose(v_s, v_ref, rtol=1e-12, atol=0.0)
+
+
+def test_installed_pattern_looked_up_in_numpy_when_tables_cannot_be_packed(monkeypatch):
+    """Wheel tables the kernel cannot pack together (e.g. grids of different sizes) are looked up by
+    core.wheel_patterns in numpy and handed to the kernel: the same link field as the compiled lookup."""
+    scene = Scene.from_vehicle(load_vehicle(DEFAULT_SAMPLE), wheel_model="installed_pattern")
+    assert scene.sensor_kind == "table" and link_kernel._compiled_tables(scene) is not None
+    args = _random_links(scene, 2000, seed=31)
+    compiled = link_kernel.link_field(scene, *args)
+    monkeypatch.setattr(link_kernel, "_compiled_tables", lambda sc: None)
+    looked_up = link_kernel.link_field(scene, *args)
+    ref = links.link_field_numpy(scene, *args)
+    for f in (compiled, looked_up):
+        assert np.max(np.abs(_db(f.power()) - _db(ref.power()))) < TOL_DB
+    assert not np.array_equal(compiled.re, np.zeros_like(compiled.re))
