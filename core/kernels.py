@@ -11,6 +11,8 @@ quantity, link by link, in one compiled loop that runs in parallel over the link
   edge (ITU-R P.526-15 eq. 26 and 31, ``DIFFRACTION_SAMPLES`` points along the passage, escape
   clearance from the hull's envelope tables, as ``core.geometry._body_loss``).
 
+core.link_kernel builds the whole link field on these kernels (rays, wheel, road, cavity, fade quantile).
+
 Which path runs is chosen by the environment variable ``WHEELREACH_KERNEL``: ``numba`` (default
 when numba imports) or ``numpy`` (the reference). When numba cannot be imported, everything runs on
 numpy.
