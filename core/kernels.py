@@ -11,6 +11,8 @@ quantity, link by link, in one compiled loop that runs in parallel over the link
   edge (ITU-R P.526-15 eq. 26 and 31, ``DIFFRACTION_SAMPLES`` points along the passage, escape
   clearance from the hull's envelope tables, as ``core.geometry._body_loss``).
 
+core.link_kernel builds the whole link field on these kernels (rays, wheel, road, cavity, fade quantile).
+
 Which path runs is chosen by the environment variable ``WHEELREACH_KERNEL``: ``numba`` (default
 when numba imports) or ``numpy`` (the reference). When numba cannot be imported, everything runs on
 numpy.
@@ -107,6 +109,9 @@ def warm_up() -> float:
         _body_loss_serial(*args)
         with _LOCK:
             _body_loss_kernel(*args)
+        from core import link_kernel  # the fused link field (it calls the kernels above)
+
+        link_kernel.warm_up()
         _WARM_INFO["seconds"] = time.perf_counter() - t0
         _READY.set()
         return _WARM_INFO["seconds"]
@@ -172,7 +177,7 @@ def status() -> str:
     if "error" in _WARM_INFO:
         return f"numpy path (the compiled kernel failed to build: {_WARM_INFO['error']})"
     if _WARMING.is_set() and not _READY.is_set():
-        return "numpy path while the compiled kernel is prepared (first start on a machine: about 10-40 s)"
+        return "numpy path while the compiled kernel is prepared (first start on a machine: about 30-60 s)"
     return f"compiled kernel (numba {numba.__version__})"
 
 
@@ -382,22 +387,38 @@ if numba is not None:
                     m += 1
         return m
 
+    @njit(cache=True, error_model="numpy", inline="always")
+    def _row(i, m, off):
+        """Row of an input array for segment i: i - off (m = 0), i % m (m > 0) or i // -m (m < 0)."""
+        if m > 0:
+            return i % m
+        if m < 0:
+            return i // -m
+        return i - off
+
     @njit(cache=True, error_model="numpy")
     def _segments(i_lo, i_hi, out, a, b, bits0_arr, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
                   arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
-                  default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d):
-        """Body loss of the segments a[i] -> b[i], i in [i_lo, i_hi), into out (one chunk of the parallel loop)."""
+                  default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d,
+                  a_m=0, b_m=0, b_off=0, out_off=0):
+        """Body loss of the segments a -> b, i in [i_lo, i_hi), into out[i - out_off] (one chunk of the parallel
+        loop). Segment i runs from a[_row(i, a_m, 0)] (start bits from the same row of bits0_arr) to
+        b[_row(i, b_m, b_off)]: so the link kernel (core.link_kernel) pairs sensor states with receivers without
+        a copy of them per link."""
         n_wh = wh.shape[0]
         for i in range(i_lo, i_hi):
-            ax, ay, az = a[i, 0], a[i, 1], a[i, 2]
-            bx, by, bz = b[i, 0], b[i, 1], b[i, 2]
-            bits0 = bits0_arr[i]
+            ia = _row(i, a_m, 0)
+            ib = _row(i, b_m, b_off)
+            io = i - out_off
+            ax, ay, az = a[ia, 0], a[ia, 1], a[ia, 2]
+            bx, by, bz = b[ib, 0], b[ib, 1], b[ib, 2]
+            bits0 = bits0_arr[ia]
             lo_x, hi_x = min(ax, bx), max(ax, bx)
             lo_y, hi_y = min(ay, by), max(ay, by)
             lo_z, hi_z = min(az, bz), max(az, bz)
             if hi_x < box[0, 0] or lo_x > box[1, 0] or hi_y < box[0, 1] or lo_y > box[1, 1] \
                     or hi_z < box[0, 2] or lo_z > box[1, 2]:
-                out[i] = 0.0
+                out[io] = 0.0
                 continue
             dx = bx - ax
             dy = by - ay
@@ -450,7 +471,7 @@ if numba is not None:
                             ev_b[m] = np.int64(1) << (3 + 2 * h)
                             m += 1
             if m == 0:
-                out[i] = 0.0
+                out[io] = 0.0
                 continue
             # stable insertion sort of the events along the segment
             for e in range(m):
@@ -532,7 +553,7 @@ if numba is not None:
                 else:
                     total += fl_l[e]
                     e += 1
-            out[i] = total
+            out[io] = total
 
     @njit(cache=True, error_model="numpy", nogil=True)
     def _body_loss_serial(a, b, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem, tz_pip,

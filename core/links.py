@@ -38,6 +38,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from core import kernels
 from core.geometry import body_loss_db, body_loss_terms, start_bits
 from core.propagation import fresnel_reflection
 from core.wheel import WheelLossParts, sensor_axes, sensor_positions, wheel_loss_db, wheel_loss_parts
@@ -147,6 +148,10 @@ def fade_power(coherent: np.ndarray, diffuse, q: float) -> np.ndarray:
     total = coherent + diffuse
     if q <= 0.0 or np.all(np.asarray(diffuse) == 0.0):
         return total
+    if kernels.available():  # the compiled table interpolation (core.link_kernel), same arithmetic
+        from core import link_kernel
+
+        return link_kernel.fade_power(coherent, diffuse, q, _fade_table(float(q)))
     lk_grid, g, _rayleigh, z_q = _fade_table(float(q))
     d = np.broadcast_to(np.asarray(diffuse, total.dtype), np.shape(total))
     out = np.array(total, copy=True)
@@ -322,6 +327,18 @@ def link_field(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: n
     max(|c|, f) of the design; with the road ray it also bounds the two-ray nulls. The depth f is
     the radio setup's ``null_floor_db`` (engineering default -30 dB).
     """
+    if kernels.available():  # the compiled link field unless WHEELREACH_KERNEL=numpy or no numba
+        from core import link_kernel
+
+        return link_kernel.link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits,
+                                      diffuse_factor)
+    return link_field_numpy(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits, diffuse_factor)
+
+
+def link_field_numpy(scene, wheel_index, theta: np.ndarray, src: np.ndarray, s_axis: np.ndarray,
+                     bits0: np.ndarray, dst: np.ndarray, r_axis: np.ndarray,
+                     spot_bits: np.ndarray | None = None, diffuse_factor: np.ndarray | None = None) -> LinkField:
+    """:func:`link_field` on the pure-numpy path: the reference core.link_kernel is checked against."""
     f = link_rays(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits).field()
     return with_cavity(scene, f, wheel_index, theta, dst, r_axis, diffuse_factor)
 
@@ -469,6 +486,41 @@ def turn_field(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,
     f = link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, bits_p, dif)
     return LinkField(f.re.reshape(S, A), f.im.reshape(S, A), f.floor2.reshape(S, A), np.reshape(f.diffuse, (S, A))
                      if np.ndim(f.diffuse) else f.diffuse, f.fade_q)
+
+
+def turn_fields(scene, spots: np.ndarray, axes: np.ndarray, spot_bits: np.ndarray | None = None,
+                spot_diffuse: np.ndarray | None = None) -> LinkField:
+    """:func:`turn_field` of every wheel in one call of :func:`link_field` (per-link wheel index): arrays
+    (S, W, A). The same link-by-link arithmetic, fewer and larger calls (the compiled kernel runs one
+    parallel loop over them)."""
+    if kernels.available():
+        from core import link_kernel
+
+        return link_kernel.turn_fields(scene, spots, axes, spot_bits, spot_diffuse)
+    S, W, A = len(spots), len(scene.wheels), len(scene.angles_rad)
+    shape = (S, W, A)
+    src = np.broadcast_to(scene.sensor_pos[None], (S, W, A, 3)).reshape(-1, 3)
+    s_axis = np.broadcast_to(scene.sensor_axis[None], (S, W, A, 3)).reshape(-1, 3)
+    dst = np.broadcast_to(spots[:, None, None, :], (S, W, A, 3)).reshape(-1, 3)
+    r_axis = np.broadcast_to(axes[:, None, None, :], (S, W, A, 3)).reshape(-1, 3)
+    theta = np.broadcast_to(scene.angles_rad[None, None, :], shape).reshape(-1)
+    wheel = np.broadcast_to(np.arange(W)[None, :, None], shape).reshape(-1)
+    bits0 = np.broadcast_to(scene.sensor_bits[None], shape).reshape(-1)
+    bits_p = None
+    if scene.ground_reflection:
+        if spot_bits is None:
+            spot_bits = start_bits(scene.hull, spots[:, 0], spots[:, 1], spots[:, 2])
+        bits_p = np.broadcast_to(spot_bits[:, None, None], shape).reshape(-1)
+    dif = None
+    if getattr(scene, "cavity", None) is not None:
+        if spot_diffuse is None:
+            from core.cavity import spot_factor
+
+            spot_diffuse = spot_factor(scene, spots, axes)
+        dif = np.broadcast_to(spot_diffuse[:, None, None], shape).reshape(-1)
+    f = link_field(scene, wheel, theta, src, s_axis, bits0, dst, r_axis, bits_p, dif)
+    return LinkField(f.re.reshape(shape), f.im.reshape(shape), f.floor2.reshape(shape),
+                     np.reshape(f.diffuse, shape) if np.ndim(f.diffuse) else f.diffuse, f.fade_q)
 
 
 def link_levels_for_wheel(scene, wheel_index: int, spots: np.ndarray, axes: np.ndarray,

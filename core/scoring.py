@@ -20,8 +20,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from core import kernels
 from core.geometry import Hull, build_hull, inside_hull, start_bits
-from core.links import LinkField, level_dbm, turn_field
+from core.links import LinkField, level_dbm, turn_field, turn_fields
 from core.materials import material_loss_db, road_permittivity
 from core.propagation import SHORT_DIPOLE_GAIN_DBI, near_field_limit_m, wavelength_m
 from core.turn_minimum import REFINE_INTERVALS, refine_minimum
@@ -293,9 +294,14 @@ def spot_turns(scene: Scene, spots, axes=None, refine: bool = True, chunk_links:
 
         dfac = spot_factor(scene, spots, axes)
     per_chunk = max(1, chunk_links // max(1, W * A))
+    all_wheels = kernels.available()  # the compiled link field takes every wheel of a chunk in one call
     for start in range(0, S, per_chunk):
         sl = slice(start, min(S, start + per_chunk))
-        for wi in range(W):
+        if all_wheels:
+            f = turn_fields(scene, spots[sl], axes[sl], None if bits is None else bits[sl],
+                            None if dfac is None else dfac[sl])
+            re[sl], im[sl], floor2[sl], diffuse[sl] = f.re, f.im, f.floor2, f.diffuse
+        for wi in range(W if not all_wheels else 0):
             f = turn_field(scene, wi, spots[sl], axes[sl], None if bits is None else bits[sl],
                            None if dfac is None else dfac[sl])
             re[sl, wi], im[sl, wi], floor2[sl, wi] = f.re, f.im, f.floor2

@@ -45,6 +45,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from core import kernels
 from core.links import LinkField, fade_power, link_field, sensor_states
 
 #: intervals refined per (spot, wheel)
@@ -237,12 +238,19 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     # V(t) = v0 + B t + C t^2 through the three nodes
     cq = ((v1 - v0) - t1 * (v2 - v0)) / (t1 * (t1 - 1.0))
     bq = (v2 - v0) - cq
-    tt = _T[None, None, :]
-    qr = v0.real[..., None] + tt * (bq.real[..., None] + tt * cq.real[..., None])
-    qi = v0.imag[..., None] + tt * (bq.imag[..., None] + tt * cq.imag[..., None])
-    qp = fade_power(np.maximum(qr * qr + qi * qi, f0[..., None] + tt * (f2 - f0)[..., None]),
-                    g0[..., None] + tt * (g2 - g0)[..., None], q)
-    t2 = _T[np.argmin(qp, axis=-1)]
+    if kernels.available():  # the same grid search compiled (core.link_kernel), no (P, k, QUAD_GRID) arrays
+        from core import link_kernel
+
+        i2, q2 = link_kernel.quad_grid_minimum(v0, bq, cq, f0, f2, g0, g2, _T, q)
+    else:
+        tt = _T[None, None, :]
+        qr = v0.real[..., None] + tt * (bq.real[..., None] + tt * cq.real[..., None])
+        qi = v0.imag[..., None] + tt * (bq.imag[..., None] + tt * cq.imag[..., None])
+        qp = fade_power(np.maximum(qr * qr + qi * qi, f0[..., None] + tt * (f2 - f0)[..., None]),
+                        g0[..., None] + tt * (g2 - g0)[..., None], q)
+        i2 = np.argmin(qp, axis=-1)
+        q2 = np.take_along_axis(qp, i2[..., None], axis=-1)[..., 0]
+    t2 = _T[i2]
     p2 = pairs.evaluate(base + t2 * step)
 
     # per interval, the best of its ends and the two evaluations
@@ -255,7 +263,6 @@ def refine_minimum(scene, spots: np.ndarray, axes: np.ndarray, sampled: LinkFiel
     # golden-section search within one sample step either side of the best interval's best point,
     # for the pairs where the interpolation cannot be trusted: the quadratic missed the true level
     # at its own minimum by more than SMOOTH_DB, or the best point is an interval end (a sample)
-    q2 = np.take_along_axis(qp, np.argmin(qp, axis=-1)[..., None], axis=-1)[..., 0]
     pick = np.argmin(best_p, axis=1)[:, None]
     bp = np.take_along_axis(best_p, pick, axis=1)[:, 0]
     bt = np.take_along_axis(best_t, pick, axis=1)[:, 0]

@@ -1,4 +1,5 @@
-"""The compiled body-loss kernel (core.kernels) against the pure-numpy reference path (core.geometry).
+"""The compiled kernels (core.kernels: body loss; core.link_kernel: the whole link field and the fade
+quantile) against the pure-numpy reference path (core.geometry, core.links).
 
 The numpy path is the reference: both compute the same panel crossings and the same ITU-R P.526-15
 single knife edge (eq. 26 and 31) over each passage's dominant edge, so they must agree to round-off;
@@ -17,7 +18,7 @@ import numpy as np
 import pytest
 from core.samples import DEFAULT_SAMPLE
 
-from core import geometry, kernels
+from core import geometry, kernels, link_kernel, links
 from core.scoring import Cancelled, Scene, heatmap, heatmap_stages, score_spots, spot_levels, vehicle_spot_arrays
 from core.vehicle import load_vehicle
 
@@ -141,7 +142,10 @@ def test_warm_up_covers_the_engine_and_a_background_warm_up_leaves_numpy_serving
     scene = Scene.from_vehicle(v, wheel_model="knife_edge")
     _, pos, axes = vehicle_spot_arrays(v)
     spot_levels(scene, pos, axes)
-    for k in (kernels._body_loss_serial, kernels._body_loss_kernel, kernels._start_bits_kernel):
+    score_spots(scene, pos, axes)  # the refinement and the fade quantile too
+    for k in (kernels._body_loss_serial, kernels._body_loss_kernel, kernels._start_bits_kernel,
+              link_kernel._links_serial, link_kernel._links_parallel, link_kernel._fade_kernel,
+              link_kernel._fade_parallel, link_kernel._quad_serial, link_kernel._quad_parallel):
         assert len(k.signatures) == 1, k
     a, b = _random_segments(scene.hull, 500, seed=11)
     monkeypatch.setattr(kernels, "_READY", __import__("threading").Event())
@@ -187,3 +191,172 @@ def test_runs_on_numpy_without_the_kernel(how):
     here = spot_levels(Scene.from_vehicle(v, wheel_model="knife_edge"), pos, axes).ravel()
     assert kernels.kernel_name() == "numba"
     assert np.max(np.abs(np.asarray(res["levels"]) - here)) < TOL_DB
+
+
+def _random_links(scene, n: int, seed: int):
+    """n random links: any wheel, any wheel angle (between the sampled ones), receivers anywhere in the hull's
+    box grown by 0.3 m with random unit axes; the arguments of core.links.link_field."""
+    rng = np.random.default_rng(seed)
+    wheel = rng.integers(0, len(scene.wheels), n)
+    theta = rng.random(n) * 2.0 * np.pi
+    src, s_axis, bits0 = links.sensor_states(scene, wheel, theta)
+    lo, hi = scene.hull.box_lo - 0.3, scene.hull.box_hi + 0.3
+    dst = lo + rng.random((n, 3)) * (hi - lo)
+    r_axis = rng.normal(size=(n, 3))
+    r_axis /= np.linalg.norm(r_axis, axis=1, keepdims=True)
+    return wheel, theta, src, s_axis, bits0, dst, r_axis
+
+
+def _db(p):
+    return 10.0 * np.log10(np.maximum(p, 1e-60))
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=lambda p: p.stem)
+@pytest.mark.parametrize("wheel_model", ["knife_edge", "installed_pattern"])
+@pytest.mark.parametrize("road", [True, False], ids=["road", "no_road"])
+def test_link_field_matches_numpy_on_random_links(path, wheel_model, road):
+    """core.link_kernel.link_field against core.links.link_field_numpy on 3,000 random links per case: the
+    coherent part, the null floor and the diffuse part each within 0.01 dB, and the scored power (Rician
+    quantile); also with isotropic antennas, without the cabin and without the fade quantile."""
+    import dataclasses
+
+    base = Scene.from_vehicle(load_vehicle(path), wheel_model=wheel_model, ground_reflection=road)
+    assert base.cavity is not None and base.fade_probability > 0
+    variants = [base, dataclasses.replace(base, cavity=None), dataclasses.replace(base, fade_probability=0.0)]
+    if base.sensor_kind != "table":
+        variants += [dataclasses.replace(base, sensor_kind="isotropic"),
+                     dataclasses.replace(base, sensor_kind="isotropic", receiver_pattern="isotropic"),
+                     dataclasses.replace(base, receiver_pattern="isotropic")]
+    else:
+        variants += [dataclasses.replace(base, receiver_pattern="isotropic")]
+    for k, scene in enumerate(variants):
+        args = _random_links(scene, 3000, seed=100 + k)
+        ref = links.link_field_numpy(scene, *args)
+        got = link_kernel.link_field(scene, *args)
+        coh_ref, coh = ref.coherent_power(), got.coherent_power()
+        assert (ref.re * ref.re + ref.im * ref.im > ref.floor2).mean() > 0.5  # mostly above the floor: a real check
+        assert np.max(np.abs(_db(coh) - _db(coh_ref))) < TOL_DB
+        assert np.max(np.abs(_db(got.floor2) - _db(ref.floor2))) < TOL_DB
+        assert np.allclose(got.re, ref.re, rtol=1e-9, atol=1e-12 * np.abs(ref.re).max())
+        assert np.allclose(got.im, ref.im, rtol=1e-9, atol=1e-12 * np.abs(ref.im).max())
+        assert np.allclose(np.broadcast_to(got.diffuse, (3000,)), np.broadcast_to(ref.diffuse, (3000,)),
+                           rtol=1e-9, atol=0.0)
+        assert got.fade_q == ref.fade_q
+        assert np.max(np.abs(_db(got.power()) - _db(ref.power()))) < TOL_DB
+
+
+def test_fade_power_matches_numpy(monkeypatch):
+    """The compiled Rician quantile (core.link_kernel.fade_power) equals core.links.fade_power's table
+    interpolation over K from 0 (and no steady part) to 1e8 (the normal limit above the table), broadcast
+    diffuse arrays and links without a diffuse part."""
+    rng = np.random.default_rng(4)
+    coh = 10.0 ** rng.uniform(-12, 2, (50, 40))
+    coh[0] = 0.0
+    dif = 10.0 ** rng.uniform(-8, -2, (50, 1))
+    dif[3] = 0.0
+    for q in (0.01, 0.1, 0.5):
+        got = link_kernel.fade_power(coh, dif, q, links._fade_table(q))
+        monkeypatch.setenv(kernels.ENV_VAR, "numpy")
+        ref = links.fade_power(coh, dif, q)
+        monkeypatch.setenv(kernels.ENV_VAR, "numba")
+        assert got.shape == ref.shape == coh.shape
+        assert np.array_equal(got[3], coh[3])  # no diffuse part: the coherent power itself
+        assert np.max(np.abs(_db(got) - _db(ref))) < 1e-9
+        assert np.array_equal(links.fade_power(coh, dif, q), got)  # the engine's call takes the kernel
+    big = np.tile(coh, (40, 20))  # large enough for the parallel kernel: the same bits
+    big_d = np.tile(dif, (40, 1))
+    monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 8)
+    par = link_kernel.fade_power(big, big_d, 0.01, links._fade_table(0.01))
+    monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 10**12)
+    assert np.array_equal(par, link_kernel.fade_power(big, big_d, 0.01, links._fade_table(0.01)))
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=lambda p: p.stem)
+@pytest.mark.parametrize("wheel_model", ["knife_edge", "installed_pattern"])
+def test_refined_worst_case_matches_numpy_path(path, wheel_model, monkeypatch):
+    """score_spots (levels, the minimum over the continuous turn, its angle, margins) on the kernel and on the
+    numpy path: within 0.01 dB, the same worst wheel."""
+    v = load_vehicle(path)
+    scene = Scene.from_vehicle(v, wheel_model=wheel_model)
+    spots, axes = _spots(v, scene, 5, seed=21)
+    monkeypatch.setenv(kernels.ENV_VAR, "numpy")
+    ref = score_spots(scene, spots, axes)
+    monkeypatch.setenv(kernels.ENV_VAR, "numba")
+    got = score_spots(scene, spots, axes)
+    assert np.max(np.abs(got.levels_dbm - ref.levels_dbm)) < TOL_DB
+    assert np.max(np.abs(got.worst_dbm - ref.worst_dbm)) < TOL_DB
+    assert np.max(np.abs(got.margin_db - ref.margin_db)) < TOL_DB
+    assert np.array_equal(got.worst_wheel, ref.worst_wheel)
+
+
+def test_link_field_parallel_and_chunked_are_identical(monkeypatch):
+    """The compiled link field on 1 thread or all, in one call or in chunks, serial or parallel: the same bits."""
+    scene = Scene.from_vehicle(load_vehicle(DEFAULT_SAMPLE), wheel_model="knife_edge")
+    args = _random_links(scene, 20_000, seed=8)
+    n_all = kernels.max_threads()
+    monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 1)
+    try:
+        kernels.set_threads(1)
+        one = link_kernel.link_field(scene, *args)
+        kernels.set_threads(n_all)
+        many = link_kernel.link_field(scene, *args)
+    finally:
+        kernels.set_threads(n_all)
+    monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 10**9)
+    serial = link_kernel.link_field(scene, *args)
+    parts = [link_kernel.link_field(scene, *(a[i:i + 2999] for a in args)) for i in range(0, 20_000, 2999)]
+    for f in (many, serial):
+        for x in ("re", "im", "floor2", "diffuse"):
+            assert np.array_equal(getattr(f, x), getattr(one, x)), x
+    for x in ("re", "im", "floor2", "diffuse"):
+        assert np.array_equal(np.concatenate([getattr(p, x) for p in parts]), getattr(one, x)), x
+
+
+def test_quad_grid_minimum_matches_numpy(monkeypatch):
+    """The compiled grid search of core.turn_minimum's interpolation step (core.link_kernel.quad_grid_minimum)
+    against its numpy form: the same first grid index of the minimum and its value, with and without the fade
+    quantile, serial and parallel."""
+    from core.turn_minimum import _T
+
+    rng = np.random.default_rng(12)
+    shape = (3000, 3)
+
+    def cplx():
+        return rng.normal(size=shape) + 1j * rng.normal(size=shape)
+
+    v0, bq, cq = cplx() * 1e-2, cplx() * 1e-2, cplx() * 1e-2
+    f0, f2 = 10.0 ** rng.uniform(-8, -5, shape), 10.0 ** rng.uniform(-8, -5, shape)
+    g0, g2 = 10.0 ** rng.uniform(-7, -3, shape), 10.0 ** rng.uniform(-7, -3, shape)
+    g0[0] = g2[0] = 0.0
+    tt = _T[None, None, :]
+    qr = v0.real[..., None] + tt * (bq.real[..., None] + tt * cq.real[..., None])
+    qi = v0.imag[..., None] + tt * (bq.imag[..., None] + tt * cq.imag[..., None])
+    for q in (0.0, 0.01):
+        monkeypatch.setenv(kernels.ENV_VAR, "numpy")
+        qp = links.fade_power(np.maximum(qr * qr + qi * qi, f0[..., None] + tt * (f2 - f0)[..., None]),
+                              g0[..., None] + tt * (g2 - g0)[..., None], q)
+        monkeypatch.setenv(kernels.ENV_VAR, "numba")
+        i_ref = np.argmin(qp, axis=-1)
+        v_ref = np.take_along_axis(qp, i_ref[..., None], axis=-1)[..., 0]
+        assert len(np.unique(i_ref)) > 10  # minima all over the grid: a real check
+        monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 10**12)
+        i_s, v_s = link_kernel.quad_grid_minimum(v0, bq, cq, f0, f2, g0, g2, _T, q)
+        monkeypatch.setattr(kernels, "PARALLEL_MIN_SEGMENTS", 1)
+        i_p, v_p = link_kernel.quad_grid_minimum(v0, bq, cq, f0, f2, g0, g2, _T, q)
+        assert np.array_equal(i_s, i_ref) and np.array_equal(i_p, i_s) and np.array_equal(v_p, v_s)
+        assert np.allclose(v_s, v_ref, rtol=1e-12, atol=0.0)
+
+
+def test_installed_pattern_looked_up_in_numpy_when_tables_cannot_be_packed(monkeypatch):
+    """Wheel tables the kernel cannot pack together (e.g. grids of different sizes) are looked up by
+    core.wheel_patterns in numpy and handed to the kernel: the same link field as the compiled lookup."""
+    scene = Scene.from_vehicle(load_vehicle(DEFAULT_SAMPLE), wheel_model="installed_pattern")
+    assert scene.sensor_kind == "table" and link_kernel._compiled_tables(scene) is not None
+    args = _random_links(scene, 2000, seed=31)
+    compiled = link_kernel.link_field(scene, *args)
+    monkeypatch.setattr(link_kernel, "_compiled_tables", lambda sc: None)
+    looked_up = link_kernel.link_field(scene, *args)
+    ref = links.link_field_numpy(scene, *args)
+    for f in (compiled, looked_up):
+        assert np.max(np.abs(_db(f.power()) - _db(ref.power()))) < TOL_DB
+    assert not np.array_equal(compiled.re, np.zeros_like(compiled.re))
