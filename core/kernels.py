@@ -177,7 +177,7 @@ def status() -> str:
     if "error" in _WARM_INFO:
         return f"numpy path (the compiled kernel failed to build: {_WARM_INFO['error']})"
     if _WARMING.is_set() and not _READY.is_set():
-        return "numpy path while the compiled kernel is prepared (first start on a machine: about 30-60 s)"
+        return "numpy path while the compiled kernel is prepared (first start on a machine: about 30-70 s)"
     return f"compiled kernel (numba {numba.__version__})"
 
 

@@ -6,7 +6,8 @@ The source tree is copied, built into a wheel without network (``pip wheel --no-
 numpy, PySide6 and the other dependencies come from the interpreter running the tests). From a
 temporary folder outside the checkout, the venv's own ``wheelreach`` then checks the default sample,
 runs ``bench --quick`` and takes an offscreen screenshot of the desktop program on the default
-sample; the packages it imports are asserted to be the venv's installed copies, not the checkout.
+sample (on the numpy path: the compiled kernels are tested in the checkout); the packages it imports are
+asserted to be the venv's installed copies, not the checkout.
 
 Marked ``slow`` (about 30-60 s on 2 cores) but part of the default suite; ``-m "not slow"`` skips it.
 """
@@ -47,8 +48,10 @@ def installed(tmp_path_factory):
     src = base / "src"
     shutil.copytree(ROOT, src, ignore=IGNORE)
     env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "PYTHONHOME", "VIRTUAL_ENV")}
+    # the numpy path: the compiled kernels are tested in the checkout (tests/test_kernels.py), and compiling them
+    # again for this copy would add about a minute to the suite
     env.update(QT_QPA_PLATFORM="offscreen", PIP_NO_INPUT="1", PIP_DISABLE_PIP_VERSION_CHECK="1",
-               WHEELREACH_CACHE=str(base / "cache"))
+               WHEELREACH_CACHE=str(base / "cache"), WHEELREACH_KERNEL="numpy")
     dist = base / "dist"
     _run([sys.executable, "-m", "pip", "wheel", "--no-deps", "--no-build-isolation", "--no-index", "-q", "-w", dist,
           src], cwd=base, env=env)
