@@ -123,7 +123,7 @@ class _Pairs:
         self.wheel = np.tile(np.arange(W), S)
         self.spots, self.axes, self.spot_bits = spots, axes, spot_bits
 
-    def subset(self, idx: np.ndarray) -> "_Pairs":
+    def subset(self, idx: np.ndarray) -> _Pairs:
         """The pairs ``idx`` only."""
         sub = object.__new__(_Pairs)
         sub.__dict__.update(self.__dict__)
@@ -165,7 +165,7 @@ class _Pairs:
         return LinkField(f.re.reshape(P, K), f.im.reshape(P, K), f.floor2.reshape(P, K), d, f.fade_q)
 
 
-def _golden(pairs: "_Pairs", best_p: np.ndarray, best_t: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
+def _golden(pairs: _Pairs, best_p: np.ndarray, best_t: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
     """GOLDEN_STEPS golden-section steps on [best_t - step, best_t + step] for every pair; the best
     power and angle seen (never worse than the given ones). Arrays (n,)."""
     lo, hi = best_t - step, best_t + step
