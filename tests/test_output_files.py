@@ -205,9 +205,12 @@ def test_a_report_from_the_command_line_follows_the_umask(car):
 
 
 # ----- temporary files on every exit path --------------------------------------------------------
+# the writer takes SIGINT as a program run from a terminal does: a shell without job control starts background
+# commands with SIGINT ignored, and the child would inherit that when the suite itself runs in the background
 _WRITER = textwrap.dedent("""
-    import sys, time
+    import signal, sys, time
     from core.files import atomic_path, install_signal_cleanup
+    signal.signal(signal.SIGINT, signal.default_int_handler)
     install_signal_cleanup()
     with atomic_path(sys.argv[1]) as tmp:
         with open(tmp, "w") as f:
