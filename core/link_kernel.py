@@ -591,6 +591,24 @@ def _table_fields(scene, wheel_index, theta, src, s_axis, dst, r_axis):
     return e_dir, e_road
 
 
+def _receiver_inputs(scene, points, axes, spot_bits, diffuse_factor):
+    """The kernel's per-receiver inputs for receivers at ``points`` (N, 3) with axes (N, 3): hull membership
+    bits (computed when the road ray needs them and none were given), the cavity's spot factor (computed when
+    the scene has a cavity and none was given), both as flat contiguous arrays of N, and whether the scene has
+    a cavity."""
+    n = len(points)
+    if scene.ground_reflection and spot_bits is None:
+        spot_bits = kernels.start_bits(scene.hull, points)
+    spot_bits = _flat(np.asarray(0 if spot_bits is None else spot_bits, np.int64).reshape(-1), (n,), np.int64)
+    _, has_cav = _options(scene)
+    if has_cav and diffuse_factor is None:
+        from core.cavity import spot_factor
+
+        diffuse_factor = spot_factor(scene, points, axes)
+    dfac = _flat(np.asarray(0.0 if diffuse_factor is None else diffuse_factor, float).reshape(-1), (n,))
+    return spot_bits, dfac, has_cav
+
+
 def link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_bits=None, diffuse_factor=None):
     """core.links.link_field (same arguments, same :class:`core.links.LinkField`) by the compiled kernel."""
     src = np.asarray(src, float).reshape(-1, 3)
@@ -602,15 +620,7 @@ def link_field(scene, wheel_index, theta, src, s_axis, bits0, dst, r_axis, spot_
     r_axis = _flat(np.asarray(r_axis, float).reshape(-1, 3), (n, 3))
     bits0 = _flat(np.asarray(bits0, np.int64).reshape(-1), (n,), np.int64)
     wheel = _flat(np.asarray(wheel_index, np.int64).reshape(-1), (n,), np.int64)
-    if scene.ground_reflection and spot_bits is None:
-        spot_bits = kernels.start_bits(scene.hull, dst)
-    spot_bits = _flat(np.asarray(0 if spot_bits is None else spot_bits, np.int64).reshape(-1), (n,), np.int64)
-    _, has_cav = _options(scene)
-    if has_cav and diffuse_factor is None:
-        from core.cavity import spot_factor
-
-        diffuse_factor = spot_factor(scene, dst, r_axis)
-    dfac = _flat(np.asarray(0.0 if diffuse_factor is None else diffuse_factor, float).reshape(-1), (n,))
+    spot_bits, dfac, has_cav = _receiver_inputs(scene, dst, r_axis, spot_bits, diffuse_factor)
     e_dir = e_road = _NO_FIELD
     if scene.sensor_kind == "table" and n and _compiled_tables(scene) is None:
         e_dir, e_road = _table_fields(scene, wheel_index, theta, src, s_axis, dst, r_axis)
@@ -631,15 +641,7 @@ def turn_fields(scene, spots, axes, spot_bits=None, spot_diffuse=None):
     bits0 = _flat(scene.sensor_bits.reshape(-1), (m,), np.int64)
     theta = _flat(np.broadcast_to(scene.angles_rad[None, :], (W, A)).reshape(-1), (m,))
     wheel = _flat(np.repeat(np.arange(W), A), (m,), np.int64)
-    if scene.ground_reflection and spot_bits is None:
-        spot_bits = kernels.start_bits(scene.hull, spots)
-    spot_bits = _flat(np.asarray(0 if spot_bits is None else spot_bits, np.int64).reshape(-1), (S,), np.int64)
-    _, has_cav = _options(scene)
-    if has_cav and spot_diffuse is None:
-        from core.cavity import spot_factor
-
-        spot_diffuse = spot_factor(scene, spots, axes)
-    dfac = _flat(np.asarray(0.0 if spot_diffuse is None else spot_diffuse, float).reshape(-1), (S,))
+    spot_bits, dfac, has_cav = _receiver_inputs(scene, spots, axes, spot_bits, spot_diffuse)
     e_dir = e_road = _NO_FIELD
     if scene.sensor_kind == "table" and S and _compiled_tables(scene) is None:
         idx_s = np.repeat(np.arange(S), m)
