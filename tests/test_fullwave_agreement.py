@@ -247,13 +247,10 @@ def _pairs_across_halves(body: str, config: str) -> list[tuple[float, bool]]:
         return turn_statistics(frequency_average_db(lv[sel]))["median"]["spot"]
 
     whole, low, high = medians(slice(None)), medians(slice(0, n // 2)), medians(slice((n + 1) // 2, None))
-    out = []
-    for i in range(len(whole)):
-        for j in range(i + 1, len(whole)):
-            sign = np.sign(whole[i] - whole[j])
-            out.append((abs(whole[i] - whole[j]),
-                        bool(np.sign(low[i] - low[j]) == sign and np.sign(high[i] - high[j]) == sign)))
-    return out
+    i, j = np.triu_indices(len(whole), 1)
+    sign = np.sign(whole[i] - whole[j])
+    kept = (np.sign(low[i] - low[j]) == sign) & (np.sign(high[i] - high[j]) == sign)
+    return [(float(g), bool(k)) for g, k in zip(np.abs(whole[i] - whole[j]), kept)]
 
 
 @pytest.mark.parametrize("body, config", [*WIDE, ("hatchback", "l8_contents_wide")])
