@@ -400,7 +400,7 @@ if numba is not None:
     def _segments(i_lo, i_hi, out, a, b, bits0_arr, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
                   arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
                   default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d,
-                  a_m=0, b_m=0, b_off=0, out_off=0):
+                  a_m, b_m, b_off, out_off):
         """Body loss of the segments a -> b, i in [i_lo, i_hi), into out[i - out_off] (one chunk of the parallel
         loop). Segment i runs from a[_row(i, a_m, 0)] (start bits from the same row of bits0_arr) to
         b[_row(i, b_m, b_off)]: so the link kernel (core.link_kernel) pairs sensor states with receivers without
@@ -563,10 +563,11 @@ if numba is not None:
         n = a.shape[0]
         out = np.zeros(n)
         cap = top_seg.shape[0] + side_seg.shape[0] + 4 * arch.shape[0] + wh.shape[0] + 1
-        _segments(0, n, out, a, b, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem,
+        zero = np.int64(0)  # not the literal 0: one compiled signature of _segments for every caller
+        _segments(zero, n, out, a, b, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem,
                   tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box, default_loss,
                   wheelhouse_loss, lam, n_samples, np.empty(cap), np.empty(cap, np.int64), np.empty(cap, np.int64),
-                  np.empty(cap), np.empty(cap), np.empty(cap, np.int8))
+                  np.empty(cap), np.empty(cap), np.empty(cap, np.int8), zero, zero, zero, zero)
         return out
 
     @njit(cache=True, error_model="numpy", nogil=True, parallel=True)
@@ -576,6 +577,7 @@ if numba is not None:
         n = a.shape[0]
         out = np.zeros(n)
         cap = top_seg.shape[0] + side_seg.shape[0] + 4 * arch.shape[0] + wh.shape[0] + 1
+        zero = np.int64(0)
         for c in prange(n_chunks):
             ev_t = np.empty(cap)
             ev_b = np.empty(cap, np.int64)
@@ -587,7 +589,7 @@ if numba is not None:
             hi = (c + 1) * n // n_chunks
             _segments(lo, hi, out, a, b, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem,
                       tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box, default_loss,
-                      wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d)
+                      wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, zero, zero, zero, zero)
         return out
 
 

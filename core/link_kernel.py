@@ -220,9 +220,10 @@ if kernels.numba is not None:
         two_pi = 2.0 * np.pi
         m_s = max(0, grid_m)  # _segments' row modes: sensor rows i % grid_m, receiver rows i // grid_m
         m_r = -grid_m if grid_m > 0 else 0
+        zero = np.int64(0)  # not the literal 0: literal arguments would compile _segments once more per pattern
         _segments(lo, hi, body[0], src, dst, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off, arch_mem,
                   tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box, default_loss,
-                  wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_s, m_r, 0, lo)
+                  wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_s, m_r, zero, lo)
         if road:
             for i in range(lo, hi):
                 si = i % grid_m if grid_m > 0 else i
@@ -236,12 +237,12 @@ if kernels.numba is not None:
             # sensor -> road point, and the receiver -> road point (traced from the receiver, its own bits)
             _segments(lo, hi, body[1], src, g_pt, bits0, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
                       arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
-                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_s, 0, lo,
-                      lo)
+                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_s, zero,
+                      lo, lo)
             _segments(lo, hi, body[2], dst, g_pt, spot_bits, top_seg, side_seg, wh, arch, arch_bits, arch_mem_off,
                       arch_mem, tz_pip, tz_off, tz_zmin, tz_zmax, tz_loss, sz_pip, sz_off, sz_loss, env, box,
-                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_r, 0, lo,
-                      lo)
+                      default_loss, wheelhouse_loss, lam, n_samples, ev_t, ev_b, ev_o, fl_t, fl_l, fl_d, m_r, zero,
+                      lo, lo)
         for i in range(lo, hi):
             if grid_m > 0:
                 si = i % grid_m
@@ -353,7 +354,7 @@ if kernels.numba is not None:
         """:func:`_links_parallel` on the calling thread (small calls: no thread-pool launch)."""
         out = np.zeros((4, n))
         cap = hullt[0].shape[0] + hullt[1].shape[0] + 4 * hullt[3].shape[0] + hullt[2].shape[0] + 1
-        _chunk(0, n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, tabs,
+        _chunk(np.int64(0), n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, tabs,
                wheels, cav_db, opt, eps, hullt, n_samples, out, np.empty(cap), np.empty(cap, np.int64),
                np.empty(cap, np.int64), np.empty(cap), np.empty(cap), np.empty(cap, np.int8), np.zeros((3, n)),
                np.zeros((n, 3)))
