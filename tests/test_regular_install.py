@@ -4,12 +4,12 @@ The source tree is copied, built into a wheel without network (``pip wheel --no-
 --no-build-isolation``, with the build tools of the test extra), and the wheel is installed with
 ``pip install --no-deps --no-index`` into a fresh venv created with ``--system-site-packages`` (so
 numpy, PySide6 and the other dependencies come from the interpreter running the tests). From a
-temporary folder outside the checkout, the venv's own ``wheelreach`` then checks the default sample,
-runs ``bench --quick`` and takes an offscreen screenshot of the desktop program on the default
-sample (on the numpy path: the compiled kernels are tested in the checkout); the packages it imports are
+temporary folder outside the checkout, the venv's own ``wheelreach`` then checks and ranks the default
+sample (its NEC-2 wheel tables are package data) and takes an offscreen screenshot of the desktop
+program on the default sample (on the numpy path: the compiled kernels are tested in the checkout); the packages it imports are
 asserted to be the venv's installed copies, not the checkout.
 
-Marked ``slow`` (about 30-60 s on 2 cores) but part of the default suite; ``-m "not slow"`` skips it.
+Marked ``slow`` (about 20-30 s on 2 cores) but part of the default suite; ``-m "not slow"`` skips it.
 """
 
 from __future__ import annotations
@@ -79,17 +79,20 @@ def test_installed_package_is_the_one_imported(installed):
     assert exists == "True"
 
 
-def test_installed_program_checks_the_default_sample_and_benches(installed):
+def test_installed_program_checks_and_ranks_the_default_sample(installed):
     target, env, work = installed
     exe = target / "bin" / "wheelreach"
     sample = _run([target / "bin" / "python", "-c", "import core.samples as s; print(s.DEFAULT_SAMPLE)"],
                   cwd=work, env=env).stdout.strip()
     r = _run([exe, "check", sample], cwd=work, env=env)
     assert r.stdout.startswith(f"ok   {sample}: ") and "site-packages" in sample
-    # the engine's figures themselves are checked by tests/test_cli_bench.py: here one quick model, no desktop
-    r = _run([exe, "bench", "--quick", "--quiet", "--no-desktop", "--wheel-model", "knife_edge"], cwd=work, env=env)
-    assert f"({sample})" in r.stdout  # the default sample, found through core.samples
-    assert r.stdout.splitlines()[-1].startswith("heatmap_s=")
+    # the engine's numbers are checked in the checkout: here the installed copy finds its package data
+    # (the sample and the NEC-2 wheel tables of core/data) and ranks the sample's spots
+    r = _run([exe, "rank", sample, "--quiet"], cwd=work, env=env)
+    lines = r.stdout.splitlines()
+    assert "wheel model: installed pattern: NEC-2 table" in lines[0], lines[0]
+    assert any(line.split()[:1] == ["1"] for line in lines), r.stdout  # a ranked first spot
+    assert "confirm by detailed simulation and vehicle measurement" in r.stdout
 
 
 def test_installed_program_opens_the_default_sample_offscreen(installed):
