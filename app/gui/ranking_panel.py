@@ -7,6 +7,7 @@ table from the document's ``SpotScores`` in the order of ``SpotScores.order()``,
 
 from __future__ import annotations
 
+import math
 from typing import ClassVar
 
 import numpy as np
@@ -454,11 +455,12 @@ class HeatmapPanel(QWidget):
 def _level_range(sc, i: int, legend_share: float = 0.3) -> tuple[float, float]:
     """y range of the level plot, dBm: the spot's levels and the sensitivity with 5 dB below, and the top
     ``legend_share`` of the plot's height (the wheel legend's, :meth:`SpotFigures._legend_share`) above the
-    highest curve, at least 12 dB."""
-    lo = min(float(sc.levels_dbm[i].min()), sc.sensitivity_dbm) - 5.0
+    highest curve, at least 12 dB. Both ends widened to whole multiples of 2 dB: while a spot is dragged the
+    range (and so the axes) stays put unless the levels move by more than that."""
+    lo = math.floor((min(float(sc.levels_dbm[i].min()), sc.sensitivity_dbm) - 5.0) / 2.0) * 2.0
     top = max(float(sc.levels_dbm[i].max()), sc.sensitivity_dbm + sc.required_margin_db)
     f = min(max(legend_share, 0.0), 0.6)
-    return lo, max(top + 12.0, (top - f * lo) / (1.0 - f))
+    return lo, math.ceil(max(top + 12.0, (top - f * lo) / (1.0 - f)) / 2.0) * 2.0
 
 
 class SpotTable(QTableWidget):
@@ -530,24 +532,21 @@ class SpotTable(QTableWidget):
                     cells = (f"\u2248 {rank + 1}" if i in tied else str(rank + 1), str(i + 1), sc.names[i], mt,
                              sc.wheel_ids[w], f"{sc.worst_angle_deg[i, w]:.0f}")
                 for c, text in enumerate(cells):
-                    item = QTableWidgetItem(text)
-                    if c in (0, 1, 3, 5):
-                        item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                    tip, back = "", None
                     if c == 0 and i in tied:
-                        item.setToolTip(f"within {RANK_RESOLUTION_DB:g} dB of the best margin: not ranked apart from the "
-                                        "best (the model's resolution against a whole-vehicle full-wave reference, "
-                                        "docs/VALIDATION.md)")
+                        tip = (f"within {RANK_RESOLUTION_DB:g} dB of the best margin: not ranked apart from the best "
+                               "(the model's resolution against a whole-vehicle full-wave reference, "
+                               "docs/VALIDATION.md)")
                     if c == 2:
-                        item.setToolTip(f"spot {i + 1}: {sc.names[i]}")
+                        tip = f"spot {i + 1}: {sc.names[i]}"
                     if c == 3 and pending[i]:
-                        item.setToolTip("being scored in the background")
+                        tip = "being scored in the background"
                     elif c == 3:
-                        col = self._cmap.map(np.clip(0.5 + 0.5 * m / MARGIN_RANGE_DB, 0, 1), mode="qcolor")
-                        col.setAlpha(150)
-                        item.setBackground(col)
+                        back = self._cmap.map(np.clip(0.5 + 0.5 * m / MARGIN_RANGE_DB, 0, 1), mode="qcolor")
+                        back.setAlpha(150)
                         if sc.near_field is not None and sc.near_field[i]:
-                            item.setToolTip("a sensor comes nearer than lambda/2pi: near field, indicative only")
-                    self.setItem(rank, c, item)
+                            tip = "a sensor comes nearer than lambda/2pi: near field, indicative only"
+                    self._put(rank, c, text, tip, right=c in (0, 1, 3, 5), background=back)
                 self._set_placement(rank, pl.status[i], pl.flag(i), pl.message(i))
                 self._set_fullwave(rank, sc.names[i])
                 self._set_axis(rank, sc.names[i])
@@ -555,12 +554,32 @@ class SpotTable(QTableWidget):
             self._loading = False
         self._select_row(self.doc.selected)
 
+    def _put(self, row: int, col: int, text: str, tip: str = "", right: bool = False, background=None,
+             foreground=None, bold: bool = False) -> None:
+        """Cell (row, col) shows exactly this: its item is updated in place (Qt skips a value that did not
+        change, so a refresh after one spot moved repaints and re-measures only what changed; a new item
+        per cell made the columns re-measure on every one of them)."""
+        item = self.item(row, col)
+        if item is None:
+            item = QTableWidgetItem()
+            self.setItem(row, col, item)
+        item.setText(text)
+        item.setToolTip(tip)
+        align = Qt.AlignmentFlag.AlignRight if right else Qt.AlignmentFlag.AlignLeft
+        item.setTextAlignment(align | Qt.AlignmentFlag.AlignVCenter)
+        item.setData(Qt.ItemDataRole.BackgroundRole, background)
+        item.setData(Qt.ItemDataRole.ForegroundRole, foreground)
+        if item.font().bold() != bold:
+            font = item.font()
+            font.setBold(bold)
+            item.setFont(font)
+
     def _set_axis(self, row: int, name: str) -> None:
         own = spot_axis_note(self.doc.vehicle, name)
-        item = QTableWidgetItem("own" if own else "setting")  # the vector in the tooltip: the column stays narrow
-        item.setToolTip(f"This spot's own receiver antenna axis {own[4:]} overrides the Receiver antenna setting"
-                        if own else "This spot uses the Receiver antenna setting's axis")
-        self.setItem(row, self.AXIS_COLUMN, item)
+        # the vector in the tooltip: the column stays narrow
+        self._put(row, self.AXIS_COLUMN, "own" if own else "setting",
+                  f"This spot's own receiver antenna axis {own[4:]} overrides the Receiver antenna setting"
+                  if own else "This spot uses the Receiver antenna setting's axis")
 
     def fullwave_current(self) -> dict | None:
         """The document's full-wave confirmation when it was run on the vehicle as it stands, else None."""
@@ -574,26 +593,20 @@ class SpotTable(QTableWidget):
         if fw is None:
             return
         if name not in fw["margins"]:
-            item = QTableWidgetItem("")
-            item.setToolTip("not among the spots confirmed with the full-wave model")
+            self._put(row, self.FULLWAVE_COLUMN, "", "not among the spots confirmed with the full-wave model")
         else:
-            item = QTableWidgetItem(f"{fw['margins'][name]:+.1f}")
-            item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-            item.setToolTip(f"full-wave margin {fw['margins'][name]:+.1f} dB against the fast engine's "
-                            f"{fw['fast'][name]:+.1f} dB, both in free space (the margin column includes the road "
-                            f"ray when it is on); full-wave setup: {fw['setup']}")
-        self.setItem(row, self.FULLWAVE_COLUMN, item)
+            self._put(row, self.FULLWAVE_COLUMN, f"{fw['margins'][name]:+.1f}",
+                      f"full-wave margin {fw['margins'][name]:+.1f} dB against the fast engine's "
+                      f"{fw['fast'][name]:+.1f} dB, both in free space (the margin column includes the road "
+                      f"ray when it is on); full-wave setup: {fw['setup']}", right=True)
 
     def _set_placement(self, row: int, status: str, flag: str, message: str) -> None:
         """The placement cell (core.placement): red for a spot that is not a receiver position, orange near a panel."""
-        item = QTableWidgetItem(flag or "ok")
-        if status != INSIDE:
-            item.setForeground(QColor(170, 0, 0) if status != NEAR_SURFACE else QColor(170, 90, 0))
-            font = item.font()
-            font.setBold(True)
-            item.setFont(font)
-            item.setToolTip(message)
-        self.setItem(row, self.PLACEMENT_COLUMN, item)
+        if status == INSIDE:
+            self._put(row, self.PLACEMENT_COLUMN, flag or "ok")
+        else:
+            self._put(row, self.PLACEMENT_COLUMN, flag or "ok", message, bold=True,
+                      foreground=QColor(170, 0, 0) if status != NEAR_SURFACE else QColor(170, 90, 0))
 
     def _live(self, name: str, sc) -> None:
         """A spot is being dragged: update its placement cell (one point; cheap)."""
@@ -664,6 +677,10 @@ class SpotFigures(QWidget):
         self._burst_task: Task | None = None
         self._levels_drawn = None  # what the level figure shows (_levels_key)
         self._level_items = None  # (wheel ids, sensitivity, required margin, curves, worst-case mark) drawn
+        # the plot items of the burst and separation figures, kept while the wheels stay the same: a redraw
+        # sets their data (new items, legend entries and all, made a drop cost tens of ms more)
+        self._burst_items = None  # (wheel ids, right-side ids, curves, parked squares, repeat lines, need line)
+        self._separation_items = None  # (wheel count, range bars, quartile boxes, medians)
         self._refresh_pending = False  # scores and selection often change together: draw once
         doc.scoresReady.connect(self.schedule_refresh)
         doc.selectionChanged.connect(lambda _n: self.schedule_refresh())
@@ -692,9 +709,11 @@ class SpotFigures(QWidget):
     def refresh(self) -> None:
         self._refresh_pending = False
         i = self._row()
-        for p in (self.burst, self.separation):
-            p.clear()
+        self._hide_burst()  # the figure waits for its worker: nothing of the last spot is shown meanwhile
         if i is None or self.doc.pending[i]:
+            for p in (self.burst, self.separation):
+                p.clear()
+            self._burst_items = self._separation_items = None
             self.levels.clear()
             self._levels_drawn = self._level_items = self._range_of = None
         self._drop_burst()
@@ -837,20 +856,15 @@ class SpotFigures(QWidget):
         """Burst success vs speed; when every burst gets through, the burst margin instead (the extra loss the
         bursts still survive, core.burst), so the figure says how much is to spare rather than a flat 100 %."""
         p = self.burst
-        p.clear()
         self.burst_result = r
         kmh = r.speeds_mps * KMH_PER_MPS
         all_pass = r.margin_db is not None and float(r.success.min()) >= 1.0
         data = r.margin_db if all_pass else 100 * r.success
         parked = r.parked_margin_db if all_pass else 100 * r.parked
-        right = {g.id for g in self.doc.scene.wheels if g.outboard_sign < 0}
-        self.burst_legend.setColumnCount(max(1, min(len(r.wheel_ids), 6)))  # one row: less of the figure covered
-        for w, wid in enumerate(r.wheel_ids):
-            col = wheel_colour(w)
-            # right-side wheels dashed: mirrored wheels give the same curve, both stay visible
-            style = Qt.PenStyle.DashLine if wid in right else Qt.PenStyle.SolidLine
-            p.plot(kmh, data[w], pen=pg.mkPen(col, width=1.8, style=style), name=wid)
-            p.plot([0.0], [parked[w]], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k")
+        _ids, _right, curves, squares, repeats, need_line = self._burst_plot_items(r)
+        for w in range(len(r.wheel_ids)):
+            curves[w].setData(kmh, data[w])
+            squares[w].setData([0.0], [parked[w]])
         # one grey dotted line per speed at which the frames repeat, the lowest MAX_REPEAT_MARKERS of them (one item)
         lowest = [np.asarray(rs, float)[:MAX_REPEAT_MARKERS] for rs in r.resonant_mps]  # ascending per wheel
         speeds = np.unique(np.round(np.concatenate(lowest), 6)) if lowest else np.zeros(0)
@@ -858,14 +872,15 @@ class SpotFigures(QWidget):
         total = int(sum(counts)) if len(counts) else sum(len(rs) for rs in r.resonant_mps)
         shown = speeds[:MAX_REPEAT_MARKERS] * KMH_PER_MPS
         repeat = "dotted: frames repeat" + (f" (lowest {len(shown):,} of {total:,} drawn)" if len(shown) < total else "")
-        if len(shown):
-            lo_y, hi_y = (min(0.0, float(data.min())) - 50, float(data.max()) + 50) if all_pass else (0.0, 100.0)
-            p.plot(np.repeat(shown, 2), np.tile([lo_y, hi_y], len(shown)), connect="pairs",
-                   pen=pg.mkPen(120, 120, 120, width=1, style=Qt.PenStyle.DotLine))
+        lo_y, hi_y = (min(0.0, float(data.min())) - 50, float(data.max()) + 50) if all_pass else (0.0, 100.0)
+        repeats.setData(np.repeat(shown, 2), np.tile([lo_y, hi_y], len(shown)))
+        for item in (*curves, *squares, repeats):
+            item.setVisible(True)
+        need_line.setVisible(all_pass)
         rad = self.doc.vehicle.radio
         if all_pass:
             need = self.doc.scores.required_margin_db
-            p.addItem(pg.InfiniteLine(need, angle=0, pen=pg.mkPen(60, 60, 60, width=1, style=Qt.PenStyle.DashLine)))
+            need_line.setValue(need)
             lo, hi = min(0.0, float(data.min()), need) - 2, max(float(data.max()), need) + 4
             f = min(0.5, self._legend_share(self.burst, self.burst_legend))  # room below for the wheel legend
             p.setYRange(lo - f * (hi - lo) / (1.0 - f), hi, padding=0)
@@ -881,6 +896,36 @@ class SpotFigures(QWidget):
                        f"squares: parked<br>{repeat}", size="8pt")
         p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
 
+    def _burst_plot_items(self, r) -> tuple:
+        """The burst figure's items for these wheels: the ones drawn last time when the wheels are the same
+        (their data is set again), else new ones (right-side wheels dashed: mirrored wheels give the same
+        curve, both stay visible)."""
+        right = frozenset(g.id for g in self.doc.scene.wheels if g.outboard_sign < 0)
+        ids = tuple(r.wheel_ids)
+        if self._burst_items is not None and self._burst_items[:2] == (ids, right):
+            return self._burst_items
+        p = self.burst
+        p.clear()
+        self.burst_legend.setColumnCount(max(1, min(len(ids), 6)))  # one row: less of the figure covered
+        curves, squares = [], []
+        for w, wid in enumerate(ids):
+            col = wheel_colour(w)
+            style = Qt.PenStyle.DashLine if wid in right else Qt.PenStyle.SolidLine
+            curves.append(p.plot([], [], pen=pg.mkPen(col, width=1.8, style=style), name=wid))
+            squares.append(p.plot([], [], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k"))
+        repeats = p.plot([], [], connect="pairs", pen=pg.mkPen(120, 120, 120, width=1, style=Qt.PenStyle.DotLine))
+        need_line = pg.InfiniteLine(0.0, angle=0, pen=pg.mkPen(60, 60, 60, width=1, style=Qt.PenStyle.DashLine))
+        need_line.setVisible(False)
+        p.addItem(need_line)
+        self._burst_items = (ids, right, curves, squares, repeats, need_line)
+        return self._burst_items
+
+    def _hide_burst(self) -> None:
+        """Hide the burst curves while the next spot's are computed (kept for reuse, not removed)."""
+        if self._burst_items is not None:
+            for item in (*self._burst_items[2], *self._burst_items[3], *self._burst_items[4:]):
+                item.setVisible(False)
+
     def _draw_separation(self, sc, i: int) -> None:
         p = self.separation
         lv = sc.levels_dbm[i]
@@ -889,10 +934,20 @@ class SpotFigures(QWidget):
         x = np.arange(len(sc.wheel_ids))
         q25, q75 = np.percentile(lv, 25, axis=1), np.percentile(lv, 75, axis=1)
         brushes = [pg.mkBrush(wheel_colour(w)) for w in x]
-        p.addItem(pg.ErrorBarItem(x=x, y=(lv.min(axis=1) + lv.max(axis=1)) / 2, height=lv.max(axis=1) - lv.min(axis=1),
-                                  beam=0.15, pen=pg.mkPen(80, 80, 80)))
-        p.addItem(pg.BarGraphItem(x=x, y0=q25, y1=q75, width=0.45, brushes=brushes, pen=pg.mkPen(40, 40, 40)))
-        p.plot(x, d.medians_dbm, pen=None, symbol="_", symbolSize=26, symbolPen=pg.mkPen("k", width=2.5))
+        mid, span = (lv.min(axis=1) + lv.max(axis=1)) / 2, lv.max(axis=1) - lv.min(axis=1)
+        items = self._separation_items
+        if items is not None and items[0] == len(x):  # the same wheels: new data into the items drawn
+            items[1].setData(x=x, y=mid, height=span)
+            items[2].setOpts(x=x, y0=q25, y1=q75, brushes=brushes)
+            items[3].setData(x, d.medians_dbm)
+        else:
+            p.clear()
+            bars = pg.ErrorBarItem(x=x, y=mid, height=span, beam=0.15, pen=pg.mkPen(80, 80, 80))
+            boxes = pg.BarGraphItem(x=x, y0=q25, y1=q75, width=0.45, brushes=brushes, pen=pg.mkPen(40, 40, 40))
+            p.addItem(bars)
+            p.addItem(boxes)
+            medians = p.plot(x, d.medians_dbm, pen=None, symbol="_", symbolSize=26, symbolPen=pg.mkPen("k", width=2.5))
+            self._separation_items = (len(x), bars, boxes, medians)
         p.getAxis("bottom").setTicks([[(int(k), wid) for k, wid in zip(x, sc.wheel_ids)]])
         p.setXRange(-0.7, len(x) - 0.3, padding=0)
         if len(x) > 1:
