@@ -325,8 +325,13 @@ class RadioPanel(QWidget):
     def _fill_materials(self) -> None:
         v = self.doc.vehicle
         names = list(BUILTIN_MATERIALS) + sorted(set(v.materials) - set(BUILTIN_MATERIALS))
-        self.materials.setRowCount(len(names))
         f = v.radio.frequency_hz
+        # rebuilt only when what it shows changed (a spot drop changes the vehicle, not its materials)
+        key = (f, tuple((n, v.materials[n].model_dump_json() if n in v.materials else None) for n in names))
+        if key == getattr(self, "_materials_key", None):
+            return
+        self._materials_key = key
+        self.materials.setRowCount(len(names))
         for row, name in enumerate(names):
             item = QTableWidgetItem(name)
             item.setFlags(item.flags() & ~Qt.ItemFlag.ItemIsEditable)
