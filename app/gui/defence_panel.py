@@ -153,6 +153,13 @@ class DefencePanel(QWidget):
             self.header.setText("Select a spot to see its link budget by term and what its margin depends on.")
             return
         i = sc.names.index(name)
+        if doc.pending[i]:  # no levels yet (scored in the background): analysed when its scores arrive
+            self.case = None
+            self.table.setRowCount(0)
+            self.tornado.set_sensitivity(None)
+            self.measure.setText("")
+            self.header.setText(f"<i>'{name}' is being scored in the background; its link budget follows.</i>")
+            return
         axes = vehicle_spot_arrays(doc.vehicle)[2]
         scene = doc.scene
         task = Task(lambda _p, _c: defend(scene, sc, axes, [i]), f"link budget of '{name}'")

@@ -560,9 +560,9 @@ class SpotTable(QTableWidget):
         change, so a refresh after one spot moved repaints and re-measures only what changed; a new item
         per cell made the columns re-measure on every one of them)."""
         item = self.item(row, col)
-        if item is None:
+        fresh = item is None  # a new item is filled before it joins the table: one change, not six
+        if fresh:
             item = QTableWidgetItem()
-            self.setItem(row, col, item)
         item.setText(text)
         item.setToolTip(tip)
         align = Qt.AlignmentFlag.AlignRight if right else Qt.AlignmentFlag.AlignLeft
@@ -573,6 +573,8 @@ class SpotTable(QTableWidget):
             font = item.font()
             font.setBold(bold)
             item.setFont(font)
+        if fresh:
+            self.setItem(row, col, item)
 
     def _set_axis(self, row: int, name: str) -> None:
         own = spot_axis_note(self.doc.vehicle, name)

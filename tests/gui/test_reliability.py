@@ -210,11 +210,18 @@ def test_the_largest_file_opens_at_once_and_scores_in_the_background(window, qtb
     doc = window.doc
     took, gap = responsiveness(lambda: doc.replace(v, None))
     assert took < 5.0  # the scene is built at once (about 0.3 s); the 4.8 million links are not
-    assert gap < 2 * ANSWER_S  # the two views of 16 wheels and 500 spots are drawn once
+    # the two views of 16 wheels and 500 spots and the table of 500 rows are drawn, each once, one per
+    # turn of the loop (about 0.3-0.9 s longest gap alone on 2 cores, up to 1.4 s while the suite's other
+    # worker runs); the fault this guards against held the loop for the whole scoring (tens of seconds)
+    assert gap < ACTION_S
     assert doc.scoring and doc.pending.all()
     qtbot.waitUntil(window.work_bar.isVisible, timeout=5_000)
     assert "being computed" in window.readout.text()
     assert window.ranking.table.item(0, 3).text() == "..."
+    # no link budget of a spot without levels yet (its worst angles are unknown): the dock says it waits
+    panel = window.defence_panel
+    qtbot.waitUntil(lambda: "being scored in the background" in panel.header.text(), timeout=5_000)
+    assert panel.task is None and panel.table.rowCount() == 0
     assert len(window.top.markers) <= 1  # one scatter item for 500 spots, a marker for the selected one only
     assert_responsive(lambda k: doc.select(v.spots[7 + k].name), tries=3)
     assert_responsive(window.close)
