@@ -220,6 +220,7 @@ def test_the_largest_file_opens_at_once_and_scores_in_the_background(window, qtb
     assert window.ranking.table.item(0, 3).text() == "..."
     # no link budget of a spot without levels yet (its worst angles are unknown): the dock says it waits
     panel = window.defence_panel
+    panel.set_active(True)  # as when its dock is shown (it analyses only while visible)
     qtbot.waitUntil(lambda: "being scored in the background" in panel.header.text(), timeout=5_000)
     assert panel.task is None and panel.table.rowCount() == 0
     assert len(window.top.markers) <= 1  # one scatter item for 500 spots, a marker for the selected one only
