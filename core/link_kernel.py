@@ -354,7 +354,8 @@ if kernels.numba is not None:
         """:func:`_links_parallel` on the calling thread (small calls: no thread-pool launch)."""
         out = np.zeros((4, n))
         cap = hullt[0].shape[0] + hullt[1].shape[0] + 4 * hullt[3].shape[0] + hullt[2].shape[0] + 1
-        _chunk(np.int64(0), n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, tabs,
+        zero = np.int64(0)  # not the literal 0: the parallel loop's _chunk signature, compiled once
+        _chunk(zero, n, grid_m, src, s_axis, bits0, theta, wheel, dst, r_axis, spot_bits, dfac, e_dir, e_road, tabs,
                wheels, cav_db, opt, eps, hullt, n_samples, out, np.empty(cap), np.empty(cap, np.int64),
                np.empty(cap, np.int64), np.empty(cap), np.empty(cap), np.empty(cap, np.int8), np.zeros((3, n)),
                np.zeros((n, 3)))

@@ -146,19 +146,11 @@ class DefencePanel(QWidget):
         name = doc.selected
         self._drop_task()
         if not name or name not in sc.names:
-            self.case = None
-            self.table.setRowCount(0)
-            self.tornado.set_sensitivity(None)
-            self.measure.setText("")
-            self.header.setText("Select a spot to see its link budget by term and what its margin depends on.")
+            self._clear("Select a spot to see its link budget by term and what its margin depends on.")
             return
         i = sc.names.index(name)
         if doc.pending[i]:  # no levels yet (scored in the background): analysed when its scores arrive
-            self.case = None
-            self.table.setRowCount(0)
-            self.tornado.set_sensitivity(None)
-            self.measure.setText("")
-            self.header.setText(f"<i>'{name}' is being scored in the background; its link budget follows.</i>")
+            self._clear(f"<i>'{name}' is being scored in the background; its link budget follows.</i>")
             return
         axes = vehicle_spot_arrays(doc.vehicle)[2]
         scene = doc.scene
@@ -167,6 +159,14 @@ class DefencePanel(QWidget):
         task.failed.connect(self._failed)
         self.task = task
         task.start()
+
+    def _clear(self, header: str) -> None:
+        """No analysis shown: an empty table and tornado, and ``header`` saying why."""
+        self.case = None
+        self.table.setRowCount(0)
+        self.tornado.set_sensitivity(None)
+        self.measure.setText("")
+        self.header.setText(header)
 
     def _drop_task(self) -> None:
         task, self.task = self.task, None

@@ -199,6 +199,7 @@ class RadioPanel(QWidget):
         g = QGroupBox("Panel crossing loss")
         v = QVBoxLayout(g)
         self.materials = QTableWidget(0, 3)
+        self._materials_key = None  # what the materials table shows (_fill_materials)
         self.materials.setHorizontalHeaderLabels(["material", "model dB", "file dB"])
         self.materials.verticalHeader().setVisible(False)
         self.materials.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
@@ -328,7 +329,7 @@ class RadioPanel(QWidget):
         f = v.radio.frequency_hz
         # rebuilt only when what it shows changed (a spot drop changes the vehicle, not its materials)
         key = (f, tuple((n, v.materials[n].model_dump_json() if n in v.materials else None) for n in names))
-        if key == getattr(self, "_materials_key", None):
+        if key == self._materials_key:
             return
         self._materials_key = key
         self.materials.setRowCount(len(names))
