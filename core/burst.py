@@ -64,16 +64,17 @@ def _best_frames(l0: np.ndarray, step_rad: np.ndarray, frames: int) -> np.ndarra
     (1 - r) l0[j + m] + r l0[j + m + 1] (indices modulo T): the same linear interpolation as
     np.interp on the level's own angles, without searching the angle for every frame."""
     T = len(l0)
-    j = np.arange(T)
     best = np.broadcast_to(l0, (len(step_rad), T)).copy()  # frame 0 sits on the start angle
     pos = np.outer(step_rad, np.arange(1, frames)) * (T / (2 * np.pi))  # (V, K-1) in start spacings
     m = np.floor(pos)
     r = pos - m
     m = m.astype(np.int64) % T
+    # row s of ``ahead`` is l0 read s start spacings ahead, l0[(j + s) % T] for every j: whole rows are
+    # gathered instead of one index per start angle
+    ahead = np.lib.stride_tricks.sliding_window_view(np.concatenate([l0, l0]), T)  # (T + 1, T), a view
     for k in range(frames - 1):
-        i0 = (j[None, :] + m[:, k, None]) % T
-        i1 = (i0 + 1) % T
-        lk = l0[i0] + r[:, k, None] * (l0[i1] - l0[i0])
+        a, b = ahead[m[:, k]], ahead[m[:, k] + 1]
+        lk = a + r[:, k, None] * (b - a)
         np.maximum(best, lk, out=best)
     return best
 

@@ -12,6 +12,7 @@ The model objects are frozen (immutable); an edit makes a new object with
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 import os
@@ -441,7 +442,10 @@ def _encodable(text: str) -> bool:
     return True
 
 
-def _polygon_problem(outline) -> str | None:
+@functools.lru_cache(maxsize=1024)
+def _polygon_problem(outline: tuple) -> str | None:
+    """What is wrong with a polygon outline (a tuple of (u, v) points, m), or None. Kept per outline: an
+    edit re-checks the whole vehicle, and every outline but the one edited is the same as before."""
     pts = np.asarray(outline, float)
     if len(pts) < 3:
         return "needs at least 3 points"

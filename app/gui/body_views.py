@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
+from pyqtgraph.graphicsItems.ROI import _PolyLineSegment  # the segment PolyLineROI builds (pyqtgraph 0.14)
 from PySide6.QtCore import QPointF, QRectF, Qt, QTimer, Signal
 from PySide6.QtGui import QBrush, QPen, QPolygonF
 from PySide6.QtWidgets import (
@@ -27,7 +28,7 @@ from PySide6.QtWidgets import (
 
 from app.gui import edits
 from app.gui.document import Document
-from app.gui.look import BODY_COLOUR, lock_aspect, material_colour
+from app.gui.look import BODY_COLOUR, lock_aspect, material_colour, show_grid
 from app.gui.properties_panel import axis_text, spot_axis_note
 from app.gui.tasks import run_soon
 from core.placement import INSIDE, NEAR_SURFACE, classify
@@ -171,7 +172,47 @@ class _HandleFreeEllipse(pg.EllipseROI):
             self.removeHandle(h)
 
 
-class _BodyOutline(pg.PolyLineROI):
+class _OutlineSegment(_PolyLineSegment):
+    """A segment of an editable outline that keeps its shape while its ends and the view's scale stay.
+
+    Qt asks every item of a view for its bounding rectangle on every repaint, and pyqtgraph's line
+    segment builds its shape (a band 4 px wide around the line) anew each time: about a third of the
+    repaint of a view while a spot is dragged. The shape depends on the two ends and on the view's
+    scale and rotation only (translation is ignored, as in ``pixelVectors``), so it is kept for those."""
+
+    _key: tuple | None = None
+    _path = None
+
+    def shape(self):
+        h1, h2 = (QGraphicsItem.pos(h["item"]) for h in self.handles)
+        dt = self.deviceTransform_()
+        key = None if dt is None else (h1.x(), h1.y(), h2.x(), h2.y(), dt.m11(), dt.m12(), dt.m21(), dt.m22())
+        if key is None or key != self._key:
+            self._path, self._key = super().shape(), key
+        return self._path
+
+
+class _Outline(pg.PolyLineROI):
+    """pyqtgraph's editable polygon, built from segments that keep their shape (``_OutlineSegment``)."""
+
+    def addSegment(self, h1, h2, index=None):
+        # pyqtgraph 0.14's PolyLineROI.addSegment, with the segment class replaced
+        seg = _OutlineSegment(handles=(h1, h2), pen=self.pen, hoverPen=self.hoverPen,
+                              parent=self, movable=False, antialias=self._antialias)
+        if index is None:
+            self.segments.append(seg)
+        else:
+            self.segments.insert(index, seg)
+        seg.sigClicked.connect(self.segmentClicked)
+        seg.setAcceptedMouseButtons(Qt.MouseButton.LeftButton)
+        seg.setZValue(self.zValue() + 1)
+        for h in seg.handles:
+            h["item"].setDeletable(True)
+            # the handles take left clicks too, so that a handle cannot be added on top of another
+            h["item"].setAcceptedMouseButtons(h["item"].acceptedMouseButtons() | Qt.MouseButton.LeftButton)
+
+
+class _BodyOutline(_Outline):
     """The body outline: a click on a segment adds a vertex there, except where the segment runs over a
     wheel - there the click selects the wheel (``wheel_at(point)`` names the wheel under a point of the
     view, m, or None), as a click anywhere else on the wheel does."""
@@ -211,7 +252,7 @@ class BodyView(QWidget):
 
         self.plot = pg.PlotWidget(background="w")
         lock_aspect(self.plot)
-        self.plot.showGrid(x=True, y=True, alpha=0.25)
+        show_grid(self.plot)
         vert = "y, left" if view == "top" else "z, up"
         for side, text in (("bottom", "x, forward"), ("left", vert)):
             ax = self.plot.getAxis(side)
@@ -346,7 +387,7 @@ class BodyView(QWidget):
             self._add(poly)
             seen.setdefault(z.material, _on_white(material_colour(z.material, 255), 0.45))
             if i == self.doc.selected_zone:
-                roi = pg.PolyLineROI([list(p) for p in z.outline], closed=True, movable=True,
+                roi = _Outline([list(p) for p in z.outline], closed=True, movable=True,
                                      pen=pg.mkPen(material_colour(z.material, 255), width=2))
                 roi.setZValue(12)
                 roi.sigRegionChangeFinished.connect(lambda r, i=i: self._zone_edited(i, r))
@@ -363,7 +404,7 @@ class BodyView(QWidget):
         r = v.regions[i]
         if r.view != self.view:
             return
-        roi = pg.PolyLineROI([list(p) for p in r.outline], closed=True, movable=True,
+        roi = _Outline([list(p) for p in r.outline], closed=True, movable=True,
                              pen=pg.mkPen(90, 90, 90, width=1.5, style=Qt.PenStyle.DashLine))
         roi.setZValue(5)
         roi.setToolTip(f"Mounting region '{r.name}' (heatmap area)")
@@ -668,14 +709,14 @@ class BodyView(QWidget):
         u, w = edits.snap(p.x(), self.doc.snap_m), edits.snap(p.y(), self.doc.snap_m)
         base = self.doc.live[1].positions[0] if self.doc.live and self.doc.live[0] == name else self.doc.spot_position(name)
         pos = self.from_view(u, w, base)
+        self.doc.live_released(name, pos)
         self.doc.apply(lambda v: edits.move_spot(v, name, pos), f"Move spot '{name}'")
 
     def _on_live(self, name: str, sc) -> None:
         m = self.markers.get(name)
         if m is None:
             return
-        # the dragged spot's placement, for its marker style (one point: well under a millisecond)
-        pl = classify(self.doc.scene, sc.positions[:1])
+        pl = self.doc.live_placement  # the dragged spot's placement, for its marker style
         if self.placement.get(name, (None,))[0] != pl.status[0] or self.placement[name][1] != pl.message(0):
             self.placement[name] = (pl.status[0], pl.message(0))
             self._style_marker(list(self.markers).index(name), name, m, name == self.doc.selected)

@@ -25,6 +25,7 @@ from PySide6.QtCore import QObject, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
 from app.gui.tasks import Task
+from core.placement import Placement, classify
 from core.scoring import CHUNK_LINKS, Cancelled, Scene, SpotScores, score_spots, vehicle_spot_arrays
 from core.vehicle import Vehicle, VehicleFileError, check_vehicle, load_vehicle, save_vehicle
 
@@ -120,6 +121,7 @@ class Document(QObject):
     scoresReady = Signal()  # scores of the file's spots changed (check ``pending`` for rows not scored yet)
     scoringProgress = Signal(int, int)  # spots scored, spots to score (a worker is scoring); (0, 0): idle
     liveScore = Signal(str, object)  # spot name, SpotScores of one spot at its dragged position
+    liveDropped = Signal(str, object)  # a dragged spot is released where it was last scored: name, that SpotScores
     previewChanged = Signal(object)  # an outline, zone or region is being dragged: the (valid) Vehicle under the mouse
     selectionChanged = Signal(str)  # selected spot name ("" for none)
     zoneSelectionChanged = Signal(int)  # index into vehicle.zones, -1 for none
@@ -143,6 +145,7 @@ class Document(QObject):
         self.selected_wheel: str = ""
         self.live: tuple[str, SpotScores] | None = None
         self._live_axis = np.zeros(3)  # the receiver axis the live score was computed with
+        self.live_placement: Placement | None = None  # core.placement of the live score's position
         self.vehicle: Vehicle = vehicle
         self.scene: Scene = Scene.from_vehicle(vehicle)
         self.physics: int = next(_physics_ids)
@@ -413,13 +416,19 @@ class Document(QObject):
         None is returned."""
         if len(self.scene.wheels) * len(self.scene.angles_rad) <= SYNC_LINKS:
             sc = self.score_at(name, pos)
-            self.live, self._live_axis = (name, sc), self._spot_axis(name)[0]
-            self.liveScore.emit(name, sc)
+            self._show_live(name, sc, self._spot_axis(name)[0])
             return sc
         self._live_request = (name, tuple(float(c) for c in pos))
         if self._live_task is None:
             self._start_live()
         return None
+
+    def live_released(self, name: str, pos) -> None:
+        """A dragged spot is released at ``pos`` (x, y, z) m, before its move is applied: when its live
+        score is of that very position, ``liveDropped`` passes it on, so that work that follows from it
+        (the burst figure) starts while the edit is made."""
+        if self.live is not None and self.live[0] == name and tuple(self.live[1].positions[0]) == tuple(pos):
+            self.liveDropped.emit(name, self.live[1])
 
     def _start_live(self) -> None:
         name, pos = self._live_request
@@ -438,8 +447,14 @@ class Document(QObject):
         if self._live_request is not None:
             self._start_live()  # the mouse moved on: only the latest position is shown
             return
-        self.live, self._live_axis = (task.spot, sc), task.axis
-        self.liveScore.emit(task.spot, sc)
+        self._show_live(task.spot, sc, task.axis)
+
+    def _show_live(self, name: str, sc: SpotScores, axis: np.ndarray) -> None:
+        """The dragged spot's score at its latest position: kept, with its placement (core.placement,
+        classified once here for every view that shows it), and told to the views."""
+        self.live, self._live_axis = (name, sc), axis
+        self.live_placement = classify(self.scene, sc.positions[:1])
+        self.liveScore.emit(name, sc)
 
     # ----- files --------------------------------------------------------------------
     def save(self, path: str | Path | None = None) -> None:

@@ -39,7 +39,7 @@ from PySide6.QtWidgets import (
 )
 
 from app.caution import CAUTION
-from app.gui.look import wheel_colour
+from app.gui.look import show_grid, wheel_colour
 from core.measurements import MeasurementFileError, MeasurementSet, load_measurements
 
 GREY = (150, 150, 150)
@@ -95,13 +95,13 @@ class MeasurementsWindow(QMainWindow):
         self.scatter.setLabel("bottom", "predicted level", units="dBm")
         self.scatter.setLabel("left", "measured level", units="dBm")
         self.scatter.setTitle("Measured against predicted (antenna terminal)")
-        self.scatter.showGrid(x=True, y=True, alpha=0.25)
+        show_grid(self.scatter)
         self.scatter.setAspectLocked(True)
         self.scatter.addLegend(offset=(10, 10))
         self.turn = pg.PlotWidget(background="w")
         self.turn.setLabel("bottom", "wheel angle", units="deg")
         self.turn.setLabel("left", "level", units="dBm")
-        self.turn.showGrid(x=True, y=True, alpha=0.25)
+        show_grid(self.turn)
         self.turn.addLegend(offset=(10, 10))
         self.turn.setXRange(0, 360, padding=0.01)
         self.spot_box = QComboBox()

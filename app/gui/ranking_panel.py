@@ -37,7 +37,7 @@ from app.gui import edits
 from app.gui.body_views import _only_spots_moved, same_but_spots
 from app.gui.document import Document
 from app.gui.heatmap_worker import HeatmapJob
-from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, signed, wheel_colour
+from app.gui.look import BODY_COLOUR, lock_aspect, margin_colormap, show_grid, signed, wheel_colour
 from app.gui.properties_panel import spot_axis_note
 from app.gui.tasks import Task, run_soon
 from app.heatmap_contour import polylines_for_plot, zero_contour
@@ -60,10 +60,18 @@ def _plot(title: str, bottom: str, left: str, bottom_units: str | None = None, l
     for side, text, units in (("bottom", bottom, bottom_units), ("left", left, left_units)):
         p.getAxis(side).enableAutoSIPrefix(False)
         p.setLabel(side, text, units=units)
-    p.showGrid(x=True, y=True, alpha=0.25)
+    show_grid(p)
     p.setMenuEnabled(False)
     p.getPlotItem().setContentsMargins(2, 2, 14, 2)  # room for the last tick label at the right end
     return p
+
+
+class _Dot(pg.ScatterPlotItem):
+    """A marker that never sets its view's range: moving it repaints the marker only (pyqtgraph's view
+    repaints its whole area when an item's bounds change while the view ranges itself automatically)."""
+
+    def informViewBoundsChanged(self):
+        pass
 
 
 class HeatmapPanel(QWidget):
@@ -126,6 +134,12 @@ class HeatmapPanel(QWidget):
         self.spots = pg.ScatterPlotItem(size=8, pen=pg.mkPen("k"), brush=pg.mkBrush(255, 255, 255, 230))
         self.spots.setZValue(5)
         self.plot.addItem(self.spots)
+        # the dragged spot's dot, on its own: a move repaints a dot, not the box around all the spots
+        self.live_dot = _Dot(size=8, pen=pg.mkPen("k"), brush=pg.mkBrush(255, 255, 255, 230))
+        self.live_dot.setZValue(6)
+        self.live_dot.hide()
+        self.plot.addItem(self.live_dot, ignoreBounds=True)
+        self._live_name: str | None = None  # the spot drawn as live_dot, left out of self.spots
         lay.addWidget(self.plot, 1)
         self.readout = QLabel("Click a cell to add a spot there. Black line: 0 dB margin.")
         self.readout.setWordWrap(True)  # a long summary wraps instead of widening the window
@@ -319,10 +333,15 @@ class HeatmapPanel(QWidget):
 
     def _live_spot(self, name: str, sc) -> None:
         """A spot is being dragged: its dot follows (the margin map itself does not depend on the spots)."""
-        pos = self.doc.scores.positions.copy()
-        if name in self.doc.scores.names and len(pos):
-            pos[self.doc.scores.names.index(name)] = sc.positions[0]
-            self._set_spots(pos)
+        names = self.doc.scores.names
+        if name not in names:
+            return
+        if self._live_name != name:
+            self._set_spots(self.doc.scores.positions[[i for i, n in enumerate(names) if n != name]])
+            self._live_name = name
+        u, w = self._in_view(sc.positions[:1])
+        self.live_dot.setData(u, w)
+        self.live_dot.show()
 
     # ----- drawing ---------------------------------------------------------------------
     def show_heatmap(self, hm, vehicle=None) -> None:
@@ -363,14 +382,17 @@ class HeatmapPanel(QWidget):
         self._draw_spots()
 
     def _draw_spots(self) -> None:
+        self._live_name = None
+        self.live_dot.hide()
         self._set_spots(self.doc.scores.positions)
 
+    def _in_view(self, pos) -> tuple:
+        """Positions (n, 3) m -> this map's plane coordinates (u, w), each (n,)."""
+        pos = np.asarray(pos, float).reshape(-1, 3)
+        return pos[:, 0], pos[:, 1] if getattr(self, "_context_view", "top") == "top" else pos[:, 2]
+
     def _set_spots(self, pos) -> None:
-        view = getattr(self, "_context_view", "top")
-        if len(pos):
-            self.spots.setData(pos[:, 0], pos[:, 1] if view == "top" else pos[:, 2])
-        else:
-            self.spots.setData([], [])
+        self.spots.setData(*self._in_view(pos))
 
     # ----- mouse -----------------------------------------------------------------------
     def cell_at(self, u: float, w: float):
@@ -611,10 +633,10 @@ class SpotTable(QTableWidget):
                       foreground=QColor(170, 0, 0) if status != NEAR_SURFACE else QColor(170, 90, 0))
 
     def _live(self, name: str, sc) -> None:
-        """A spot is being dragged: update its placement cell (one point; cheap)."""
+        """A spot is being dragged: update its placement cell (classified by the document)."""
+        pl = self.doc.live_placement
         for r in range(self.rowCount()):
             if self.item(r, 2) is not None and self.item(r, 2).text() == name:
-                pl = classify(self.doc.scene, sc.positions[:1])
                 self._set_placement(r, pl.status[0], pl.flag(0), pl.message(0))
                 return
 
@@ -676,7 +698,9 @@ class SpotFigures(QWidget):
         lay.addWidget(split)
         self.burst_result = None
         self.distinctness = None
-        self._burst_task: Task | None = None
+        self._burst_task: Task | None = None  # the burst the figure waits for
+        # (key, task, result) of the burst computed ahead for the dragged spot's latest position (_compute_ahead)
+        self._ahead: tuple | None = None
         self._levels_drawn = None  # what the level figure shows (_levels_key)
         self._level_items = None  # (wheel ids, sensitivity, required margin, curves, worst-case mark) drawn
         # the plot items of the burst and separation figures, kept while the wheels stay the same: a redraw
@@ -687,6 +711,7 @@ class SpotFigures(QWidget):
         doc.scoresReady.connect(self.schedule_refresh)
         doc.selectionChanged.connect(lambda _n: self.schedule_refresh())
         doc.liveScore.connect(self._live)
+        doc.liveDropped.connect(lambda name, sc: self._compute_ahead(sc) if name == self.doc.selected else None)
         self.refresh()
 
     def _row(self):
@@ -741,16 +766,49 @@ class SpotFigures(QWidget):
         self._start_burst(sc, i)
         self._draw_separation(sc, i)
 
-    def _start_burst(self, sc, i: int) -> None:
+    def _burst_key(self, sc, i: int) -> tuple:
+        """What the burst of spot row ``i`` depends on: the physics (radio, wheels, angles) and its levels."""
+        return (self.doc.physics, float(sc.sensitivity_dbm), sc.levels_dbm[i].tobytes())
+
+    def _burst_worker(self, sc, i: int) -> Task:
         """Burst success of spot row ``i`` in a worker (up to 16 wheels x 400 speeds x 720 start angles
-        x 100 frames inside the file limits); drawn when it arrives unless the figure moved on."""
+        x 100 frames inside the file limits)."""
         scene = self.doc.scene
         task = Task(lambda _p, cancel: burst_for_spot(scene, sc, i, cancel=cancel), "burst success")
+        task.key = self._burst_key(sc, i)
         task.done.connect(self._burst_done)
         task.failed.connect(self._burst_failed)
-        self._burst_task = task
-        self.burst.setTitle("Burst success vs speed: computing...", size="8pt")
         task.start()
+        return task
+
+    def _start_burst(self, sc, i: int) -> None:
+        """The burst figure of spot row ``i``: drawn when its worker's result arrives unless the figure moved
+        on, or at once when it was computed while the spot was dragged to where it now is."""
+        key = self._burst_key(sc, i)
+        ahead, self._ahead = self._ahead, None
+        if ahead is not None and ahead[0] == key and ahead[2] is not None:
+            self._draw_burst(ahead[2])
+            self.burstReady.emit(ahead[2])
+            return
+        if ahead is not None and ahead[0] == key:
+            self._burst_task = ahead[1]  # still computing: drawn when it arrives
+        else:
+            if ahead is not None and ahead[1] is not None:
+                ahead[1].cancel()
+            self._burst_task = self._burst_worker(sc, i)
+        self.burst.setTitle("Burst success vs speed: computing...", size="8pt")
+
+    def _compute_ahead(self, sc) -> None:
+        """The dropped spot's burst (row 0 of its live score), started in a worker as the mouse is released,
+        while the edit is made and the views redraw (started during the drag it would compete with the
+        live scoring for the cores); the figure's refresh after the edit adopts it."""
+        key = self._burst_key(sc, 0)
+        if self._ahead is not None:
+            if self._ahead[0] == key:
+                return
+            if self._ahead[1] is not None:
+                self._ahead[1].cancel()
+        self._ahead = (key, self._burst_worker(sc, 0), None)
 
     def burst_pending(self) -> bool:
         """True while the figures wait for a redraw or the burst figure for its worker."""
@@ -762,17 +820,24 @@ class SpotFigures(QWidget):
             task.cancel()
 
     def abandon(self) -> None:
-        """Drop the burst computation without waiting (the window closes)."""
+        """Drop the burst computations without waiting (the window closes)."""
         self._refresh_pending = False
         self._drop_burst()
+        ahead, self._ahead = self._ahead, None
+        if ahead is not None and ahead[1] is not None:
+            ahead[1].cancel()
 
     def _burst_done(self, task, r) -> None:
+        if self._ahead is not None and task is self._ahead[1]:
+            self._ahead = (self._ahead[0], None, r)
         if task is self._burst_task:
             self._burst_task = None
             self._draw_burst(r)
             self.burstReady.emit(r)
 
     def _burst_failed(self, task, msg: str) -> None:
+        if self._ahead is not None and task is self._ahead[1]:
+            self._ahead = None  # a drop computes it again (and reports the failure)
         if task is self._burst_task:
             self._burst_task = None
             self.burst.setTitle(f"Burst success: failed ({msg})", size="8pt")
@@ -801,8 +866,10 @@ class SpotFigures(QWidget):
             style = Qt.PenStyle.DashLine if wid in right else Qt.PenStyle.SolidLine
             curves.append(p.plot(ang, lv, pen=pg.mkPen(wheel_colour(w), width=1.8, style=style), name=wid))
         ww = int(sc.worst_wheel[i])
-        worst = p.plot([sc.worst_angle_deg[i, ww]], [sc.worst_dbm[i, ww]], pen=None, symbol="x", symbolSize=11,
-                       symbolPen=pg.mkPen(wheel_colour(ww), width=2.5))
+        # a scatter item, not a plot item with a symbol: that would rebuild its point at every range change
+        worst = pg.ScatterPlotItem([sc.worst_angle_deg[i, ww]], [sc.worst_dbm[i, ww]], symbol="x", size=11,
+                                   pen=pg.mkPen(wheel_colour(ww), width=2.5))
+        p.addItem(worst)
         self._level_items = (sc.wheel_ids, sc.sensitivity_dbm, sc.required_margin_db, curves, worst)
         sens = sc.sensitivity_dbm
         need = sens + sc.required_margin_db
@@ -841,8 +908,7 @@ class SpotFigures(QWidget):
         for w, curve in enumerate(curves):
             curve.setData(ang, np.append(sc.levels_dbm[0, w], sc.levels_dbm[0, w, 0]))
         ww = int(sc.worst_wheel[0])
-        worst.setData([sc.worst_angle_deg[0, ww]], [sc.worst_dbm[0, ww]])
-        worst.setSymbolPen(pg.mkPen(wheel_colour(ww), width=2.5))
+        worst.setData([sc.worst_angle_deg[0, ww]], [sc.worst_dbm[0, ww]], pen=pg.mkPen(wheel_colour(ww), width=2.5))
         self._range_of = (sc, 0)
         self.levels.setYRange(*_level_range(sc, 0, self._legend_share()), padding=0)
         self._levels_title(sc, 0, title)
@@ -866,7 +932,8 @@ class SpotFigures(QWidget):
         _ids, _right, curves, squares, repeats, need_line = self._burst_plot_items(r)
         for w in range(len(r.wheel_ids)):
             curves[w].setData(kmh, data[w])
-            squares[w].setData([0.0], [parked[w]])
+        squares.setData(np.zeros(len(r.wheel_ids)), np.asarray(parked, float),
+                        brush=[pg.mkBrush(wheel_colour(w)) for w in range(len(r.wheel_ids))])
         # one grey dotted line per speed at which the frames repeat, the lowest MAX_REPEAT_MARKERS of them (one item)
         lowest = [np.asarray(rs, float)[:MAX_REPEAT_MARKERS] for rs in r.resonant_mps]  # ascending per wheel
         speeds = np.unique(np.round(np.concatenate(lowest), 6)) if lowest else np.zeros(0)
@@ -876,7 +943,7 @@ class SpotFigures(QWidget):
         repeat = "dotted: frames repeat" + (f" (lowest {len(shown):,} of {total:,} drawn)" if len(shown) < total else "")
         lo_y, hi_y = (min(0.0, float(data.min())) - 50, float(data.max()) + 50) if all_pass else (0.0, 100.0)
         repeats.setData(np.repeat(shown, 2), np.tile([lo_y, hi_y], len(shown)))
-        for item in (*curves, *squares, repeats):
+        for item in (*curves, squares, repeats):
             item.setVisible(True)
         need_line.setVisible(all_pass)
         rad = self.doc.vehicle.radio
@@ -909,12 +976,14 @@ class SpotFigures(QWidget):
         p = self.burst
         p.clear()
         self.burst_legend.setColumnCount(max(1, min(len(ids), 6)))  # one row: less of the figure covered
-        curves, squares = [], []
+        curves = []
         for w, wid in enumerate(ids):
-            col = wheel_colour(w)
             style = Qt.PenStyle.DashLine if wid in right else Qt.PenStyle.SolidLine
-            curves.append(p.plot([], [], pen=pg.mkPen(col, width=1.8, style=style), name=wid))
-            squares.append(p.plot([], [], pen=None, symbol="s", symbolSize=7, symbolBrush=col, symbolPen="k"))
+            curves.append(p.plot([], [], pen=pg.mkPen(wheel_colour(w), width=1.8, style=style), name=wid))
+        # the parked values, one square per wheel in its colour: one scatter item (a plot item with symbols
+        # would rebuild its points on every change of the figure's range)
+        squares = pg.ScatterPlotItem(symbol="s", size=7, pen=pg.mkPen("k"))
+        p.addItem(squares)
         repeats = p.plot([], [], connect="pairs", pen=pg.mkPen(120, 120, 120, width=1, style=Qt.PenStyle.DotLine))
         need_line = pg.InfiniteLine(0.0, angle=0, pen=pg.mkPen(60, 60, 60, width=1, style=Qt.PenStyle.DashLine))
         need_line.setVisible(False)
@@ -925,7 +994,7 @@ class SpotFigures(QWidget):
     def _hide_burst(self) -> None:
         """Hide the burst curves while the next spot's are computed (kept for reuse, not removed)."""
         if self._burst_items is not None:
-            for item in (*self._burst_items[2], *self._burst_items[3], *self._burst_items[4:]):
+            for item in (*self._burst_items[2], *self._burst_items[3:]):
                 item.setVisible(False)
 
     def _draw_separation(self, sc, i: int) -> None:
@@ -948,7 +1017,8 @@ class SpotFigures(QWidget):
             boxes = pg.BarGraphItem(x=x, y0=q25, y1=q75, width=0.45, brushes=brushes, pen=pg.mkPen(40, 40, 40))
             p.addItem(bars)
             p.addItem(boxes)
-            medians = p.plot(x, d.medians_dbm, pen=None, symbol="_", symbolSize=26, symbolPen=pg.mkPen("k", width=2.5))
+            medians = pg.ScatterPlotItem(x, d.medians_dbm, symbol="_", size=26, pen=pg.mkPen("k", width=2.5))
+            p.addItem(medians)
             self._separation_items = (len(x), bars, boxes, medians)
         p.getAxis("bottom").setTicks([[(int(k), wid) for k, wid in zip(x, sc.wheel_ids)]])
         p.setXRange(-0.7, len(x) - 0.3, padding=0)

@@ -91,7 +91,7 @@ class SpotReadout(QLabel):
         near = "  near field: indicative only" if sc.near_field is not None and sc.near_field[i] else ""
         from core.placement import INSIDE, classify
 
-        pl = classify(self.doc.scene, sc.positions[i : i + 1])  # one point, well under a millisecond
+        pl = self.doc.live_placement if moving else classify(self.doc.scene, sc.positions[i : i + 1])
         if pl.status[0] != INSIDE:
             near += f" &nbsp; <b style='color:#a3141e'>{pl.flag(0)}</b>"  # the warning: marker and table tooltips
         own = spot_axis_note(self.doc.vehicle, name)  # the spot's own axis overrides the Receiver antenna setting
