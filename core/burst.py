@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from core import kernels
 from core.bounds import MAX_RESONANT_SPEEDS
 from core.scoring import Cancelled
 
@@ -61,14 +62,21 @@ def _best_frames(l0: np.ndarray, step_rad: np.ndarray, frames: int) -> np.ndarra
 
     ``l0`` (T,) is the level at the T uniform start angles; the level is linear between them
     (``_on_start_grid``), so a frame k s = (m + r) start spacings ahead reads
-    (1 - r) l0[j + m] + r l0[j + m + 1] (indices modulo T): the same linear interpolation as
-    np.interp on the level's own angles, without searching the angle for every frame."""
+    l0[j + m] + r (l0[j + m + 1] - l0[j + m]) (indices modulo T): the same linear interpolation as
+    np.interp on the level's own angles, without searching the angle for every frame.
+
+    With the compiled kernels (core.kernels.available) one compiled loop computes it without the
+    interpreter lock (a burst figure's worker then runs beside a busy event loop instead of waiting
+    for the lock between numpy calls); same arithmetic in the same order, so the same bits."""
     T = len(l0)
     best = np.broadcast_to(l0, (len(step_rad), T)).copy()  # frame 0 sits on the start angle
     pos = np.outer(step_rad, np.arange(1, frames)) * (T / (2 * np.pi))  # (V, K-1) in start spacings
     m = np.floor(pos)
     r = pos - m
     m = m.astype(np.int64) % T
+    if kernels.available():
+        _best_frames_kernel(np.ascontiguousarray(l0, float), m, r, best)
+        return best
     # row s of ``ahead`` is l0 read s start spacings ahead, l0[(j + s) % T] for every j: whole rows are
     # gathered instead of one index per start angle
     ahead = np.lib.stride_tricks.sliding_window_view(np.concatenate([l0, l0]), T)  # (T + 1, T), a view
@@ -77,6 +85,34 @@ def _best_frames(l0: np.ndarray, step_rad: np.ndarray, frames: int) -> np.ndarra
         lk = a + r[:, k, None] * (b - a)
         np.maximum(best, lk, out=best)
     return best
+
+
+if kernels.numba is not None:
+
+    @kernels.njit(cache=True, error_model="numpy", nogil=True)
+    def _best_frames_kernel(l0, m, r, best):  # pragma: no cover - compiled; checked against the numpy path
+        """``_best_frames`` in one loop: ``best`` (V, T) holds l0 on entry and the best frame on return."""
+        nv, nt = best.shape
+        for v in range(nv):
+            for j in range(nt):
+                b = best[v, j]
+                for k in range(m.shape[1]):
+                    i0 = j + m[v, k]
+                    if i0 >= nt:
+                        i0 -= nt
+                    i1 = i0 + 1
+                    if i1 >= nt:
+                        i1 -= nt
+                    lk = l0[i0] + r[v, k] * (l0[i1] - l0[i0])
+                    if lk > b or lk != lk:  # np.maximum: a NaN wins
+                        b = lk
+                best[v, j] = b
+
+
+def warm_up() -> None:
+    """Compile (or load from the cache) the burst kernel with the engine's argument types."""
+    if kernels.numba is not None:
+        _best_frames_kernel(np.zeros(2), np.zeros((1, 1), np.int64), np.zeros((1, 1)), np.zeros((1, 2)))
 
 
 def burst_success(

@@ -112,6 +112,9 @@ def warm_up() -> float:
         from core import link_kernel  # the fused link field (it calls the kernels above)
 
         link_kernel.warm_up()
+        from core import burst  # the burst figure's frame maxima
+
+        burst.warm_up()
         _WARM_INFO["seconds"] = time.perf_counter() - t0
         _READY.set()
         return _WARM_INFO["seconds"]

@@ -360,3 +360,23 @@ def test_installed_pattern_looked_up_in_numpy_when_tables_cannot_be_packed(monke
     for f in (compiled, looked_up):
         assert np.max(np.abs(_db(f.power()) - _db(ref.power()))) < TOL_DB
     assert not np.array_equal(compiled.re, np.zeros_like(compiled.re))
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=lambda p: p.stem)
+def test_burst_frames_match_numpy_path(path, monkeypatch):
+    """The compiled burst maxima (core.burst._best_frames_kernel) give the numpy path's success and burst
+    margin bit for bit, for every spot of every sample (the same levels fed to both)."""
+    from core.burst import burst_for_spot
+
+    v = load_vehicle(path)
+    scene = Scene.from_vehicle(v)
+    names, pos, axes = vehicle_spot_arrays(v)
+    sc = score_spots(scene, pos, axes, names)
+    for i in range(len(names)):
+        got = burst_for_spot(scene, sc, i)
+        monkeypatch.setenv(kernels.ENV_VAR, "numpy")
+        ref = burst_for_spot(scene, sc, i)
+        monkeypatch.setenv(kernels.ENV_VAR, "numba")
+        assert np.array_equal(got.success, ref.success), names[i]
+        assert np.array_equal(got.margin_db, ref.margin_db), names[i]
+    assert len(__import__("core.burst").burst._best_frames_kernel.signatures) == 1  # the warm-up's signature

@@ -31,7 +31,7 @@ from app.gui.document import Document
 from app.gui.look import BODY_COLOUR, lock_aspect, material_colour, show_grid
 from app.gui.properties_panel import axis_text, spot_axis_note
 from app.gui.tasks import run_soon
-from core.placement import INSIDE, NEAR_SURFACE, classify
+from core.placement import INSIDE, NEAR_SURFACE
 
 #: above this many spots a view draws them as one scatter item, with a marker for the selected one only
 MAX_SPOT_MARKERS = 40
@@ -477,7 +477,7 @@ class BodyView(QWidget):
 
     def _draw_spots(self) -> None:
         sc = self.doc.scores
-        pl = classify(self.doc.scene, sc.positions)
+        pl = self.doc.placement()
         self.placement = {name: (pl.status[i], pl.message(i)) for i, name in enumerate(sc.names)}
         if len(sc.names) > MAX_SPOT_MARKERS:
             self._draw_spot_cloud(sc)
@@ -680,7 +680,7 @@ class BodyView(QWidget):
                 m.setPos(*self.to_view(sc.positions[sc.names.index(name)]))
         finally:
             self._sync = False
-        pl = classify(self.doc.scene, sc.positions)  # a moved spot may have left the body (or come back)
+        pl = self.doc.placement()  # a moved spot may have left the body (or come back)
         placement = {name: (pl.status[i], pl.message(i)) for i, name in enumerate(sc.names)}
         if placement != self.placement:
             self.placement = placement

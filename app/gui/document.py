@@ -146,6 +146,7 @@ class Document(QObject):
         self.live: tuple[str, SpotScores] | None = None
         self._live_axis = np.zeros(3)  # the receiver axis the live score was computed with
         self.live_placement: Placement | None = None  # core.placement of the live score's position
+        self._placement: tuple[SpotScores, Placement] | None = None  # (scores, their placement): placement()
         self.vehicle: Vehicle = vehicle
         self.scene: Scene = Scene.from_vehicle(vehicle)
         self.physics: int = next(_physics_ids)
@@ -422,6 +423,13 @@ class Document(QObject):
         if self._live_task is None:
             self._start_live()
         return None
+
+    def placement(self) -> Placement:
+        """core.placement of every spot of ``scores`` (inside, near a panel, outside...), classified once
+        per set of scores for every view that shows it."""
+        if self._placement is None or self._placement[0] is not self.scores:
+            self._placement = (self.scores, classify(self.scene, self.scores.positions))
+        return self._placement[1]
 
     def live_released(self, name: str, pos) -> None:
         """A dragged spot is released at ``pos`` (x, y, z) m, before its move is applied: when its live

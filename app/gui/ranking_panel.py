@@ -44,7 +44,7 @@ from app.heatmap_contour import polylines_for_plot, zero_contour
 from app.margin_scale import MARGIN_RANGE_DB
 from core.burst import burst_for_spot
 from core.distinctness import wheel_distinctness
-from core.placement import INSIDE, NEAR_SURFACE, classify
+from core.placement import INSIDE, NEAR_SURFACE
 from core.regulatory import check_sensor_eirp
 from core.scoring import EXCLUDED_CELL_NAMES, RANK_RESOLUTION_DB
 
@@ -536,7 +536,7 @@ class SpotTable(QTableWidget):
         try:
             sc = self.doc.scores
             order = sc.order()
-            pl = classify(self.doc.scene, sc.positions)
+            pl = self.doc.placement()
             check = check_sensor_eirp(self.doc.vehicle.radio)  # over the ceiling: show the margin there too
             self.horizontalHeaderItem(3).setText("margin dB (at ceiling)" if check.over_ceiling else "margin dB")
             self.setRowCount(len(order))
@@ -952,18 +952,20 @@ class SpotFigures(QWidget):
             need_line.setValue(need)
             lo, hi = min(0.0, float(data.min()), need) - 2, max(float(data.max()), need) + 4
             f = min(0.5, self._legend_share(self.burst, self.burst_legend))  # room below for the wheel legend
-            p.setYRange(lo - f * (hi - lo) / (1.0 - f), hi, padding=0)
+            y_range = (lo - f * (hi - lo) / (1.0 - f), hi)
             p.setLabel("left", "burst margin", units="dB")
             p.setTitle(f"every burst gets through: lowest burst margin {float(data.min()):.0f} dB<br>dashed: "
                        f"required margin; squares: parked<br>{repeat}", size="8pt")
         else:
             wi, vi = r.worst()
-            p.setYRange(0, 100, padding=0.03)
+            y_range = (-3.0, 103.0)  # 0..100 % with 3 % of room at both ends
             p.setLabel("left", "bursts heard", units="%")
             p.setTitle(f"{rad.frames_per_burst} frames / {rad.frame_interval_s * 1000:.0f} ms: lowest "
                        f"{100 * r.success[wi, vi]:.0f} % ({r.wheel_ids[wi]}, {kmh[vi]:.0f} km/h)<br>"
                        f"squares: parked<br>{repeat}", size="8pt")
-        p.setXRange(float(kmh.min()), float(kmh.max()), padding=0.02)
+        x0, x1 = float(kmh.min()), float(kmh.max())
+        dx = 0.02 * (x1 - x0)
+        p.setRange(xRange=(x0 - dx, x1 + dx), yRange=y_range, padding=0)  # one range change: one update of the items
 
     def _burst_plot_items(self, r) -> tuple:
         """The burst figure's items for these wheels: the ones drawn last time when the wheels are the same

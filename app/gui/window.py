@@ -89,11 +89,11 @@ class SpotReadout(QLabel):
         colour = "#0a6b2a" if float(shown) >= 0 else "#a3141e"  # by the value shown: never a red "-0.00"
         state = " (moving)" if moving else ""
         near = "  near field: indicative only" if sc.near_field is not None and sc.near_field[i] else ""
-        from core.placement import INSIDE, classify
+        from core.placement import INSIDE
 
-        pl = self.doc.live_placement if moving else classify(self.doc.scene, sc.positions[i : i + 1])
-        if pl.status[0] != INSIDE:
-            near += f" &nbsp; <b style='color:#a3141e'>{pl.flag(0)}</b>"  # the warning: marker and table tooltips
+        pl, k = (self.doc.live_placement, 0) if moving else (self.doc.placement(), i)
+        if pl.status[k] != INSIDE:
+            near += f" &nbsp; <b style='color:#a3141e'>{pl.flag(k)}</b>"  # the warning: marker and table tooltips
         own = spot_axis_note(self.doc.vehicle, name)  # the spot's own axis overrides the Receiver antenna setting
         if own:
             near += f" &nbsp; axis: {own}"

@@ -85,3 +85,42 @@ def test_live_curves_follow_the_drag_without_new_plot_items(window, qtbot):
         for w, curve in enumerate(figs._level_items[3]):
             np.testing.assert_array_equal(curve.yData[:-1], sc.levels_dbm[0, w])
         assert "(moving)" in figs.levels.getPlotItem().titleLabel.text
+
+
+def test_the_burst_started_at_the_release_is_the_dropped_spots(window, qtbot, monkeypatch):
+    """The burst figure's worker starts as the mouse is released (before the edit is made); the figure then
+    shows that result, computed once, and it is the engine's burst of the spot where it was dropped. A drop
+    somewhere else does not take it."""
+    from app.gui import ranking_panel
+
+    doc, figs = window.doc, window.ranking.figures
+    name = doc.selected
+    qtbot.waitUntil(lambda: not figs.burst_pending(), timeout=30_000)
+    calls = []
+    real = ranking_panel.burst_for_spot
+
+    def spy(scene, scores, i, cancel=None):
+        calls.append(np.array(scores.levels_dbm[i]))
+        return real(scene, scores, i, cancel=cancel)
+
+    monkeypatch.setattr(ranking_panel, "burst_for_spot", spy)
+    x, y, z = doc.spot_position(name)
+    pos = (x + 0.02, y - 0.01, z)
+    doc.live_move(name, pos)
+    doc.live_released(name, pos)  # what the release does before the edit
+    assert len(calls) <= 1
+    qtbot.waitUntil(lambda: len(calls) == 1 and figs._ahead is not None and figs._ahead[2] is not None, timeout=30_000)
+    assert doc.apply(lambda v: edits.move_spot(v, name, pos), "move")
+    qtbot.waitUntil(lambda: not figs.burst_pending(), timeout=30_000)
+    assert len(calls) == 1  # the result computed at the release was drawn; no second worker
+    i = doc.spot_row(name)
+    np.testing.assert_array_equal(figs.burst_result.success, burst_for_spot(doc.scene, doc.scores, i).success)
+    # released at one place, the edit made at another (e.g. snapped differently): computed anew for the latter
+    doc.live_move(name, (x + 0.04, y, z))
+    doc.live_released(name, (x + 0.04, y, z))
+    other = (x + 0.05, y, z)
+    assert doc.apply(lambda v: edits.move_spot(v, name, other), "move")
+    qtbot.waitUntil(lambda: not figs.burst_pending(), timeout=30_000)
+    i = doc.spot_row(name)
+    np.testing.assert_array_equal(calls[-1], doc.scores.levels_dbm[i])
+    np.testing.assert_array_equal(figs.burst_result.success, burst_for_spot(doc.scene, doc.scores, i).success)
