@@ -699,7 +699,7 @@ class SpotFigures(QWidget):
         self.burst_result = None
         self.distinctness = None
         self._burst_task: Task | None = None  # the burst the figure waits for
-        # (key, task, result) of the burst computed ahead for the dragged spot's latest position (_compute_ahead)
+        # (key, task, result) of the burst started when a dragged spot was released (_compute_ahead)
         self._ahead: tuple | None = None
         self._levels_drawn = None  # what the level figure shows (_levels_key)
         self._level_items = None  # (wheel ids, sensitivity, required margin, curves, worst-case mark) drawn
@@ -783,7 +783,7 @@ class SpotFigures(QWidget):
 
     def _start_burst(self, sc, i: int) -> None:
         """The burst figure of spot row ``i``: drawn when its worker's result arrives unless the figure moved
-        on, or at once when it was computed while the spot was dragged to where it now is."""
+        on; the worker started when the spot was released there is taken over (drawn at once when done)."""
         key = self._burst_key(sc, i)
         ahead, self._ahead = self._ahead, None
         if ahead is not None and ahead[0] == key and ahead[2] is not None:
