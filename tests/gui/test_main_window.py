@@ -6,6 +6,7 @@ the engine computes for the geometry the user made with the mouse.
 """
 
 import json
+import math
 
 import numpy as np
 import pytest
@@ -240,3 +241,42 @@ def test_screenshot_writes_png(tmp_path):
     assert main([str(DEFAULT_SAMPLE), "--screenshot", str(out)]) == 0
     img = QImage(str(out))
     assert not img.isNull() and img.width() >= 1200 and img.height() >= 700
+
+
+def test_outline_segments_keep_their_shape_only_while_it_holds(window, qtbot):
+    """The editable outlines' segments keep their shape between repaints (app.gui.body_views._OutlineSegment),
+    and only while it holds: after a vertex moves, or the view zooms, the shape is a band a few pixels wide
+    around the segment as it now stands (pyqtgraph's band is 4 px, or 16 px once its shared pixel-vector
+    cache has been scaled in place by a segment's ``pxv *= 4``; either is accepted, a stale band is not)."""
+    from PySide6.QtWidgets import QGraphicsItem
+
+    from app.gui.body_views import _OutlineSegment
+
+    roi = window.top.body_roi
+    qtbot.wait(20)
+
+    def band(seg):
+        """(largest distance of the shape's corners from the segment's line, px; the segment's ends, px)."""
+        dt = seg.deviceTransform_()
+        a, b = (dt.map(QGraphicsItem.pos(h["item"])) for h in seg.handles)
+        ux, uy = b.x() - a.x(), b.y() - a.y()
+        n = math.hypot(ux, uy)
+        pts = [dt.map(p) for p in seg.shape().toFillPolygon()]
+        dist = max(abs((p.x() - a.x()) * uy - (p.y() - a.y()) * ux) / n for p in pts)
+        along = [((p.x() - a.x()) * ux + (p.y() - a.y()) * uy) / n for p in pts]
+        return dist, min(along), max(along), n
+
+    assert roi.segments and all(isinstance(s, _OutlineSegment) for s in roi.segments)
+    seg = roi.segments[0]
+    assert seg.shape() is seg.shape()  # kept while nothing changed
+    d, lo, hi, n = band(seg)
+    assert 2.0 <= d <= 20.0 and lo == pytest.approx(0.0, abs=1e-6) and hi == pytest.approx(n, rel=1e-9)
+    h = seg.handles[1]["item"]
+    roi.movePoint(h, h.scenePos() + QPointF(25, 15), coords="scene", finish=False)  # the band follows the vertex
+    d, lo, hi, n2 = band(seg)
+    assert n2 != pytest.approx(n) and 2.0 <= d <= 20.0
+    assert lo == pytest.approx(0.0, abs=1e-6) and hi == pytest.approx(n2, rel=1e-9)
+    window.top.plot.getPlotItem().vb.scaleBy((0.05, 0.05))  # zoom in 20x: a kept band would be 20x wider
+    qtbot.wait(20)
+    d, lo, hi, n3 = band(seg)
+    assert n3 > 10 * n2 and 2.0 <= d <= 20.0
